@@ -1,0 +1,41 @@
+"""The ``downcore`` command line.
+
+Each sub-command lives in its own module of this package and exposes a click command named
+``command``; :data:`SUBCOMMANDS` maps the command name to that module. Modules are imported
+only when their command is used, so ``downcore check`` never pays for importing Prefect.
+"""
+
+from __future__ import annotations
+
+import importlib
+
+import click
+
+#: command name -> module (relative to this package) holding a click command called ``command``
+SUBCOMMANDS: dict[str, str] = {
+    "check": "check",
+    "run": "run",
+    "demo": "demo",
+    "replay": "replay",
+    "compare": "compare",
+    "radiocarbon": "radiocarbon",
+    "report": "report",
+}
+
+
+class _LazyGroup(click.Group):
+    def list_commands(self, ctx: click.Context) -> list[str]:
+        return sorted(SUBCOMMANDS)
+
+    def get_command(self, ctx: click.Context, name: str) -> click.Command | None:
+        module_name = SUBCOMMANDS.get(name)
+        if module_name is None:
+            return None
+        module = importlib.import_module(f"{__name__}.{module_name}")
+        return module.command
+
+
+@click.group(cls=_LazyGroup, context_settings={"help_option_names": ["-h", "--help"]})
+@click.version_option(package_name="downcore")
+def main() -> None:
+    """downcore: sediment cores to dated, calibrated climate reconstructions."""
