@@ -1,0 +1,131 @@
+"""``downcore check PATH...``: validate core folders and run configs without running anything.
+
+Each PATH is a core folder (or its ``core.toml``) or a run config ``.toml`` (then the config
+and every core it lists are checked, including the dates' curve names against ``[curves]``).
+Prints one line per problem grouped per core, the number of rejected table rows and a
+summary. Exit code 0 when everything is clean, 1 when any problem was found, 2 for usage
+errors. Nothing is written.
+"""
+
+from __future__ import annotations
+
+import tomllib
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import click
+from rich.console import Console
+from rich.text import Text
+
+from proxies.problems import InputError, Problem
+
+__all__ = ["command", "rejected_rows"]
+
+
+@dataclass
+class _Group:
+    """Problems of one checked thing (a core folder or a config file)."""
+
+    title: str
+    problems: list[Problem] = field(default_factory=list)
+    summary: str = ""
+    is_core: bool = True
+
+
+def rejected_rows(problems: list[Problem]) -> int:
+    """Number of distinct data rows of tables named in ``problems``."""
+    from pipelines.tables import TABLE_SUFFIXES
+
+    rows = {
+        (p.file, p.row)
+        for p in problems
+        if p.row is not None and p.row > 1 and Path(p.file).suffix.lower() in TABLE_SUFFIXES
+    }
+    return len(rows)
+
+
+def _core_group(title: str, core, problems: list[Problem]) -> _Group:
+    group = _Group(title=title, problems=problems)
+    if core is not None:
+        counts = f", {len(core.counts)} count rows" if core.counts is not None else ""
+        group.title = f"{core.id} ({title})"
+        group.summary = f"{len(core.samples)} samples, {len(core.dates)} dates{counts}"
+    return group
+
+
+def _check_core(path: Path) -> _Group:
+    from pipelines.ingest import inspect_core
+
+    core, problems = inspect_core(str(path))
+    return _core_group(str(path), core, problems)
+
+
+def _check_config(path: Path) -> list[_Group]:
+    from pipelines.config import check_run_config_by_core
+
+    (config_title, (_, config_problems)), *cores = check_run_config_by_core(path).items()
+    groups = [_Group(title=f"run config {config_title}", problems=config_problems, is_core=False)]
+    groups.extend(_core_group(title, core, problems) for title, (core, problems) in cores)
+    return groups
+
+
+def _check_path(path: Path) -> list[_Group]:
+    try:
+        if path.is_dir():
+            return [_check_core(path)]
+        if path.name == "core.toml":
+            return [_check_core(path.parent)]
+        return _check_config(path)
+    except InputError as error:
+        return [_Group(title=str(path), problems=error.problems)]
+    except (OSError, tomllib.TOMLDecodeError, UnicodeDecodeError) as error:
+        return [_Group(title=str(path), problems=[Problem(str(path), f"cannot be read: {error}",
+                                                          "check the file")])]
+
+
+def _print_group(console: Console, group: _Group) -> None:
+    line = Text()
+    if group.problems:
+        line.append("FAIL ", style="bold red")
+    else:
+        line.append("ok   ", style="bold green")
+    line.append(group.title, style="bold")
+    if group.problems:
+        n = len(group.problems)
+        rows = rejected_rows(group.problems)
+        line.append(f": {n} problem{'s' if n != 1 else ''}, {rows} rejected row{'s' if rows != 1 else ''}")
+    elif group.summary:
+        line.append(f": {group.summary}")
+    console.print(line)
+    for problem in group.problems:
+        console.print(Text("  - " + str(problem)))
+
+
+@click.command("check")
+@click.argument("paths", nargs=-1, required=True, type=click.Path(exists=True, path_type=Path))
+def command(paths: tuple[Path, ...]) -> None:
+    """Check core folders and run configs (PATH: a core folder or a run config .toml)."""
+    for path in paths:
+        if not path.is_dir() and path.suffix.lower() != ".toml":
+            raise click.BadParameter(
+                f"{path} is neither a core folder nor a .toml run config", param_hint="PATH"
+            )
+    console = Console(soft_wrap=True, highlight=False)
+    groups = [group for path in paths for group in _check_path(path)]
+    for group in groups:
+        _print_group(console, group)
+    cores = [g for g in groups if g.is_core]
+    bad = [g for g in groups if g.problems]
+    n_problems = sum(len(g.problems) for g in groups)
+    n_rows = sum(rejected_rows(g.problems) for g in groups)
+    clean_cores = sum(1 for g in cores if not g.problems)
+    summary = Text()
+    summary.append("\nSummary: ", style="bold")
+    summary.append(
+        f"{len(cores)} core{'s' if len(cores) != 1 else ''} checked, {clean_cores} clean; "
+        f"{n_problems} problem{'s' if n_problems != 1 else ''}, "
+        f"{n_rows} rejected row{'s' if n_rows != 1 else ''}."
+    )
+    console.print(summary)
+    if bad:
+        click.get_current_context().exit(1)

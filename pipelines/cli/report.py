@@ -1,0 +1,34 @@
+"""``downcore report RUN_DIR``: regenerate the report and the exports of a finished run."""
+
+from __future__ import annotations
+
+import pathlib
+
+import click
+
+__all__ = ["command"]
+
+
+@click.command("report")
+@click.argument("run_dir", type=click.Path(exists=True, file_okay=False, path_type=pathlib.Path))
+@click.option("--no-csv", "no_csv", is_flag=True, default=False,
+              help="Do not write CSV copies of the Parquet tables.")
+def command(run_dir: pathlib.Path, no_csv: bool) -> None:
+    """Write report.html, figures/ and the exports (CSV, reconstructions.nc) of RUN_DIR.
+
+    Reads only the run folder, never the inputs; running it twice gives the same files.
+    """
+    from pipelines.report import write_exports, write_run_report
+
+    if not (run_dir / "summary.parquet").is_file() and not (run_dir / "manifest.json").is_file():
+        raise click.ClickException(f"{run_dir} holds no summary.parquet or manifest.json -- give "
+                                   "the folder a downcore run wrote")
+    report = write_run_report(run_dir)
+    exports = write_exports(run_dir, csv=not no_csv)
+    n_csv = sum(p.suffix == ".csv" for p in exports)
+    nc = [p for p in exports if p.suffix == ".nc"]
+    click.echo(f"report: {report}")
+    click.echo(f"figures: {run_dir / 'figures'}")
+    if n_csv:
+        click.echo(f"CSV files: {n_csv}")
+    click.echo(f"netCDF: {nc[0]}" if nc else "netCDF: none (the run has no reconstructions)")

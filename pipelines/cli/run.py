@@ -1,0 +1,116 @@
+"""``downcore run CONFIG --out DIR``: run the whole chain on the cores a run config lists.
+
+Exit status: 0 every core finished; 3 the run is complete but some cores failed (see the
+summary); 2 bad input (the config, or the output folder); 1 anything else.
+"""
+
+from __future__ import annotations
+
+import os
+import pathlib
+import sys
+from typing import Any, Callable
+
+import click
+
+EXIT_OK, EXIT_ERROR, EXIT_INPUT, EXIT_CORES_FAILED = 0, 1, 2, 3
+
+
+def executor_options(function: Callable) -> Callable:
+    """Options shared by ``run``, ``demo`` and ``replay``: where tasks run, cache, progress."""
+    options = [
+        click.option("--workers", type=click.IntRange(min=1), default=None,
+                     help="Tasks at once (threads, or local Dask workers). Default: CPU count."),
+        click.option("--dask-address", metavar="tcp://HOST:PORT", default=None,
+                     help="Run the tasks on an existing Dask cluster (its scheduler address)."),
+        click.option("--dask-local", is_flag=True,
+                     help="Start a local Dask cluster of --workers processes for this run."),
+        click.option("--cache-dir", type=click.Path(file_okay=False, path_type=pathlib.Path),
+                     default=None, help="Work store of finished stages (default: .downcore-cache "
+                     "next to the run folder, or $DOWNCORE_CACHE_DIR)."),
+        click.option("--recompute", is_flag=True, help="Recompute every stage, ignoring finished work."),
+        click.option("--quiet", "-q", is_flag=True, help="No progress display and no summary table."),
+    ]
+    for option in reversed(options):
+        function = option(function)
+    return function
+
+
+def make_choice(workers: int | None, dask_address: str | None, dask_local: bool):
+    """The :class:`~pipelines.flows.runners.ExecutorChoice` for the command-line options."""
+    from pipelines.flows.runners import ExecutorChoice
+
+    if dask_address and dask_local:
+        raise click.UsageError("give either --dask-address or --dask-local, not both")
+    if dask_address and not dask_address.startswith(("tcp://", "tls://", "ucx://", "inproc://")):
+        raise click.UsageError(f"--dask-address {dask_address!r}: expected tcp://HOST:PORT")
+    return ExecutorChoice(workers=workers or (os.cpu_count() or 2), dask_address=dask_address,
+                          dask_local=dask_local)
+
+
+def print_summary(outcome: Any, quiet: bool) -> None:
+    """The per-core table (status, stage reached, warnings, seconds) and where the results are."""
+    if quiet:
+        return
+    seconds = outcome.timings.groupby("core_id")["seconds"].sum() if len(outcome.timings) else {}
+    rows = []
+    for row in outcome.summary.to_dict("records"):
+        first = row["error"].splitlines()[0] if row["error"] else ""
+        rows.append((row["core_id"], row["status"], row["stage_reached"], str(row["n_warnings"]),
+                     f"{float(seconds.get(row['core_id'], 0.0)):.1f}", first[:100]))
+    from rich.console import Console
+    from rich.table import Table
+
+    table = Table(title=f"downcore run: {len(rows)} cores, {len(outcome.failed)} failed, "
+                        f"{outcome.seconds:.1f} s")
+    for header in ("core", "status", "stage reached", "warnings", "seconds", "error"):
+        table.add_column(header)
+    for row in rows:
+        table.add_row(*row)
+    console = Console(file=sys.stdout, width=max(100, Console().width))
+    console.print(table)
+    for note in outcome.notes:
+        console.print(f"note: {note}", markup=False, highlight=False)
+    console.print(f"results: {outcome.run_dir}", markup=False, highlight=False)
+
+
+def execute(config: pathlib.Path, out: pathlib.Path, *, workers, dask_address, dask_local,
+            cache_dir, recompute, quiet, resume: bool = False, report: bool = True) -> Any:
+    """Run and print; exit with the documented status on errors."""
+    from pipelines.flows.runners import apply_environment_defaults
+
+    apply_environment_defaults()
+    from pipelines.flows.run import execute_run
+    from pipelines.progress import RunProgress
+    from pipelines.runfolder import RunFolderError
+    from proxies.problems import InputError
+
+    choice = make_choice(workers, dask_address, dask_local)
+    try:
+        outcome = execute_run(config, out, choice=choice, cache_dir=cache_dir, recompute=recompute,
+                              resume=resume, progress=RunProgress(quiet=quiet), report=report)
+    except InputError as error:
+        click.echo(f"downcore: the input has problems:\n{error}", err=True)
+        sys.exit(EXIT_INPUT)
+    except RunFolderError as error:
+        click.echo(f"downcore: {error.strerror or error}", err=True)
+        sys.exit(EXIT_INPUT)
+    print_summary(outcome, quiet)
+    return outcome
+
+
+@click.command(name="run")
+@click.argument("config", type=click.Path(exists=True, dir_okay=False, path_type=pathlib.Path))
+@click.option("--out", "out", required=True, type=click.Path(path_type=pathlib.Path),
+              help="New run folder (created; refused if it exists and is not empty).")
+@click.option("--resume", is_flag=True, help="Finish an unfinished run in --out, reusing finished work.")
+@click.option("--no-report", is_flag=True, help="Skip the HTML report and the exports.")
+@executor_options
+def command(config, out, resume, no_report, workers, dask_address, dask_local, cache_dir,
+            recompute, quiet) -> None:
+    """Run the chain (ingest, chronology, calibration, reconstruction, events) on every core
+    CONFIG lists and write everything into a new run folder --out."""
+    outcome = execute(config, out, workers=workers, dask_address=dask_address, dask_local=dask_local,
+                      cache_dir=cache_dir, recompute=recompute, quiet=quiet, resume=resume,
+                      report=not no_report)
+    sys.exit(EXIT_CORES_FAILED if outcome.failed else EXIT_OK)

@@ -1,0 +1,279 @@
+"""The run config (TOML) -> :class:`RunConfig`.
+
+``[run]`` (seed, ensemble, cores) and ``[curves]`` are read here; every other section is kept
+raw in :attr:`RunConfig.sections` and validated by the stage's own ``XxxSettings.from_mapping``
+(via :func:`stage_settings`), so config parsing is never duplicated in :mod:`pipelines`.
+
+:func:`load_run_config` raises :class:`~proxies.problems.InputError` with every problem of the
+file itself; :func:`check_run_config` additionally checks each listed core folder, the dates'
+``curve`` names against ``[curves]``, duplicate core ids and each stage section.
+"""
+
+from __future__ import annotations
+
+import glob
+import importlib
+import os
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from proxies.cores.model import Core
+from proxies.problems import InputError, Problem
+
+from pipelines.ingest import inspect_core, read_toml
+
+__all__ = [
+    "RunConfig",
+    "load_run_config",
+    "check_run_config",
+    "stage_settings",
+    "STAGE_SETTINGS",
+    "ENSEMBLE_MIN",
+    "ENSEMBLE_MAX",
+]
+
+RUN_KEYS = ("seed", "ensemble", "cores")
+#: sections kept raw for the stages and the report
+RAW_SECTIONS = ("chronology", "training", "instrumental", "calibration", "reconstruction", "events", "report")
+TOP_LEVEL = ("run", "curves") + RAW_SECTIONS
+ENSEMBLE_MIN = 10
+ENSEMBLE_MAX = 100_000
+DEFAULT_ENSEMBLE = 1000
+#: stage -> "module:SettingsClass", imported only when needed
+STAGE_SETTINGS: dict[str, str] = {
+    "chronology": "proxies.chronology:ChronologySettings",
+    "calibration": "proxies.calibration:CalibrationSettings",
+    "reconstruction": "proxies.reconstruction:ReconstructionSettings",
+    "events": "proxies.events:EventSettings",
+}
+
+
+@dataclass(frozen=True)
+class RunConfig:
+    """A parsed run config.
+
+    Attributes
+    ----------
+    path : Path
+        The config file (absolute).
+    seed : int
+        Run seed (non-negative).
+    ensemble : int
+        Ensemble members M, 10..100 000 (default 1000).
+    core_folders : tuple of Path
+        Core folders matched by ``[run] cores`` (relative to the config file), sorted, unique.
+    curves : dict of str to Path
+        Calibration-curve name -> existing file.
+    sections : dict of str to dict
+        Raw ``[chronology]``, ``[training]``, ``[instrumental]``, ``[calibration]``,
+        ``[reconstruction]``, ``[events]``, ``[report]`` tables (absent ones are ``{}``).
+    """
+
+    path: Path
+    seed: int
+    ensemble: int
+    core_folders: tuple[Path, ...]
+    curves: dict[str, Path]
+    sections: dict[str, dict] = field(default_factory=dict)
+
+    def resolve(self, relative: str | Path) -> Path:
+        """A path written in the config, relative to the config file's folder."""
+        return (self.path.parent / relative).resolve()
+
+
+def _display(path: Path) -> str:
+    """Path relative to the working folder when below it, else absolute."""
+    try:
+        relative = os.path.relpath(path)
+    except ValueError:
+        return str(path)
+    return str(path) if relative.startswith("..") else relative
+
+
+def _parse(path: Path) -> tuple[RunConfig | None, list[Problem]]:
+    name = str(path)
+    mapping, problems = read_toml(path, name)
+    if mapping is None:
+        return None, problems
+    for key in mapping:
+        if key not in TOP_LEVEL:
+            problems.append(Problem(name, f"unknown section [{key}]",
+                                    "remove it or correct the spelling; allowed: " + ", ".join(TOP_LEVEL), column=key))
+    run = mapping.get("run")
+    if not isinstance(run, dict):
+        problems.append(Problem(name, "the [run] section is missing", "add [run] with seed and cores", column="run"))
+        run = {}
+    for key in run:
+        if key not in RUN_KEYS:
+            problems.append(Problem(name, f"unknown key '{key}' in [run]",
+                                    "remove it or correct the spelling; allowed: " + ", ".join(RUN_KEYS),
+                                    column=f"run.{key}"))
+    seed = _seed(run, name, problems)
+    ensemble = _ensemble(run, name, problems)
+    folders = _core_folders(run, path, name, problems)
+    curves = _curves(mapping.get("curves", {}), path, name, problems)
+    sections = {}
+    for key in RAW_SECTIONS:
+        value = mapping.get(key, {})
+        if not isinstance(value, dict):
+            problems.append(Problem(name, f"'{key}' must be a [{key}] table", f"write it as [{key}]", column=key))
+            value = {}
+        sections[key] = value
+    if problems:
+        return None, problems
+    return RunConfig(path=path.resolve(), seed=seed, ensemble=ensemble, core_folders=folders,
+                     curves=curves, sections=sections), []
+
+
+def _seed(run: dict, name: str, problems: list[Problem]) -> int | None:
+    if "seed" not in run:
+        problems.append(Problem(name, "required key 'seed' is missing from [run]",
+                                "add seed = <non-negative whole number>", column="run.seed"))
+        return None
+    seed = run["seed"]
+    if isinstance(seed, bool) or not isinstance(seed, int) or seed < 0:
+        problems.append(Problem(name, f"seed must be a non-negative whole number, got {seed!r}",
+                                "write e.g. seed = 20261201", column="run.seed"))
+        return None
+    return seed
+
+
+def _ensemble(run: dict, name: str, problems: list[Problem]) -> int | None:
+    value = run.get("ensemble", DEFAULT_ENSEMBLE)
+    if isinstance(value, bool) or not isinstance(value, int) or not ENSEMBLE_MIN <= value <= ENSEMBLE_MAX:
+        problems.append(Problem(name, f"ensemble must be a whole number {ENSEMBLE_MIN}..{ENSEMBLE_MAX}, got {value!r}",
+                                f"write e.g. ensemble = {DEFAULT_ENSEMBLE}", column="run.ensemble"))
+        return None
+    return value
+
+
+def _core_folders(run: dict, path: Path, name: str, problems: list[Problem]) -> tuple[Path, ...]:
+    patterns = run.get("cores")
+    if patterns is None:
+        problems.append(Problem(name, "required key 'cores' is missing from [run]",
+                                'add cores = ["cores/*"] (folders or glob patterns, relative to this file)',
+                                column="run.cores"))
+        return ()
+    if isinstance(patterns, str):
+        patterns = [patterns]
+    if not isinstance(patterns, list) or not all(isinstance(p, str) for p in patterns):
+        problems.append(Problem(name, "cores must be a list of folder names or glob patterns",
+                                'write e.g. cores = ["cores/*"]', column="run.cores"))
+        return ()
+    base = path.resolve().parent
+    found: set[Path] = set()
+    for pattern in patterns:
+        matches = [Path(m).resolve() for m in glob.glob(os.path.join(str(base), pattern))]
+        folders = [m for m in matches if m.is_dir()]
+        if not folders:
+            problems.append(Problem(name, f"cores pattern {pattern!r} matches no folder",
+                                    f"check the pattern; it is relative to {_display(base)}", column="run.cores"))
+        found.update(folders)
+    return tuple(sorted(found, key=str))
+
+
+def _curves(curves: Any, path: Path, name: str, problems: list[Problem]) -> dict[str, Path]:
+    if not isinstance(curves, dict):
+        problems.append(Problem(name, "'curves' must be a [curves] table of name = file",
+                                'write [curves] then e.g. atmosphere = "curves/x.14c"', column="curves"))
+        return {}
+    result = {}
+    for curve, file in curves.items():
+        if not isinstance(file, str):
+            problems.append(Problem(name, f"curve {curve!r} must name a file, got {file!r}",
+                                    f'write {curve} = "path/to/curve-file"', column=f"curves.{curve}"))
+            continue
+        resolved = (path.resolve().parent / file).resolve()
+        if not resolved.is_file():
+            problems.append(Problem(name, f"curve file {file!r} not found",
+                                    "check the path; it is relative to the config file", column=f"curves.{curve}"))
+            continue
+        result[curve] = resolved
+    return result
+
+
+def load_run_config(path: str | Path) -> RunConfig:
+    """Read a run config; raise :class:`InputError` with every problem of the file itself.
+
+    Core folders are found but not inspected (see :func:`check_run_config`).
+    """
+    config, problems = _parse(Path(path))
+    if problems:
+        raise InputError(problems)
+    return config
+
+
+def _settings_class(stage: str):
+    if stage not in STAGE_SETTINGS:
+        raise ValueError(f"unknown stage {stage!r}; known: {', '.join(STAGE_SETTINGS)}")
+    module_name, class_name = STAGE_SETTINGS[stage].split(":")
+    return getattr(importlib.import_module(module_name), class_name)
+
+
+def stage_settings(config: RunConfig, stage: str):
+    """The stage's Settings object built from its config section (defaults when absent).
+
+    Calls ``cls.from_mapping(section, where="<config path> [<stage>]")``, which raises
+    :class:`InputError` for unknown keys, wrong types or out-of-range values.
+    """
+    cls = _settings_class(stage)
+    return cls.from_mapping(dict(config.sections.get(stage, {})), where=f"{config.path} [{stage}]")
+
+
+def check_run_config(path: str | Path, *, year: int | None = None) -> list[Problem]:
+    """Every problem of a run config, its stage sections and all its core folders.
+
+    Stage sections whose Settings class cannot be imported yet are skipped.
+    """
+    report = check_run_config_by_core(path, year=year)
+    return [problem for _, problems in report.values() for problem in problems]
+
+
+def check_run_config_by_core(
+    path: str | Path, *, year: int | None = None
+) -> dict[str, tuple[Core | None, list[Problem]]]:
+    """Like :func:`check_run_config`, grouped and with the loaded cores.
+
+    Returns ``{config path: (None, problems of the config), core folder: (core or None,
+    problems of that core), ...}`` in that order, core folders sorted.
+    """
+    path = Path(path)
+    name = str(path)
+    config, problems = _parse(path)
+    grouped: dict[str, tuple[Core | None, list[Problem]]] = {name: (None, problems)}
+    if config is None:
+        return grouped
+    for stage in STAGE_SETTINGS:
+        if not config.sections.get(stage):
+            continue
+        try:
+            _settings_class(stage)
+        except (ImportError, AttributeError):
+            continue  # that stage's settings class is not available in this installation
+        try:
+            stage_settings(config, stage)
+        except InputError as error:
+            problems.extend(error.problems)
+    ids: dict[str, str] = {}
+    for folder in config.core_folders:
+        shown = _display(folder)
+        core, core_problems = inspect_core(shown, year=year, curve_names=set(config.curves))
+        core_id = core.id if core is not None else _declared_id(folder)
+        if core_id is not None and core_id in ids:
+            core_problems.append(Problem(os.path.join(shown, "core.toml"),
+                                         f"core id {core_id!r} is also used by {ids[core_id]}",
+                                         "give every core its own id", column="core.id"))
+        elif core_id is not None:
+            ids[core_id] = shown
+        grouped[shown] = (core, core_problems)
+    return grouped
+
+
+
+def _declared_id(folder: Path) -> str | None:
+    """The id written in a core folder's core.toml, even when the core has other problems."""
+    mapping, _ = read_toml(folder / "core.toml", "core.toml")
+    core = (mapping or {}).get("core")
+    value = core.get("id") if isinstance(core, dict) else None
+    return value if isinstance(value, str) else None

@@ -1,0 +1,278 @@
+"""The archive flow: every core of a run through every stage, concurrently, failures isolated.
+
+The flow drives each core through ingest -> chronology -> calibration -> reconstruction ->
+events -> outputs by submitting the next task of a core as soon as its previous task finishes
+(so workers stay busy across cores, and a failed core simply stops). Training sets are fitted
+once, before any calibration, and shared. When all cores are done the regional stack is
+built. The flow returns one summary row per core; it never fails because a core failed.
+
+Concurrency is the task runner's: ``ThreadPoolTaskRunner(max_workers=N)`` by default or a
+``DaskTaskRunner`` (see :mod:`pipelines.flows.runners`). Results do not depend on it: every
+random stream is ``rng_for(run_seed, stage, core_id)``, and tables are written in a fixed order.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import pathlib
+import queue
+import time
+from dataclasses import dataclass, field
+from typing import Any
+
+from prefect import flow
+
+from pipelines.flows import tasks
+from pipelines.flows.plan import RunPlan
+from pipelines.flows.store import WorkStore
+
+__all__ = ["archive_flow", "core_flow", "CoreTrack", "register_observer", "unregister_observer"]
+
+#: per-core stage order after ingest (outputs follow the last stage reached)
+CORE_STAGES = ("ingest", "chronology", "calibration", "reconstruction", "events")
+
+_OBSERVERS: dict[str, Any] = {}
+
+
+def register_observer(observer: Any) -> str:
+    """Make a progress observer reachable by id from inside the flow (objects with methods
+    ``started(total)``, ``stage(label, stage)``, ``finished(track)``); returns its id."""
+    key = f"observer-{id(observer)}"
+    _OBSERVERS[key] = observer
+    return key
+
+
+def unregister_observer(key: str) -> None:
+    _OBSERVERS.pop(key, None)
+
+
+class _Silent:
+    def started(self, total: int) -> None: ...
+    def stage(self, label: str, stage: str) -> None: ...
+    def finished(self, track: "CoreTrack") -> None: ...
+
+
+@dataclass
+class CoreTrack:
+    """Where one core is in the run, and what happened to it."""
+
+    folder: str
+    label: str
+    core_id: str | None = None
+    entries: dict[str, dict] = field(default_factory=dict)
+    stage: str = "ingest"
+    reached: str = ""
+    status: str = "running"
+    error: str = ""
+    warnings: list[str] = field(default_factory=list)
+    notes: list[str] = field(default_factory=list)
+    seconds: dict[str, float] = field(default_factory=dict)
+    cached: dict[str, bool] = field(default_factory=dict)
+    log: list[str] = field(default_factory=list)
+
+    def say(self, text: str) -> None:
+        stamp = _dt.datetime.now(_dt.timezone.utc).strftime("%H:%M:%S")
+        self.log.append(f"{stamp}  {text}")
+
+    @property
+    def name(self) -> str:
+        return self.core_id or self.label
+
+    def row(self) -> dict[str, Any]:
+        """The summary row (deterministic columns; timings go to timings.csv)."""
+        return {"core_id": self.name, "folder": self.folder, "status": self.status,
+                "stage_reached": self.reached or "none", "n_warnings": len(self.warnings),
+                "warnings": " | ".join(self.warnings), "notes": " | ".join(self.notes),
+                "error": self.error}
+
+
+class _Driver:
+    """Submits each core's next task when its previous one finishes."""
+
+    def __init__(self, plan: RunPlan, run_dir: str, store: WorkStore, recompute: bool, observer: Any):
+        self.plan, self.run_dir, self.store, self.recompute = plan, run_dir, store, recompute
+        self.observer = observer
+        self.done: queue.Queue = queue.Queue()
+        self.pending = 0
+        self.training: dict[str, dict] = {}
+        self.training_failed: dict[str, str] = {}
+        self.training_left = set(plan.auxiliary.get("training", {}))
+        self.waiting_for_training: list[CoreTrack] = []
+        self.ids: dict[str, str] = {}
+        self.tracks: list[CoreTrack] = []
+
+    # -- submission ---------------------------------------------------------------------
+    def _submit(self, track: CoreTrack | None, stage: str, task, **kwargs) -> None:
+        future = task.submit(**kwargs)
+        self.pending += 1
+        future.add_done_callback(lambda f, t=track, s=stage: self.done.put((t, s, f)))
+        if track is not None:
+            track.stage = stage
+            self.observer.stage(track.label, stage)
+
+    def _common(self, track: CoreTrack) -> dict:
+        return {"plan": self.plan, "label": track.name, "store": self.store, "recompute": self.recompute}
+
+    def start(self) -> None:
+        for name in sorted(self.training_left):
+            self._submit(None, f"training:{name}", tasks.training_task, plan=self.plan, label=name,
+                         store=self.store, recompute=self.recompute)
+        for folder in self.plan.core_folders:
+            track = CoreTrack(folder=folder, label=pathlib.Path(folder).name)
+            self.tracks.append(track)
+            track.say(f"core folder {folder}")
+            self._submit(track, "ingest", tasks.ingest_task, plan=self.plan, label=track.label,
+                         folder=folder, store=self.store, recompute=self.recompute)
+
+    def _next(self, track: CoreTrack, finished: str) -> None:
+        e = track.entries
+        if finished == "ingest":
+            self._submit(track, "chronology", tasks.chronology_task, ingest=e["ingest"], **self._common(track))
+        elif finished == "chronology":
+            if self.training_left:
+                self.waiting_for_training.append(track)
+                track.say("waiting for the training sets")
+            else:
+                self._calibrate(track)
+        elif finished == "calibration":
+            self._submit(track, "reconstruction", tasks.reconstruction_task, ingest=e["ingest"],
+                         chronology=e["chronology"], calibration=e["calibration"], **self._common(track))
+        elif finished == "reconstruction":
+            self._submit(track, "events", tasks.events_task, reconstruction=e["reconstruction"],
+                         **self._common(track))
+        else:
+            self._publish(track)
+
+    def _calibrate(self, track: CoreTrack) -> None:
+        if self.training_failed:
+            note = "; ".join(f"training set {n} failed: {m}" for n, m in sorted(self.training_failed.items()))
+            track.notes.append(f"calibration without the failed training sets ({note})")
+        e = track.entries
+        self._submit(track, "calibration", tasks.calibration_task, ingest=e["ingest"],
+                     chronology=e["chronology"], training=dict(sorted(self.training.items())),
+                     **self._common(track))
+
+    def _publish(self, track: CoreTrack) -> None:
+        if track.status == "running":
+            track.status = "ok"
+        track.say(f"finished: {track.status}, stage reached {track.reached or 'none'}")
+        entries = [track.entries[s] for s in CORE_STAGES if s in track.entries and s != "ingest"]
+        self._submit(track, "outputs", tasks.outputs_task, run_dir=self.run_dir, label=track.name,
+                     entries=entries, log_text=self._log_text(track))
+
+    def _log_text(self, track: CoreTrack) -> str:
+        lines = [f"downcore core log: {track.name}", *track.log]
+        lines += [f"warning: {w}" for w in track.warnings] + [f"note: {n}" for n in track.notes]
+        if track.error:
+            lines.append(f"error: {track.error}")
+        return "\n".join(lines) + "\n"
+
+    # -- completion ---------------------------------------------------------------------
+    def _on_training(self, name: str, result: Any) -> None:
+        self.training_left.discard(name)
+        if isinstance(result, BaseException):
+            self.training_failed[name] = str(result)
+        elif "skipped" in result:
+            self.training_failed[name] = result["skipped"]
+        else:
+            self.training[name] = result
+        if not self.training_left:
+            waiting, self.waiting_for_training = self.waiting_for_training, []
+            for track in waiting:
+                self._calibrate(track)
+
+    def _on_core(self, track: CoreTrack, stage: str, result: Any) -> None:
+        if stage == "outputs":
+            if isinstance(result, BaseException):
+                track.status, track.error = "failed", f"writing outputs: {result}"
+            self.observer.finished(track)
+            return
+        if isinstance(result, BaseException):
+            track.status, track.error = "failed", f"{stage}: {result}"
+            track.say(f"{stage} FAILED: {result}")
+            self._publish(track)
+            return
+        track.seconds[stage] = float(result.get("seconds", 0.0))
+        if "skipped" in result:
+            track.notes.append(result["skipped"])
+            track.say(result["skipped"])
+            self._publish(track)
+            return
+        if stage == "ingest":
+            core_id = result["core_id"]
+            if core_id in self.ids:
+                track.status = "failed"
+                track.error = (f"ingest: core id {core_id!r} is also used by {self.ids[core_id]} -- "
+                               "give every core its own id")
+                self._publish(track)
+                return
+            self.ids[core_id] = track.folder
+            track.core_id = core_id
+        track.entries[stage] = result
+        track.reached = stage
+        track.cached[stage] = bool(result.get("cached"))
+        track.warnings += [f"{stage}: {w}" for w in result.get("warnings", [])]
+        track.notes += [f"{stage}: {n}" for n in result.get("notes", [])]
+        track.say(f"{stage} done in {result.get('seconds', 0.0):.2f} s"
+                  + (" (reused from the cache)" if result.get("cached") else ""))
+        self._next(track, stage)
+
+    def run(self) -> list[CoreTrack]:
+        self.observer.started(len(self.plan.core_folders))
+        self.start()
+        while self.pending:
+            track, stage, future = self.done.get()
+            self.pending -= 1
+            result = future.result(raise_on_failure=False)
+            if track is None:
+                self._on_training(stage.split(":", 1)[1], result)
+            else:
+                self._on_core(track, stage, result)
+        return self.tracks
+
+
+@flow(name="downcore-archive", validate_parameters=False, persist_result=False, log_prints=False)
+def archive_flow(plan: RunPlan, run_dir: str, cache_dir: str, recompute: bool = False,
+                 observer_id: str | None = None) -> dict:
+    """Run every core of ``plan`` into ``run_dir`` (see the module docstring).
+
+    Returns
+    -------
+    dict
+        ``cores``: one summary row per core (in core-folder order), ``timings``: one row per
+        core and stage (seconds, reused from cache or not), ``training``: entry per training
+        set, ``stack``: the stack entry or ``None``, ``notes``: run-level notes.
+    """
+    observer = _OBSERVERS.get(observer_id or "", _Silent())
+    store = WorkStore(cache_dir)
+    driver = _Driver(plan, run_dir, store, recompute, observer)
+    tracks = driver.run()
+    notes = [f"training set {n}: {m}" for n, m in sorted(driver.training_failed.items())]
+    reconstructions = {t.name: t.entries["reconstruction"] for t in tracks
+                       if t.status == "ok" and "reconstruction" in t.entries}
+    stack = None
+    if reconstructions:
+        started = time.perf_counter()
+        future = tasks.stack_task.submit(plan=plan, label="all-cores", reconstructions=reconstructions,
+                                         store=store, recompute=recompute)
+        result = future.result(raise_on_failure=False)
+        if isinstance(result, BaseException):
+            notes.append(f"stack failed: {result}")
+        elif "skipped" in result:
+            notes.append(result["skipped"])
+        else:
+            stack = result
+        del started
+    timings = [{"core_id": t.name, "stage": s, "seconds": t.seconds[s], "reused": t.cached.get(s, False)}
+               for t in tracks for s in CORE_STAGES if s in t.seconds]
+    return {"cores": [t.row() for t in tracks], "timings": timings, "training": driver.training,
+            "stack": stack, "notes": notes}
+
+
+@flow(name="downcore-core", validate_parameters=False, persist_result=False, log_prints=False)
+def core_flow(plan: RunPlan, folder: str, run_dir: str, cache_dir: str, recompute: bool = False) -> dict:
+    """One core through every stage (ingest -> ... -> outputs), sequentially; returns its
+    summary row. The archive flow runs the same tasks for many cores at once."""
+    single = RunPlan(**{**plan.__dict__, "core_folders": (str(pathlib.Path(folder).resolve()),)})
+    driver = _Driver(single, run_dir, WorkStore(cache_dir), recompute, _Silent())
+    return driver.run()[0].row()

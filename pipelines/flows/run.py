@@ -1,0 +1,191 @@
+"""One whole run: config -> plan -> archive flow -> run folder -> report -> manifest.
+
+This is what ``downcore run``, ``downcore demo`` and ``downcore replay`` call. The run folder
+is created first (refused when it exists and is not empty), marked in progress, filled file by
+file (each write atomic, each core folder renamed into place when complete) and finished with
+``manifest.json``; the in-progress marker is removed last. A run folder with a manifest is
+complete; one without is not a result.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import datetime as _dt
+import os
+import pathlib
+import time
+from dataclasses import dataclass, field
+from typing import Any
+
+import pandas as pd
+
+from pipelines.flows.plan import RunPlan, build_plan
+from pipelines.flows.runners import ExecutorChoice, prefect_run_settings, task_runner_for
+from pipelines.manifest import build_manifest, collect_input_files, hash_inputs, write_manifest
+from pipelines.runfolder import (IN_PROGRESS_MARKER, atomic_copy, atomic_write_parquet,
+                                 atomic_write_text, create_run_folder)
+
+__all__ = ["RunOutcome", "execute_run", "default_cache_dir", "resolved_config"]
+
+CACHE_ENV = "DOWNCORE_CACHE_DIR"
+
+
+@dataclass
+class RunOutcome:
+    """What a finished run produced."""
+
+    run_dir: pathlib.Path
+    summary: pd.DataFrame
+    timings: pd.DataFrame
+    notes: list[str] = field(default_factory=list)
+    seconds: float = 0.0
+
+    @property
+    def failed(self) -> list[str]:
+        return list(self.summary.loc[self.summary["status"] == "failed", "core_id"])
+
+
+def default_cache_dir(out_dir: str | os.PathLike[str]) -> pathlib.Path:
+    """``$DOWNCORE_CACHE_DIR`` if set, else ``.downcore-cache`` next to the run folder (so runs
+    into the same output root share finished work)."""
+    if os.environ.get(CACHE_ENV):
+        return pathlib.Path(os.environ[CACHE_ENV]).expanduser().resolve()
+    return pathlib.Path(out_dir).expanduser().resolve().parent / ".downcore-cache"
+
+
+def _plain(value: Any) -> Any:
+    if dataclasses.is_dataclass(value) and not isinstance(value, type):
+        return {f.name: _plain(getattr(value, f.name)) for f in dataclasses.fields(value)}
+    if isinstance(value, dict):
+        return {str(k): _plain(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_plain(v) for v in value]
+    if isinstance(value, (pathlib.PurePath,)):
+        return str(value)
+    if hasattr(value, "item") and not isinstance(value, (str, bytes)):
+        try:
+            return value.item()
+        except (TypeError, ValueError):
+            return str(value)
+    return value if value is None or isinstance(value, (str, int, float, bool)) else str(value)
+
+
+def resolved_config(plan: RunPlan) -> dict[str, Any]:
+    """The config as the run used it: every stage's settings with defaults filled in."""
+    return {
+        "run": {"seed": plan.run_seed, "ensemble": plan.ensemble, "cores": list(plan.core_folders)},
+        "curves": {name: path for name, path, _ in plan.curves},
+        "settings": {stage: _plain(s) for stage, s in sorted(plan.settings.items())},
+        "training": _plain(plan.raw.get("training", {})),
+        "instrumental": _plain(plan.raw.get("instrumental", {})),
+        "report": _plain(plan.raw.get("report", {})),
+    }
+
+
+def _write_run_tables(run_dir: pathlib.Path, result: dict) -> None:
+    summary = pd.DataFrame(result["cores"], columns=["core_id", "folder", "status", "stage_reached",
+                                                     "n_warnings", "warnings", "notes", "error"])
+    atomic_write_parquet(run_dir / "summary.parquet", summary)
+    timings = pd.DataFrame(result["timings"], columns=["core_id", "stage", "seconds", "reused"])
+    atomic_write_text(run_dir / "timings.csv", timings.to_csv(index=False))
+    for name, entry in sorted(result["training"].items()):
+        for part in ("cv", "performance"):
+            if part in entry.get("paths", {}):
+                atomic_copy(entry["paths"][part], run_dir / "training" / f"{name}_{part}.parquet")
+    if result.get("stack"):
+        atomic_copy(result["stack"]["paths"]["stack.parquet"], run_dir / "stack.parquet")
+
+
+def _write_report(run_dir: pathlib.Path, notes: list[str]) -> None:
+    try:
+        from pipelines.report import write_exports, write_run_report
+    except ImportError as error:
+        notes.append(f"report not written: the report module is not available ({error})")
+        return
+    for name, writer in (("exports", write_exports), ("report", write_run_report)):
+        try:
+            writer(run_dir)
+        except Exception as error:  # noqa: BLE001 - the science outputs stay valid
+            notes.append(f"{name} not written: {type(error).__name__}: {error}")
+
+
+def _streams(result: dict) -> list[str]:
+    reached_order = ("chronology", "calibration", "reconstruction", "events")
+    streams = []
+    for row in result["cores"]:
+        if row["stage_reached"] in reached_order or row["stage_reached"] == "ingest":
+            last = reached_order.index(row["stage_reached"]) if row["stage_reached"] in reached_order else -1
+            streams += [f"{stage}/{row['core_id']}" for stage in reached_order[:last + 1]]
+    if result.get("stack"):
+        streams.append("stack/all-cores")
+    return streams
+
+
+def execute_run(config_path: str | os.PathLike[str], out_dir: str | os.PathLike[str], *,
+                choice: ExecutorChoice | None = None, cache_dir: str | os.PathLike[str] | None = None,
+                recompute: bool = False, resume: bool = False, progress: Any = None,
+                report: bool = True, plan: RunPlan | None = None) -> RunOutcome:
+    """Run a config into a new run folder; see the module docstring.
+
+    Parameters
+    ----------
+    config_path : path
+        The run config (TOML).
+    out_dir : path
+        The run folder to create (refused when it exists and is not empty, unless ``resume``
+        and it holds an unfinished run).
+    choice : ExecutorChoice
+        Threads (default, 2 workers) or Dask.
+    cache_dir : path
+        The work store (default :func:`default_cache_dir`).
+    recompute : bool
+        Ignore finished work in the cache (it is overwritten by the new results).
+    progress : RunProgress or None
+        Progress observer (see :mod:`pipelines.progress`).
+    report : bool
+        Write the HTML report and exports at the end.
+
+    Raises
+    ------
+    proxies.problems.InputError
+        For problems in the run config (before anything is written).
+    pipelines.runfolder.RunFolderError
+        When the run folder cannot be created or written.
+    """
+    from pipelines.flows.archive import archive_flow, register_observer, unregister_observer
+
+    choice = choice or ExecutorChoice()
+    started_utc = _dt.datetime.now(_dt.timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
+    started = time.perf_counter()
+    plan = plan or build_plan(config_path)
+    inputs = hash_inputs(collect_input_files(plan.config_path, plan.raw, plan.core_folders))
+    run_dir = create_run_folder(out_dir, resume=resume)
+    cache = pathlib.Path(cache_dir).expanduser().resolve() if cache_dir else default_cache_dir(run_dir)
+    runner = task_runner_for(choice, cache / "dask-scratch")
+    observer_id = register_observer(progress) if progress is not None else None
+    try:
+        with prefect_run_settings(choice):
+            result = archive_flow.with_options(task_runner=runner)(
+                plan=plan, run_dir=str(run_dir), cache_dir=str(cache), recompute=recompute,
+                observer_id=observer_id)
+    finally:
+        if observer_id:
+            unregister_observer(observer_id)
+        if progress is not None:
+            progress.close()
+    notes = list(result["notes"])
+    _write_run_tables(run_dir, result)
+    if report:
+        _write_report(run_dir, notes)
+    seconds = time.perf_counter() - started
+    manifest = build_manifest(config_path=plan.config_path, config_text=plan.config_text,
+                              resolved_config=resolved_config(plan), inputs=inputs,
+                              run_seed=plan.run_seed, streams=_streams(result),
+                              executor=choice.describe(), cores=result["cores"], run_dir=run_dir,
+                              started_utc=started_utc, seconds=seconds)
+    manifest["notes"] = notes
+    manifest["cache_dir"] = str(cache)
+    write_manifest(run_dir, manifest)
+    (run_dir / IN_PROGRESS_MARKER).unlink(missing_ok=True)
+    return RunOutcome(run_dir=run_dir, summary=pd.DataFrame(result["cores"]),
+                      timings=pd.DataFrame(result["timings"]), notes=notes, seconds=seconds)

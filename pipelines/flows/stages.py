@@ -1,0 +1,387 @@
+"""Stage runners: the plain-Python bodies of the Prefect tasks.
+
+Each runner builds its cache key (:mod:`pipelines.flows.keys`), returns the finished work-store
+entry when there is one, and otherwise loads its inputs from the store, calls one stage
+function of :mod:`proxies` with ``rng_for(run_seed, stage, core_id)``, writes the stage's
+run-folder tables (deterministic Parquet) and a pickled result for the next stage into a new
+store entry, and returns the entry's small description (paths, warnings, notes, timings).
+Nothing large travels between tasks: only paths and hashes.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import os
+import pathlib
+import threading
+import time
+import warnings
+from typing import Any, Callable
+
+import numpy as np
+import pandas as pd
+
+from pipelines.flows.keys import content_key
+from pipelines.flows.plan import RunPlan
+from pipelines.flows.store import WorkStore, load_object, save_object
+from pipelines.runfolder import atomic_write_parquet, sha256_file
+from proxies.problems import InputError, Problem
+from proxies.seeding import rng_for
+
+__all__ = ["StageSkipped", "run_ingest", "run_training", "run_chronology", "run_calibration",
+           "run_reconstruction", "run_events", "run_stack", "pin_blas_threads", "member_columns"]
+
+
+class StageSkipped(Exception):
+    """A stage cannot run for this core and is skipped (with the reason as a note)."""
+
+
+# --- process set-up ------------------------------------------------------------------------
+
+_SETUP_LOCK = threading.Lock()
+_SETUP_DONE = False
+_LOCAL = threading.local()
+_ORIGINAL_SHOWWARNING = warnings.showwarning
+
+
+def _route_warning(message, category, filename, lineno, file=None, line=None):
+    sink = getattr(_LOCAL, "sink", None)
+    if sink is None:
+        _ORIGINAL_SHOWWARNING(message, category, filename, lineno, file, line)
+    else:
+        sink.append(str(message))
+
+
+def pin_blas_threads() -> None:
+    """Once per process: one BLAS/OpenMP thread (same reductions on every executor, see
+    ../shared/PREFECT.md) and per-thread collection of science warnings."""
+    global _SETUP_DONE
+    with _SETUP_LOCK:
+        if _SETUP_DONE:
+            return
+        from threadpoolctl import threadpool_limits
+
+        threadpool_limits(limits=1)
+        warnings.showwarning = _route_warning
+        warnings.filterwarnings("always", category=UserWarning, module=r"proxies(\..*)?$")
+        _SETUP_DONE = True
+
+
+@contextlib.contextmanager
+def _collect_warnings():
+    """Collect the warnings raised by science code in this thread (thread-safe)."""
+    pin_blas_threads()
+    previous = getattr(_LOCAL, "sink", None)
+    sink: list[str] = []
+    _LOCAL.sink = sink
+    try:
+        yield sink
+    finally:
+        _LOCAL.sink = previous
+
+
+# --- helpers -------------------------------------------------------------------------------
+
+def member_columns(n_members: int) -> list[str]:
+    """Member column names m0000, m0001, ... (run-folder contract)."""
+    return [f"m{m:04d}" for m in range(n_members)]
+
+
+def _table(frame: pd.DataFrame | None) -> pd.DataFrame:
+    if frame is None:
+        return pd.DataFrame()
+    if not isinstance(frame.index, pd.RangeIndex) or frame.index.name is not None:
+        frame = frame.reset_index()
+    return frame
+
+
+def _unique(messages: list[str]) -> list[str]:
+    return list(dict.fromkeys(str(m) for m in messages))
+
+
+def _cached_or_build(store: WorkStore, stage: str, key: str, produce: Callable[[pathlib.Path], dict],
+                     extra: dict, recompute: bool) -> dict:
+    start = time.perf_counter()
+    entry = None if recompute else store.lookup(stage, key)
+    cached = entry is not None
+    if entry is None:
+        entry = store.build(stage, key, produce)
+    entry.update(extra)
+    entry["cached"] = cached
+    entry["seconds"] = round(time.perf_counter() - start, 4)
+    return entry
+
+
+def _folder_digest(folder: str) -> list[tuple[str, str]]:
+    root = pathlib.Path(folder)
+    files = sorted(p for p in root.rglob("*") if p.is_file()
+                   and not any(part.startswith(".") for part in p.relative_to(root).parts))
+    return [(p.relative_to(root).as_posix(), sha256_file(p)) for p in files]
+
+
+# --- ingest --------------------------------------------------------------------------------
+
+def run_ingest(plan: RunPlan, folder: str, store: WorkStore, recompute: bool = False) -> dict:
+    """Read and validate one core folder (:func:`pipelines.ingest.load_core`)."""
+    key = content_key("ingest", plan.fingerprint, _folder_digest(folder))
+
+    def produce(staged: pathlib.Path) -> dict:
+        from pipelines.ingest import load_core
+
+        with _collect_warnings() as caught:
+            loaded = load_core(folder)
+        core, problems = loaded if isinstance(loaded, tuple) else (loaded, [])
+        return {"files": {"result": save_object(staged, core)}, "core_id": core.id,
+                "warnings": _unique(caught + [str(p) for p in problems or []])}
+
+    entry = _cached_or_build(store, "ingest", key, produce, {"folder": folder}, recompute)
+    return entry
+
+
+# --- training sets (fitted once per run, shared) --------------------------------------------
+
+def _training_specs(plan: RunPlan) -> dict[str, Any]:
+    return dict(plan.raw.get("training", {}) or {})
+
+
+def run_training(plan: RunPlan, name: str, store: WorkStore, recompute: bool = False) -> dict:
+    """Fit the transfer function of training set ``name`` once for the whole run."""
+    path, digest = plan.auxiliary["training"][name]
+    spec = _training_specs(plan).get(name)
+    key = content_key("training", plan.fingerprint, name, digest, spec, plan.run_seed)
+
+    def produce(staged: pathlib.Path) -> dict:
+        from pipelines.auxiliary import read_training_set
+        from proxies.calibration import fit_transfer_function
+
+        with _collect_warnings() as caught:
+            training, training_spec = _read_training(read_training_set, plan, name)
+            fitted = fit_transfer_function(training, training_spec, rng_for(plan.run_seed, "calibration", f"training:{name}"))
+        atomic_write_parquet(staged / "cv.parquet", _table(getattr(fitted, "cv", None)))
+        atomic_write_parquet(staged / "performance.parquet", _table(getattr(fitted, "performance", None)))
+        return {"files": {"result": save_object(staged, fitted), "cv": "cv.parquet",
+                          "performance": "performance.parquet"},
+                "warnings": _unique(caught + list(getattr(fitted, "warnings", []) or []))}
+
+    return _cached_or_build(store, "training", key, produce, {"name": name}, recompute)
+
+
+def _read_training(reader, plan: RunPlan, name: str):
+    """Call :func:`pipelines.auxiliary.read_training_set` for one configured set.
+
+    Returns ``(training_set, spec)``; the reader returns either the set alone (then the spec
+    is the raw ``[training.<name>]`` table) or the pair.
+    """
+    got = reader(plan.config, name)
+    if isinstance(got, tuple) and len(got) == 2:
+        return got
+    return got, _training_specs(plan).get(name)
+
+
+# --- chronology ------------------------------------------------------------------------------
+
+_CURVE_CACHE: dict[tuple[str, str], Any] = {}
+_CURVE_LOCK = threading.Lock()
+
+
+def _load_curves(plan: RunPlan) -> dict[str, Any]:
+    from pipelines.curvefiles import read_curve_file
+
+    curves = {}
+    for name, path, digest in plan.curves:
+        with _CURVE_LOCK:
+            curve = _CURVE_CACHE.get((path, digest))
+        if curve is None:
+            curve = _read_curve(read_curve_file, path, name)
+            with _CURVE_LOCK:
+                _CURVE_CACHE[(path, digest)] = curve
+        curves[name] = curve
+    return curves
+
+
+def _read_curve(reader, path: str, name: str):
+    try:
+        return reader(path, name=name)
+    except TypeError:
+        return reader(path)
+
+
+def run_chronology(plan: RunPlan, ingest: dict, store: WorkStore, recompute: bool = False) -> dict:
+    """Calibrate the dates and build the age-depth ensemble of one core."""
+    core_id = ingest["core_id"]
+    key = content_key("chronology", plan.fingerprint, ingest["key"], plan.curve_hashes,
+                      plan.settings_key("chronology"), plan.run_seed, plan.ensemble, core_id)
+
+    def produce(staged: pathlib.Path) -> dict:
+        from proxies.chronology import build_chronology
+
+        core = load_object(ingest)
+        with _collect_warnings() as caught:
+            result = build_chronology(core, _load_curves(plan), plan.settings["chronology"],
+                                      plan.ensemble, rng_for(plan.run_seed, "chronology", core_id))
+        ensemble = np.asarray(result.ensemble, dtype=float)
+        members = pd.DataFrame(ensemble, columns=member_columns(ensemble.shape[1]))
+        members.insert(0, "depth_cm", np.asarray(result.depth_cm, dtype=float))
+        atomic_write_parquet(staged / "chronology.parquet", _table(result.summary))
+        atomic_write_parquet(staged / "age_ensemble.parquet", members)
+        atomic_write_parquet(staged / "dates.parquet", _table(result.dates))
+        return {"files": {"result": save_object(staged, result),
+                          "chronology.parquet": "chronology.parquet",
+                          "age_ensemble.parquet": "age_ensemble.parquet",
+                          "dates.parquet": "dates.parquet"},
+                "warnings": _unique(caught + list(result.warnings or []))}
+
+    return _cached_or_build(store, "chronology", key, produce, {"core_id": core_id}, recompute)
+
+
+# --- calibration -----------------------------------------------------------------------------
+
+def _instrumental(plan: RunPlan) -> dict[str, Any]:
+    if not plan.auxiliary.get("instrumental"):
+        return {}
+    from pipelines.auxiliary import read_instrumental
+
+    return {name: read_instrumental(plan.config, name) for name in sorted(plan.auxiliary["instrumental"])}
+
+
+def run_calibration(plan: RunPlan, ingest: dict, chronology: dict, training: dict[str, dict],
+                    store: WorkStore, recompute: bool = False) -> dict:
+    """Calibrate every proxy of one core (published equations, instrumental overlap,
+    transfer functions), member by member along the age ensemble.
+
+    Raises
+    ------
+    StageSkipped
+        When the config has no ``[calibration]`` section and the defaults cannot calibrate
+        this core (the reason becomes a note in the summary).
+    """
+    core_id = ingest["core_id"]
+    aux = {name: digest for name, (_, digest) in sorted(plan.auxiliary.get("instrumental", {}).items())}
+    key = content_key("calibration", plan.fingerprint, ingest["key"], chronology["key"],
+                      plan.settings_key("calibration"), {n: e["key"] for n, e in sorted(training.items())},
+                      aux, plan.run_seed, plan.ensemble, core_id)
+
+    def produce(staged: pathlib.Path) -> dict:
+        from proxies.calibration import calibrate_core
+
+        core, chron = load_object(ingest), load_object(chronology)
+        transfers = {name: load_object(entry) for name, entry in sorted(training.items())}
+        with _collect_warnings() as caught:
+            try:
+                result = calibrate_core(core, chron, plan.settings["calibration"], transfers,
+                                        _instrumental(plan), plan.ensemble,
+                                        rng_for(plan.run_seed, "calibration", core_id))
+            except InputError as error:
+                if "calibration" in plan.sections:
+                    raise
+                raise StageSkipped(f"calibration skipped (no [calibration] section and the "
+                                   f"defaults do not apply): {error}") from error
+        files = {"result": save_object(staged, result)}
+        for name, frame in (("calibration.parquet", result.skill),
+                            ("calibrated_samples.parquet", result.samples),
+                            ("calibration_diagnostics.parquet", getattr(result, "diagnostics", None))):
+            if frame is not None:
+                atomic_write_parquet(staged / name, _table(frame))
+                files[name] = name
+        notes = [] if result.records else ["no proxy could be calibrated with these settings"]
+        return {"files": files, "n_records": len(result.records), "notes": notes,
+                "warnings": _unique(caught + list(result.warnings or []))}
+
+    return _cached_or_build(store, "calibration", key, produce, {"core_id": core_id}, recompute)
+
+
+# --- reconstruction ---------------------------------------------------------------------------
+
+def run_reconstruction(plan: RunPlan, ingest: dict, chronology: dict, calibration: dict,
+                       store: WorkStore, recompute: bool = False) -> dict:
+    """Put the calibrated ensembles of one core on the time grid (values and anomalies)."""
+    core_id = ingest["core_id"]
+    if not calibration.get("n_records"):
+        raise StageSkipped("reconstruction skipped: no calibrated record")
+    key = content_key("reconstruction", plan.fingerprint, chronology["key"], calibration["key"],
+                      plan.settings_key("reconstruction"), plan.run_seed, core_id)
+
+    def produce(staged: pathlib.Path) -> dict:
+        from proxies.reconstruction import reconstruct_core
+
+        core, chron, cal = load_object(ingest), load_object(chronology), load_object(calibration)
+        with _collect_warnings() as caught:
+            result = reconstruct_core(core, chron, cal, plan.settings["reconstruction"],
+                                      rng_for(plan.run_seed, "reconstruction", core_id))
+        atomic_write_parquet(staged / "reconstruction.parquet", _table(result.table))
+        files = {"result": save_object(staged, result), "reconstruction.parquet": "reconstruction.parquet"}
+        ensemble = getattr(result, "ensemble", None)
+        if ensemble is not None:
+            atomic_write_parquet(staged / "reconstruction_ensemble.parquet", _table(ensemble))
+            files["reconstruction_ensemble.parquet"] = "reconstruction_ensemble.parquet"
+        return {"files": files, "n_series": len(result.series),
+                "warnings": _unique(caught + list(getattr(result, "warnings", []) or []))}
+
+    return _cached_or_build(store, "reconstruction", key, produce, {"core_id": core_id}, recompute)
+
+
+# --- events ------------------------------------------------------------------------------------
+
+def run_events(plan: RunPlan, reconstruction: dict, store: WorkStore, recompute: bool = False) -> dict:
+    """Detect abrupt events (with red-noise significance) in one core's reconstruction."""
+    core_id = reconstruction["core_id"]
+    if not reconstruction.get("n_series"):
+        raise StageSkipped("events skipped: no reconstructed series")
+    key = content_key("events", plan.fingerprint, reconstruction["key"], plan.settings_key("events"),
+                      plan.run_seed, core_id)
+
+    def produce(staged: pathlib.Path) -> dict:
+        from proxies.events import detect_core_events
+
+        rec = load_object(reconstruction)
+        with _collect_warnings() as caught:
+            result = detect_core_events(rec, plan.settings["events"], rng_for(plan.run_seed, "events", core_id))
+        atomic_write_parquet(staged / "events.parquet", _table(result.events))
+        atomic_write_parquet(staged / "event_probability.parquet", _table(result.probability))
+        return {"files": {"result": save_object(staged, result), "events.parquet": "events.parquet",
+                          "event_probability.parquet": "event_probability.parquet"},
+                "warnings": _unique(caught + list(getattr(result, "warnings", []) or []))}
+
+    return _cached_or_build(store, "events", key, produce, {"core_id": core_id}, recompute)
+
+
+# --- regional stack ---------------------------------------------------------------------------
+
+STACK_STREAM = "all-cores"
+
+
+def run_stack(plan: RunPlan, reconstructions: dict[str, dict], store: WorkStore,
+              recompute: bool = False) -> dict:
+    """Regional composite of the reconstructions of all cores (``stack.parquet``)."""
+    usable = {cid: e for cid, e in sorted(reconstructions.items()) if e.get("n_series")}
+    if not usable:
+        raise StageSkipped("stack skipped: no core has a reconstruction")
+    key = content_key("stack", plan.fingerprint, {cid: e["key"] for cid, e in usable.items()},
+                      plan.settings_key("reconstruction"), plan.run_seed)
+
+    def produce(staged: pathlib.Path) -> dict:
+        from proxies.reconstruction import stack_records
+
+        results = {cid: load_object(e) for cid, e in usable.items()}
+        with _collect_warnings() as caught:
+            table = stack_records(results, plan.settings["reconstruction"],
+                                  rng_for(plan.run_seed, "stack", STACK_STREAM))
+        atomic_write_parquet(staged / "stack.parquet", _table(table))
+        return {"files": {"stack.parquet": "stack.parquet"}, "warnings": _unique(caught)}
+
+    return _cached_or_build(store, "stack", key, produce, {"core_id": None}, recompute)
+
+
+def environment_fingerprint() -> dict[str, str]:
+    """BLAS pinning as seen by this process (for the manifest)."""
+    return {name: os.environ.get(name, "") for name in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS",
+                                                         "MKL_NUM_THREADS")}
+
+
+def problem_text(error: BaseException) -> str:
+    """One readable paragraph for a failed stage."""
+    if isinstance(error, InputError):
+        return str(error)
+    if isinstance(error, Problem):  # pragma: no cover - defensive
+        return str(error)
+    return f"{type(error).__name__}: {error}"

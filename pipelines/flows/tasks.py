@@ -1,0 +1,121 @@
+"""Prefect tasks: one per stage of a core, one per training set, one for the regional stack
+and one that publishes a core's folder in the run folder.
+
+Tasks are thin: each calls one runner of :mod:`pipelines.flows.stages`. Caching is done by
+the runners' content-addressed work store (keys = content hashes of inputs, settings and the
+science code), not by Prefect's result store, because the results are files on disk and a
+cache hit must also check that those files still exist; Prefect's own cache is therefore off
+(``NO_CACHE``) and no result is persisted by Prefect.
+
+A failed stage raises :class:`StageFailed` carrying a plain message (picklable, so it crosses
+Dask workers intact); a skipped stage returns ``{"skipped": reason}``.
+"""
+
+from __future__ import annotations
+
+import pathlib
+import time
+from typing import Any, Callable
+
+from prefect import task
+from prefect.cache_policies import NO_CACHE
+
+from pipelines.flows import stages
+from pipelines.flows.plan import RunPlan
+from pipelines.flows.store import WorkStore
+from pipelines.runfolder import atomic_copy, atomic_write_text, publish_folder, staging_folder
+
+__all__ = ["StageFailed", "ingest_task", "training_task", "chronology_task", "calibration_task",
+           "reconstruction_task", "events_task", "stack_task", "outputs_task"]
+
+_OPTIONS: dict[str, Any] = {"cache_policy": NO_CACHE, "persist_result": False, "retries": 0,
+                            "log_prints": False}
+
+
+class StageFailed(RuntimeError):
+    """A stage failed for one core; ``str(error)`` is the message shown in the summary."""
+
+
+def _guarded(runner: Callable[..., dict], *args: Any) -> dict:
+    stages.pin_blas_threads()
+    start = time.perf_counter()
+    try:
+        return runner(*args)
+    except stages.StageSkipped as skipped:
+        return {"skipped": str(skipped), "seconds": round(time.perf_counter() - start, 4)}
+    except Exception as error:  # noqa: BLE001 - any failure is isolated to its core
+        raise StageFailed(stages.problem_text(error)) from None
+
+
+@task(name="ingest", task_run_name="ingest[{label}]", **_OPTIONS)
+def ingest_task(plan: RunPlan, label: str, folder: str, store: WorkStore, recompute: bool = False) -> dict:
+    """Read and validate one core folder."""
+    return _guarded(stages.run_ingest, plan, folder, store, recompute)
+
+
+@task(name="training", task_run_name="training[{label}]", **_OPTIONS)
+def training_task(plan: RunPlan, label: str, store: WorkStore, recompute: bool = False) -> dict:
+    """Fit one training set's transfer function (once per run, shared by the cores)."""
+    return _guarded(stages.run_training, plan, label, store, recompute)
+
+
+@task(name="chronology", task_run_name="chronology[{label}]", **_OPTIONS)
+def chronology_task(plan: RunPlan, label: str, ingest: dict, store: WorkStore, recompute: bool = False) -> dict:
+    """Calibrate the dates and build the age-depth ensemble."""
+    return _guarded(stages.run_chronology, plan, ingest, store, recompute)
+
+
+@task(name="calibration", task_run_name="calibration[{label}]", **_OPTIONS)
+def calibration_task(plan: RunPlan, label: str, ingest: dict, chronology: dict, training: dict,
+                     store: WorkStore, recompute: bool = False) -> dict:
+    """Calibrate the proxies of one core along its age ensemble."""
+    return _guarded(stages.run_calibration, plan, ingest, chronology, training, store, recompute)
+
+
+@task(name="reconstruction", task_run_name="reconstruction[{label}]", **_OPTIONS)
+def reconstruction_task(plan: RunPlan, label: str, ingest: dict, chronology: dict, calibration: dict,
+                        store: WorkStore, recompute: bool = False) -> dict:
+    """Put the calibrated ensembles on the time grid."""
+    return _guarded(stages.run_reconstruction, plan, ingest, chronology, calibration, store, recompute)
+
+
+@task(name="events", task_run_name="events[{label}]", **_OPTIONS)
+def events_task(plan: RunPlan, label: str, reconstruction: dict, store: WorkStore,
+                recompute: bool = False) -> dict:
+    """Detect abrupt events in the reconstruction."""
+    return _guarded(stages.run_events, plan, reconstruction, store, recompute)
+
+
+@task(name="stack", task_run_name="stack[{label}]", **_OPTIONS)
+def stack_task(plan: RunPlan, label: str, reconstructions: dict, store: WorkStore,
+               recompute: bool = False) -> dict:
+    """Regional composite of all reconstructions."""
+    return _guarded(stages.run_stack, plan, reconstructions, store, recompute)
+
+
+def publish_core_folder(run_dir: str, folder_name: str, entries: list[dict], log_text: str) -> dict:
+    """Copy a core's tables from the work store into ``run_dir/<folder_name>/`` and write its
+    log; the folder appears (one rename) only when complete."""
+    start = time.perf_counter()
+    root = pathlib.Path(run_dir)
+    with staging_folder(root, folder_name) as staged:
+        written = []
+        for entry in entries:
+            for name, path in sorted(entry.get("paths", {}).items()):
+                if name.endswith(".parquet"):
+                    atomic_copy(path, staged / name)
+                    written.append(name)
+        atomic_write_text(staged / "log.txt", log_text)
+        staged.chmod(0o755)
+        publish_folder(staged, root / folder_name)
+    return {"files": sorted(written), "seconds": round(time.perf_counter() - start, 4)}
+
+
+@task(name="outputs", task_run_name="outputs[{label}]", **_OPTIONS)
+def outputs_task(run_dir: str, label: str, entries: list[dict], log_text: str) -> dict:
+    """Publish one core's folder in the run folder."""
+    stages.pin_blas_threads()
+    try:
+        return publish_core_folder(run_dir, label, entries, log_text)
+    except Exception as error:  # noqa: BLE001
+        raise StageFailed(stages.problem_text(error)) from None

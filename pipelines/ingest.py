@@ -1,0 +1,150 @@
+"""Core folder -> :class:`proxies.cores.Core`, collecting every problem in one pass.
+
+:func:`inspect_core` reads ``core.toml`` and the tables it names, runs every check of
+:mod:`proxies.cores.validation` and returns the core (or ``None``) with all problems found;
+:func:`load_core` raises :class:`~proxies.problems.InputError` instead. Files are only opened
+for reading: ingest never writes to, renames or touches an input.
+
+Problems name files by the path as given (``<folder>/samples.csv``), so a user can open them.
+"""
+
+from __future__ import annotations
+
+import os
+import re
+import tomllib
+from pathlib import Path
+
+from proxies.cores.model import Core
+from proxies.cores.validation import (
+    CoreSpec,
+    check_core_mapping,
+    check_counts,
+    check_curve_names,
+    check_measurements,
+    check_dates,
+    check_samples,
+)
+from proxies.problems import InputError, Problem
+
+from pipelines.tables import read_table
+
+__all__ = ["inspect_core", "load_core", "read_toml", "CORE_FILE"]
+
+CORE_FILE = "core.toml"
+_TOML_POSITION = re.compile(r"\(at line (\d+), column (\d+)\)")
+
+
+def _display(folder: Path, name: str) -> str:
+    return os.path.join(str(folder), name)
+
+
+def read_toml(path: Path, display_name: str) -> tuple[dict | None, list[Problem]]:
+    """Parse a TOML file; a syntax error becomes a problem with its line number."""
+    try:
+        with open(path, "rb") as handle:
+            return tomllib.load(handle), []
+    except FileNotFoundError:
+        return None, [Problem(display_name, "file not found", "check the path")]
+    except tomllib.TOMLDecodeError as error:
+        text = str(error)
+        match = _TOML_POSITION.search(text)
+        row = int(match.group(1)) if match else None
+        message = _TOML_POSITION.sub("", text).strip()
+        if match:
+            message += f" (column {match.group(2)})"
+        return None, [Problem(display_name, f"invalid TOML: {message}",
+                              "fix the syntax on that line (strings need quotes, one key = value per line)",
+                              row=row)]
+    except UnicodeDecodeError:
+        return None, [Problem(display_name, "not UTF-8 text", "save the file as UTF-8 text")]
+    except OSError as error:
+        return None, [Problem(display_name, f"cannot read the file: {error.strerror}", "check permissions")]
+
+
+def inspect_core(
+    folder: str | Path, *, year: int | None = None, curve_names: set[str] | None = None
+) -> tuple[Core | None, list[Problem]]:
+    """Read and validate one core folder, collecting every problem.
+
+    Parameters
+    ----------
+    folder : str or Path
+        The core folder (holding ``core.toml``).
+    year : int, optional
+        The current year [CE] for the "collected in the future" check (default: today).
+    curve_names : set of str, optional
+        Curve names of the run config's ``[curves]``; when given, every date's ``curve``
+        must be one of them (and radiocarbon dates need at least one curve).
+
+    Returns
+    -------
+    core : Core or None
+        ``None`` when any problem was found.
+    problems : list of Problem
+        In the order found: core.toml first, then samples, dates, counts.
+    """
+    folder_path = Path(folder)
+    if not folder_path.is_dir():
+        return None, [Problem(str(folder), "not a folder", "give the path of a core folder holding core.toml")]
+    toml_name = _display(folder, CORE_FILE)
+    mapping, problems = read_toml(folder_path / CORE_FILE, toml_name)
+    if mapping is None:
+        return None, problems
+    spec, problems = check_core_mapping(mapping, toml_name, year=year)
+    if spec is None:
+        return None, problems
+    tables = {}
+    for role, checker in (("samples", check_samples), ("dates", check_dates), ("counts", check_counts)):
+        if role not in spec.files:
+            continue
+        name = spec.files[role]
+        display = _display(folder, name)
+        path = folder_path / name
+        if not path.is_file():
+            problems.append(Problem(display, f"file not found (named in {CORE_FILE} [files] {role})",
+                                    f"add the file or correct files.{role} in {CORE_FILE}"))
+            continue
+        try:
+            raw = read_table(path, display)
+        except InputError as error:
+            problems.extend(error.problems)
+            continue
+        table, found = checker(raw, display, spec)
+        problems.extend(found)
+        if role == "dates" and table is not None and curve_names is not None:
+            problems.extend(check_curve_names(table, display, curve_names))
+        tables[role] = table
+    if tables.get("samples") is not None and (tables.get("counts") is not None or "counts" not in spec.files):
+        problems.extend(check_measurements(tables["samples"], tables.get("counts"),
+                                           _display(folder, spec.files["samples"])))
+    if problems:
+        return None, problems
+    return _build_core(spec, tables, str(folder)), []
+
+
+def _build_core(spec: CoreSpec, tables: dict, folder: str) -> Core:
+    return Core(
+        id=spec.id,
+        archive=spec.archive,
+        latitude=spec.latitude,
+        longitude=spec.longitude,
+        collected_ce=spec.collected_ce,
+        site=spec.site,
+        top_age_error=spec.top_age_error,
+        samples=tables["samples"],
+        dates=tables["dates"],
+        counts=tables.get("counts"),
+        sections=spec.sections,
+        event_layers=spec.event_layers,
+        hiatuses_cm=spec.hiatuses_cm,
+        folder=folder,
+    )
+
+
+def load_core(folder: str | Path, *, year: int | None = None) -> Core:
+    """Read one core folder; raise :class:`InputError` carrying every problem found."""
+    core, problems = inspect_core(folder, year=year)
+    if problems:
+        raise InputError(problems)
+    return core

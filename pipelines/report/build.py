@@ -1,0 +1,277 @@
+"""Write a run's HTML report and its figures from the files in the run folder.
+
+``write_run_report(run_dir)`` reads the run folder (never the inputs), draws every figure
+the tables allow (PNG and SVG under ``figures/``), and writes ``report.html`` atomically. It
+can be called again on a finished run (``downcore report RUN``) and gives the same bytes.
+"""
+
+from __future__ import annotations
+
+import pathlib
+from typing import Callable
+
+import pandas as pd
+
+from pipelines.report import html as H
+from pipelines.report import style
+from pipelines.report.figures_calibration import (analogue_figure, cv_scatter_figure,
+                                                  cv_statistics, training_sets_of)
+from pipelines.report.figures_chronology import (accumulation_figure, age_depth_figure,
+                                                 outlier_figure)
+from pipelines.report.figures_events import event_figure, event_variables
+from pipelines.report.figures_reconstruction import reconstruction_figure, stack_figure
+from pipelines.report.rundata import (CoreData, RunData, hpd_ranges_of, median_column,
+                                      read_run, reconstruction_series)
+from pipelines.runfolder import atomic_write_text
+
+__all__ = ["write_run_report", "REPORT_NAME"]
+
+REPORT_NAME = "report.html"
+
+
+class _Figures:
+    """Numbers, saves and renders the figures of one report."""
+
+    def __init__(self, run_dir: pathlib.Path):
+        self.run_dir = run_dir
+        self.count = 0
+        self.written: set[str] = set()
+
+    def add(self, make: Callable[[], object], key: str, title: str, caption: str) -> str:
+        fig = make()
+        if fig is None:
+            return ""
+        saved = style.save_figure(fig, self.run_dir, key, title, caption)
+        self.written.update({pathlib.Path(saved.png).name, pathlib.Path(saved.svg).name})
+        self.count += 1
+        return H.figure_html(saved, self.count)
+
+    def remove_stale(self) -> None:
+        folder = self.run_dir / "figures"
+        if not folder.is_dir():
+            return
+        for path in folder.iterdir():
+            if path.suffix in (".png", ".svg") and path.name not in self.written:
+                path.unlink()
+
+
+def _manifest_items(run: RunData) -> list[tuple[str, object]]:
+    m = run.manifest
+    resolved = (m.get("config") or {}).get("resolved") or {}
+    run_cfg = resolved.get("run") or {}
+    seeds = m.get("seeds") or {}
+    versions = m.get("versions") or {}
+    items: list[tuple[str, object]] = [
+        ("run folder", run.folder.name),
+        ("started (UTC)", m.get("started_utc")),
+        ("finished (UTC)", m.get("created_utc")),
+        ("run seed", seeds.get("run_seed", run_cfg.get("seed"))),
+        ("ensemble members", run_cfg.get("ensemble")),
+        ("run config", (m.get("config") or {}).get("path")),
+        ("input files", len(m.get("inputs") or []) or None),
+        ("downcore version", versions.get("downcore")),
+    ]
+    return [(k, v) for k, v in items if v not in (None, "")]
+
+
+def _status_cell(core: CoreData) -> str:
+    if core.ok:
+        return '<span class="status ok">✓ ok</span>'
+    if core.status.lower() in ("failed", "error"):
+        return '<span class="status failed">✗ failed</span>'
+    return f'<span class="status">{H.esc(core.status)}</span>'
+
+
+def _summary_section(run: RunData) -> str:
+    rows = []
+    for core in run.cores:
+        reason = core.reason or ("; ".join(core.warnings[:1]) if not core.ok and core.warnings else "")
+        rows.append(
+            f'<tr><td><a href="#core-{H.anchor(core.core_id)}">{H.esc(core.core_id)}</a></td>'
+            f"<td>{_status_cell(core)}</td><td>{H.esc(core.stage or '–')}</td>"
+            f'<td class="num">{len(core.warnings)}</td>'
+            f'<td class="num">{H.esc(H.fmt(core.seconds))}</td><td>{H.esc(reason or "–")}</td></tr>')
+    n_ok = sum(c.ok for c in run.cores)
+    n_failed = sum(c.status.lower() in ("failed", "error") for c in run.cores)
+    lead = (f"{len(run.cores)} core(s): {n_ok} finished, {n_failed} failed"
+            f"{'' if n_ok + n_failed == len(run.cores) else ', others incomplete'}.")
+    table = ('<table class="data"><thead><tr><th>core</th><th>status</th><th>stage reached</th>'
+             "<th>warnings</th><th>seconds</th><th>reason / first warning</th></tr></thead>"
+             f"<tbody>{''.join(rows)}</tbody></table>")
+    body = H.key_value_html(_manifest_items(run)) + f"<p>{H.esc(lead)}</p>" + table
+    for note in run.notes:
+        body += H.note_html(note, "info")
+    return H.section("summary", "Archive summary", body)
+
+
+def _dates_table(core: CoreData) -> str:
+    dates = core.table("dates")
+    if dates is None or not len(dates):
+        return ""
+    shown = pd.DataFrame({"label": dates["label"], "depth [cm]": dates["depth_cm"]})
+    for column, header in (("kind", "kind"), ("age", "age"), ("error", "± 1σ")):
+        if column in dates.columns:
+            shown[header] = dates[column]
+    median = median_column(dates)
+    if median is not None:
+        shown["calibrated median [cal BP]"] = pd.to_numeric(dates[median], errors="coerce").round()
+    ranges = hpd_ranges_of(dates, "hpd95")
+    if any(ranges):
+        shown["95 % HPD [cal BP]"] = ["; ".join(f"{a:.0f}–{b:.0f}" for a, b in r) or "–" for r in ranges]
+    for column, header in (("outlier_prob", "outlier probability"), ("exclude", "excluded")):
+        if column in dates.columns:
+            shown[header] = dates[column]
+    return "<h4>Dates</h4>" + H.table_html(shown)
+
+
+def _chronology_part(core: CoreData, figs: _Figures) -> str:
+    cid = core.core_id
+    parts = [
+        figs.add(lambda: age_depth_figure(core), f"{cid}_age_depth", "Age-depth model",
+                 "Median age (solid line) with its 68 % and 95 % ranges and a few ensemble "
+                 "members; each date is drawn as its calibrated probability density above its "
+                 "depth (or as its 95 % HPD range when densities were not stored). Hatched "
+                 "dashed dates are more likely outliers than not; dotted dates were excluded."),
+        figs.add(lambda: accumulation_figure(core), f"{cid}_accumulation", "Accumulation rate",
+                 "Years per centimetre between neighbouring depths, over the age ensemble "
+                 "(median and 68 %/95 % ranges); the dashed line is the slope of the median "
+                 "age."),
+        figs.add(lambda: outlier_figure(core), f"{cid}_outliers", "Date outlier probability",
+                 "Posterior probability that each date is an outlier, in depth order."),
+    ]
+    body = "".join(parts)
+    if not body:
+        return H.note_html("No chronology: this core stopped before its age-depth model.")
+    return body + _dates_table(core)
+
+
+def _calibration_part(core: CoreData, run: RunData, figs: _Figures) -> str:
+    cid = core.core_id
+    body = ""
+    skill = core.table("calibration")
+    if skill is not None and len(skill):
+        body += "<h4>Calibration skill</h4>" + H.table_html(skill)
+    for training in training_sets_of(core, run.training):
+        body += figs.add(lambda t=training: cv_scatter_figure(t), f"{cid}_cv_{training.name}",
+                         f"Cross-validation of training set '{training.name}'",
+                         "Cross-validated prediction against the observed value of each "
+                         "modern sample (left; dashed: 1:1) and the residuals (right).")
+        if training.cv is not None:
+            stats = cv_statistics(training.cv)
+            body += H.key_value_html([(k, v) for k, v in stats.items()])
+        if training.performance is not None and len(training.performance):
+            body += H.table_html(training.performance)
+    body += figs.add(lambda: analogue_figure(core), f"{cid}_analogues",
+                     "Analogue quality through time",
+                     "Diagnostics of each fossil sample against the training set, at the "
+                     "sample's median age; horizontal lines are the thresholds written by the "
+                     "calibration stage.")
+    if not body:
+        return H.note_html("No calibration results for this core.")
+    return body
+
+
+def _reconstruction_part(core: CoreData, figs: _Figures) -> str:
+    body = ""
+    for series in reconstruction_series(core.table("reconstruction")):
+        key = f"{core.core_id}_reconstruction_{series.variable}" + (
+            f"_{series.proxy}" if series.proxy else "")
+        body += figs.add(lambda s=series: reconstruction_figure(core, s), key,
+                         f"Reconstruction: {series.label}",
+                         "Top: median and 68 %/95 % ranges on the time grid with the calibrated "
+                         "samples at their median ages. Middle: anomalies against the reference "
+                         "window (dotted span), dark above and hatched light below it. Bottom: "
+                         "samples behind each grid point.")
+    return body or H.note_html("No reconstruction for this core.")
+
+
+def _events_part(core: CoreData, figs: _Figures) -> str:
+    body = ""
+    for variable in event_variables(core):
+        body += figs.add(lambda v=variable: event_figure(core, v),
+                         f"{core.core_id}_events_{variable}", f"Events in {variable}",
+                         "Top: share of ensemble members in which an event is under way at each "
+                         "age. Bottom: each detected event's onset, 95 % range as a bar (solid: "
+                         "significant against red-noise surrogates) and median as a diamond.")
+    events = core.table("events")
+    if events is not None and len(events):
+        body += H.table_html(events)
+    return body or H.note_html("No event detection results for this core.")
+
+
+def _core_section(core: CoreData, run: RunData, figs: _Figures) -> str:
+    head = H.key_value_html([("status", core.status), ("stage reached", core.stage or None),
+                             ("seconds", core.seconds)])
+    if core.reason:
+        head += H.note_html(f"Reason: {core.reason}")
+    if core.warnings:
+        head += "<h4>Warnings</h4>" + H.list_html(core.warnings, "warnings")
+    for note in core.notes:
+        head += H.note_html(note, "info")
+    if not core.tables:
+        return H.section(f"core-{H.anchor(core.core_id)}", f"Core {core.core_id}",
+                         head + H.note_html("No results were written for this core."), "core")
+    body = head
+    body += H.section(f"core-{H.anchor(core.core_id)}-chronology", "Chronology",
+                      _chronology_part(core, figs), level=3)
+    if any(core.table(k) is not None for k in ("calibration", "calibrated_samples",
+                                               "calibration_diagnostics")):
+        body += H.section(f"core-{H.anchor(core.core_id)}-calibration", "Calibration",
+                          _calibration_part(core, run, figs), level=3)
+    if core.table("reconstruction") is not None:
+        body += H.section(f"core-{H.anchor(core.core_id)}-reconstruction", "Reconstruction",
+                          _reconstruction_part(core, figs), level=3)
+    if core.table("events") is not None or core.table("event_probability") is not None:
+        body += H.section(f"core-{H.anchor(core.core_id)}-events", "Events",
+                          _events_part(core, figs), level=3)
+    return H.section(f"core-{H.anchor(core.core_id)}", f"Core {core.core_id}", body, "core")
+
+
+def _stack_section(run: RunData, figs: _Figures) -> str:
+    if run.stack is None or not len(run.stack):
+        return ""
+    units = {}
+    for core in run.cores:
+        for s in reconstruction_series(core.table("reconstruction")):
+            units.setdefault(s.variable, s.units)
+    body = ""
+    for variable in dict.fromkeys(run.stack["variable"].astype(str)):
+        body += figs.add(lambda v=variable: stack_figure(run.stack, v, units.get(v, "")),
+                         f"stack_{variable}", f"Regional composite: {variable}",
+                         "Median and ranges over the ensemble of the composite of all cores "
+                         "that reconstruct this variable; lower panel: records contributing.")
+    return H.section("composite", "Regional composite", body) if body else ""
+
+
+def write_run_report(run_dir: str | pathlib.Path) -> pathlib.Path:
+    """Write ``report.html`` and ``figures/*.png|svg`` for a run folder.
+
+    Parameters
+    ----------
+    run_dir : path-like
+        A run folder (see DEVELOPERS.md, "The run folder"). Missing tables are tolerated:
+        the report says what is absent.
+
+    Returns
+    -------
+    pathlib.Path
+        The report file.
+    """
+    run = read_run(run_dir)
+    figs = _Figures(run.folder)
+    with style.report_style():
+        stack = _stack_section(run, figs)
+        cores = [_core_section(core, run, figs) for core in run.cores]
+    figs.remove_stale()
+    toc = [("summary", "Archive summary")]
+    if stack:
+        toc.append(("composite", "Regional composite"))
+    toc += [(f"core-{H.anchor(c.core_id)}", f"Core {c.core_id}") for c in run.cores]
+    version = (run.manifest.get("versions") or {}).get("downcore", "")
+    title = f"downcore run report: {run.folder.name}"
+    subtitle = (f"{len(run.cores)} core(s); ages in cal BP (years before 1950 CE); "
+                "bands are ensemble quantiles")
+    footer = (f"Written by downcore {version} from the tables of this run folder. "
+              f"{figs.count} figures, also saved as PNG and SVG in figures/.")
+    text = H.page(title, subtitle, toc, _summary_section(run) + stack + "".join(cores), footer)
+    return atomic_write_text(run.folder / REPORT_NAME, text)

@@ -1,0 +1,52 @@
+"""CSV copies of the run's Parquet tables, for spreadsheets and tools without Parquet.
+
+Each ``X.parquet`` of a run folder gets ``X.csv`` beside it: comma-separated, UTF-8, one
+header row, no index, ``\\n`` line ends, floats in their shortest round-trip form, missing
+values as empty cells, list cells joined with ``"; "``. Same table, same bytes.
+"""
+
+from __future__ import annotations
+
+import io
+import pathlib
+
+import numpy as np
+import pandas as pd
+import pyarrow.parquet as pq
+
+from pipelines.runfolder import atomic_write_text
+
+__all__ = ["parquet_tables", "table_csv_text", "write_csv_beside"]
+
+
+def parquet_tables(run_dir: pathlib.Path) -> list[pathlib.Path]:
+    """Every Parquet file of a run folder (hidden and temporary files excluded), sorted."""
+    root = pathlib.Path(run_dir)
+    return sorted(p for p in root.rglob("*.parquet")
+                  if not any(part.startswith(".") for part in p.relative_to(root).parts))
+
+
+def _flatten(value):
+    if isinstance(value, (list, tuple, np.ndarray)):
+        return "; ".join(str(v) for v in value)
+    return value
+
+
+def table_csv_text(table: pd.DataFrame) -> str:
+    """A DataFrame as downcore's CSV text."""
+    table = table.copy()
+    for column in table.columns:
+        if table[column].dtype == object:
+            table[column] = table[column].map(_flatten)
+    buffer = io.StringIO()
+    table.to_csv(buffer, index=False, lineterminator="\n")
+    return buffer.getvalue()
+
+
+def write_csv_beside(run_dir: str | pathlib.Path) -> list[pathlib.Path]:
+    """Write ``X.csv`` beside every ``X.parquet`` of the run folder; return the CSV paths."""
+    written = []
+    for path in parquet_tables(pathlib.Path(run_dir)):
+        text = table_csv_text(pq.read_table(path).to_pandas())
+        written.append(atomic_write_text(path.with_suffix(".csv"), text))
+    return written

@@ -1,0 +1,239 @@
+"""Chronology figures: the age-depth model, the accumulation rate and the date outliers.
+
+Each function takes the tables of one core (as read by :mod:`pipelines.report.rundata`) and
+returns a Matplotlib figure, or ``None`` when the tables it needs are absent.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+from matplotlib.lines import Line2D
+from matplotlib.patches import Patch
+
+from pipelines.report import style
+from pipelines.report.rundata import CoreData, hpd_ranges_of, median_column, member_columns
+
+__all__ = ["age_depth_figure", "accumulation_figure", "outlier_figure", "OUTLIER_LINE",
+           "ensemble_matrix"]
+
+#: outlier probability above which a date is drawn as "more likely an outlier than not"
+OUTLIER_LINE = 0.5
+
+#: ensemble members drawn as thin lines behind the bands
+MEMBERS_DRAWN = 25
+
+
+def ensemble_matrix(table: pd.DataFrame | None) -> np.ndarray | None:
+    """The member columns of an ensemble table as an array of shape (n, M), or None."""
+    if table is None:
+        return None
+    columns = member_columns(table)
+    if not columns:
+        return None
+    return table[columns].to_numpy(dtype=float)
+
+
+def _flag(dates: pd.DataFrame, column: str) -> np.ndarray:
+    if column not in dates.columns:
+        return np.zeros(len(dates), dtype=bool)
+    values = dates[column]
+    if values.dtype == bool:
+        return values.to_numpy()
+    text = values.astype(str).str.strip().str.lower()
+    return text.isin(["true", "1", "yes", "1.0"]).to_numpy()
+
+
+def _outlier_prob(dates: pd.DataFrame) -> np.ndarray:
+    if "outlier_prob" not in dates.columns:
+        return np.full(len(dates), np.nan)
+    return pd.to_numeric(dates["outlier_prob"], errors="coerce").to_numpy(float)
+
+
+def _date_glyph_height(depth: np.ndarray) -> float:
+    span = float(np.nanmax(depth) - np.nanmin(depth)) if depth.size else 1.0
+    return max(span, 1.0) * 0.045
+
+
+def _draw_densities(ax, dates: pd.DataFrame, densities: pd.DataFrame, height: float) -> bool:
+    """Calibrated date densities as bumps above each date's depth; True if any was drawn."""
+    drawn = False
+    outlier = _outlier_prob(dates)
+    excluded = _flag(dates, "exclude")
+    for i, row in enumerate(dates.itertuples(index=False)):
+        part = densities[densities["label"].astype(str) == str(row.label)]
+        if part.empty:
+            continue
+        part = part.sort_values("age_cal_bp")
+        age = part["age_cal_bp"].to_numpy(float)
+        dens = part["density"].to_numpy(float)
+        if not np.isfinite(dens).any() or np.nanmax(dens) <= 0:
+            continue
+        top = row.depth_cm - height * dens / np.nanmax(dens)
+        if np.isfinite(outlier[i]) and outlier[i] >= OUTLIER_LINE:
+            ax.fill_between(age, top, row.depth_cm, facecolor="white", edgecolor=style.CLAY,
+                            hatch="////", linewidth=0.9, linestyle="--", zorder=4)
+        elif excluded[i]:
+            ax.fill_between(age, top, row.depth_cm, facecolor="none", edgecolor=style.INK,
+                            linewidth=0.9, linestyle=":", zorder=4)
+        else:
+            ax.fill_between(age, top, row.depth_cm, facecolor=style.SAND, edgecolor=style.INK,
+                            linewidth=0.6, alpha=0.95, zorder=4)
+        drawn = True
+    return drawn
+
+
+def _draw_hpd_bars(ax, dates: pd.DataFrame) -> bool:
+    """Fallback: 95 % HPD ranges as bars and the calibrated median as a tick."""
+    ranges = hpd_ranges_of(dates, "hpd95")
+    median_col = median_column(dates)
+    outlier = _outlier_prob(dates)
+    excluded = _flag(dates, "exclude")
+    drawn = False
+    for i, row in enumerate(dates.itertuples(index=False)):
+        is_outlier = np.isfinite(outlier[i]) and outlier[i] >= OUTLIER_LINE
+        colour = style.CLAY if is_outlier else style.INK
+        ls = "--" if is_outlier else (":" if excluded[i] else "-")
+        for young, old in ranges[i]:
+            ax.plot([young, old], [row.depth_cm, row.depth_cm], color=colour, linestyle=ls,
+                    linewidth=3.0, solid_capstyle="butt", zorder=4)
+            drawn = True
+        if median_col is not None:
+            value = pd.to_numeric(pd.Series([getattr(row, median_col)]), errors="coerce").iloc[0]
+            if np.isfinite(value):
+                ax.plot([value], [row.depth_cm], marker="D" if is_outlier else "o",
+                        markersize=4, markerfacecolor="white", markeredgecolor=colour, zorder=5)
+                drawn = True
+    return drawn
+
+
+def age_depth_figure(core: CoreData):
+    """Age-depth model: median, 68 % and 95 % bands, a few ensemble paths and the dates.
+
+    Depth runs downwards on the vertical axis and age to the right. Dates are drawn as their
+    calibrated densities (from ``date_densities.parquet``) or, without that file, as their
+    95 % HPD ranges.
+    """
+    chron = core.table("chronology")
+    if chron is None:
+        return None
+    chron = chron.sort_values("depth_cm")
+    depth = chron["depth_cm"].to_numpy(float)
+    fig, ax = style.new_figure(7.2, 4.6)
+    handles: list = []
+    ens_table = core.table("age_ensemble")
+    ens = ensemble_matrix(ens_table)
+    if ens is not None and ens_table is not None:
+        ens_depth = ens_table["depth_cm"].to_numpy(float)
+        order = np.argsort(ens_depth)
+        ens_depth, ens = ens_depth[order], ens[order]
+        step = max(1, ens.shape[1] // MEMBERS_DRAWN)
+        for m in range(0, ens.shape[1], step):
+            ax.plot(ens[:, m], ens_depth, color=style.SLATE, linewidth=0.35, alpha=0.35, zorder=2)
+        q16, q84 = np.nanquantile(ens, [0.16, 0.84], axis=1)
+        ax.fill_betweenx(ens_depth, q16, q84, color=style.BAND_DARK, linewidth=0, zorder=1.5)
+        handles.append(Patch(color=style.BAND_DARK, label="68 % range"))
+        handles.append(Line2D([], [], color=style.SLATE, linewidth=0.6, alpha=0.6,
+                              label="ensemble members (some)"))
+    ax.fill_betweenx(depth, chron["age_q025"], chron["age_q975"], color=style.BAND_LIGHT,
+                     linewidth=0, zorder=1)
+    ax.plot(chron["age_median"], depth, color=style.INK, linewidth=1.4, zorder=3)
+    handles = [Line2D([], [], color=style.INK, linewidth=1.4, label="median age"),
+               Patch(color=style.BAND_LIGHT, label="95 % range")] + handles
+    dates = core.table("dates")
+    if dates is not None and len(dates):
+        densities = core.table("date_densities")
+        height = _date_glyph_height(depth)
+        if densities is not None and _draw_densities(ax, dates, densities, height):
+            handles.append(Patch(facecolor=style.SAND, edgecolor=style.INK,
+                                 label="calibrated date density"))
+        elif _draw_hpd_bars(ax, dates):
+            handles.append(Line2D([], [], color=style.INK, linewidth=3,
+                                  label="date, 95 % HPD range"))
+        if np.any(_outlier_prob(dates) >= OUTLIER_LINE):
+            handles.append(Patch(facecolor="white", edgecolor=style.CLAY, hatch="////",
+                                 linestyle="--", label=f"outlier probability ≥ {OUTLIER_LINE:g}"))
+        if _flag(dates, "exclude").any():
+            handles.append(Patch(facecolor="none", edgecolor=style.INK, linestyle=":",
+                                 label="excluded from the model"))
+    ax.set_ylim(np.nanmax(depth) * 1.02 + 1, np.nanmin(depth) - _date_glyph_height(depth) * 1.3)
+    ax.set_xlabel("age [cal BP]")
+    ax.set_ylabel("depth [cm]")
+    ax.set_title(f"{core.core_id}: age-depth model")
+    ax.legend(handles=handles, loc="lower left", ncol=1)
+    return fig
+
+
+def _rate_ensemble(core: CoreData) -> tuple[np.ndarray, np.ndarray] | None:
+    table = core.table("age_ensemble")
+    ens = ensemble_matrix(table)
+    if ens is None or table is None or ens.shape[0] < 2:
+        return None
+    depth = table["depth_cm"].to_numpy(float)
+    order = np.argsort(depth)
+    depth, ens = depth[order], ens[order]
+    thick = np.diff(depth)
+    keep = thick > 0
+    rate = np.diff(ens, axis=0)[keep] / thick[keep, None]
+    mid = 0.5 * (depth[1:] + depth[:-1])[keep]
+    return mid, rate
+
+
+def accumulation_figure(core: CoreData):
+    """Accumulation rate [yr/cm] against depth: ensemble median with 68 % and 95 % ranges
+    (from ``age_ensemble.parquet``), else the chronology's ``acc_rate_yr_cm``."""
+    chron = core.table("chronology")
+    from_ens = _rate_ensemble(core)
+    if from_ens is None and (chron is None or "acc_rate_yr_cm" not in chron.columns):
+        return None
+    fig, ax = style.new_figure(7.2, 2.8)
+    if from_ens is not None:
+        mid, rate = from_ens
+        q = np.nanquantile(rate, [0.025, 0.16, 0.5, 0.84, 0.975], axis=1)
+        ax.fill_between(mid, q[0], q[4], step="mid", color=style.BAND_LIGHT, linewidth=0,
+                        label="95 % range")
+        ax.fill_between(mid, q[1], q[3], step="mid", color=style.BAND_DARK, linewidth=0,
+                        label="68 % range")
+        ax.step(mid, q[2], where="mid", color=style.INK, label="median of members")
+    if chron is not None and "acc_rate_yr_cm" in chron.columns:
+        chron = chron.sort_values("depth_cm")
+        ax.plot(chron["depth_cm"], chron["acc_rate_yr_cm"], color=style.CLAY, linestyle="--",
+                linewidth=1.0, label="slope of the median age")
+    ax.set_xlabel("depth [cm]")
+    ax.set_ylabel("accumulation [yr/cm]")
+    ax.set_ylim(bottom=0)
+    ax.set_title(f"{core.core_id}: accumulation rate")
+    ax.legend(loc="upper left", ncol=2)
+    return fig
+
+
+def outlier_figure(core: CoreData):
+    """Posterior outlier probability of every date, in depth order."""
+    dates = core.table("dates")
+    if dates is None or "outlier_prob" not in dates.columns or not len(dates):
+        return None
+    dates = dates.sort_values("depth_cm", kind="stable")
+    prob = _outlier_prob(dates)
+    excluded = _flag(dates, "exclude")
+    labels = [f"{lab}  ({d:g} cm){'  excluded' if ex else ''}"
+              for lab, d, ex in zip(dates["label"].astype(str), dates["depth_cm"], excluded)]
+    y = np.arange(len(dates))
+    fig, ax = style.new_figure(7.2, 0.9 + 0.28 * len(dates))
+    high = np.nan_to_num(prob) >= OUTLIER_LINE
+    ax.barh(y[~high], np.nan_to_num(prob[~high]), color=style.MOSS, height=0.6,
+            label=f"below {OUTLIER_LINE:g}")
+    if high.any():
+        ax.barh(y[high], prob[high], facecolor="white", edgecolor=style.CLAY, hatch="////",
+                height=0.6, label=f"{OUTLIER_LINE:g} or more: likely outlier")
+    for yi, p in zip(y, prob):
+        ax.text(min(np.nan_to_num(p) + 0.015, 0.93), yi, "n/a" if not np.isfinite(p) else f"{p:.2f}",
+                va="center", fontsize=7, color=style.INK)
+    ax.axvline(OUTLIER_LINE, color=style.INK, linestyle=":", linewidth=0.8)
+    ax.set_yticks(y, labels)
+    ax.invert_yaxis()
+    ax.set_xlim(0, 1)
+    ax.set_xlabel("posterior outlier probability")
+    ax.grid(axis="y", visible=False)
+    ax.set_title(f"{core.core_id}: date outlier probability")
+    ax.legend(loc="lower right")
+    return fig

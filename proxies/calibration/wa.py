@@ -1,0 +1,146 @@
+"""Weighted averaging (WA) regression and calibration as a scikit-learn estimator."""
+
+from __future__ import annotations
+
+import numpy as np
+from sklearn.base import BaseEstimator, RegressorMixin
+from sklearn.utils.validation import check_is_fitted, validate_data
+
+__all__ = ["WA", "wa_optima", "wa_tolerances", "row_profiles"]
+
+
+def row_profiles(X):
+    """Rows divided by their totals (proportions); rows with a zero total become NaN."""
+    totals = X.sum(axis=1, keepdims=True)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.where(totals > 0, X / np.where(totals > 0, totals, 1.0), np.nan)
+
+
+def wa_optima(X, y):
+    """Taxon optima ``u_k = sum_i x_ik y_i / sum_i x_ik`` (NaN for absent taxa).
+
+    References
+    ----------
+    Birks, H. J. B., Line, J. M., Juggins, S., Stevenson, A. C. & ter Braak, C. J. F. (1990).
+    Diatoms and pH reconstruction. Phil. Trans. R. Soc. B 327, 263-278.
+    doi:10.1098/rstb.1990.0062
+    """
+    totals = X.sum(axis=0)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.where(totals > 0, (X.T @ y) / np.where(totals > 0, totals, 1.0), np.nan)
+
+
+def wa_tolerances(X, y, optima):
+    """Taxon tolerances ``t_k = sqrt(sum_i x_ik (y_i - u_k)^2 / sum_i x_ik)`` (Birks et al. 1990)."""
+    totals = X.sum(axis=0)
+    # sum_i x_ik (y_i - u_k)^2 = X^T y^2 - 2 u X^T y + u^2 totals, written without cancellation
+    squared = np.einsum("ik,ik->k", X, (y[:, None] - np.nan_to_num(optima)[None, :]) ** 2)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.where(totals > 0, np.sqrt(squared / np.where(totals > 0, totals, 1.0)), np.nan)
+
+
+def _linear_fit(x, y):
+    """Ordinary least squares ``y = intercept + slope x``."""
+    slope, intercept = np.polyfit(x, y, 1)
+    return float(intercept), float(slope)
+
+
+class WA(RegressorMixin, BaseEstimator):
+    """Weighted-averaging regression and calibration with deshrinking.
+
+    The initial estimate for a sample is the abundance-weighted mean of the taxon optima,
+    ``x0_j = sum_k y_jk u_k / sum_k y_jk`` (with tolerance weighting
+    ``sum_k y_jk u_k / t_k^2 / sum_k y_jk / t_k^2``). Averaging twice shrinks the range, so the
+    estimates are deshrunk by a linear regression fitted on the training set:
+
+    - ``deshrinking="inverse"`` (default): regress the observed values on ``x0``;
+    - ``deshrinking="classical"``: regress ``x0`` on the observed values and invert.
+
+    Parameters
+    ----------
+    deshrinking : {"inverse", "classical"}
+    tolerance_weighting : bool
+        Weight each taxon by ``1 / t_k^2`` (WA-Tol).
+    min_tolerance : float or None
+        Tolerances below this [target units] are raised to it when ``tolerance_weighting``;
+        default 1 % of the target range (so single-occurrence taxa do not dominate).
+
+    Attributes
+    ----------
+    optima_ : ndarray of shape (n_features,)
+        Taxon optima ``u_k`` [target units] (NaN for taxa absent from the training set).
+    tolerances_ : ndarray of shape (n_features,)
+        Taxon tolerances ``t_k`` [target units].
+    taxon_weights_ : ndarray of shape (n_features,)
+        Weights used for the initial estimates (0 for absent taxa).
+    intercept_, slope_ : float
+        Deshrinking line, final estimate ``= intercept_ + slope_ * x0``.
+    n_features_in_ : int
+
+    References
+    ----------
+    Birks, H. J. B., Line, J. M., Juggins, S., Stevenson, A. C. & ter Braak, C. J. F. (1990).
+    Diatoms and pH reconstruction. Phil. Trans. R. Soc. B 327, 263-278.
+    doi:10.1098/rstb.1990.0062
+    """
+
+    def __init__(self, deshrinking="inverse", tolerance_weighting=False, min_tolerance=None):
+        self.deshrinking = deshrinking
+        self.tolerance_weighting = tolerance_weighting
+        self.min_tolerance = min_tolerance
+
+    def __sklearn_tags__(self):
+        tags = super().__sklearn_tags__()
+        tags.input_tags.positive_only = True
+        return tags
+
+    def fit(self, X, y):
+        """Estimate optima, tolerances and the deshrinking line from a training set."""
+        if self.deshrinking not in ("inverse", "classical"):
+            raise ValueError(f"deshrinking must be 'inverse' or 'classical', got {self.deshrinking!r}")
+        X, y = validate_data(self, X, y, y_numeric=True, dtype=np.float64)
+        if np.any(X < 0):
+            raise ValueError("Negative values in data: abundances must be non-negative")
+        if X.shape[0] < 3:
+            raise ValueError(f"WA needs at least 3 training samples, got n_samples={X.shape[0]}")
+        self.optima_ = wa_optima(X, y)
+        self.tolerances_ = wa_tolerances(X, y, self.optima_)
+        present = np.isfinite(self.optima_)
+        weights = present.astype(float)
+        if self.tolerance_weighting:
+            floor = self.min_tolerance
+            if floor is None:
+                floor = 0.01 * (np.ptp(y) or 1.0)
+            tol = np.maximum(np.nan_to_num(self.tolerances_), floor)
+            weights = np.where(present, 1.0 / tol ** 2, 0.0)
+        self.taxon_weights_ = weights
+        initial = self._initial_estimates(X)
+        ok = np.isfinite(initial)
+        if ok.sum() < 3 or np.ptp(initial[ok]) == 0:
+            raise ValueError("WA initial estimates are constant; the taxa carry no signal")
+        if self.deshrinking == "inverse":
+            self.intercept_, self.slope_ = _linear_fit(initial[ok], y[ok])
+        else:
+            a0, a1 = _linear_fit(y[ok], initial[ok])
+            self.intercept_, self.slope_ = -a0 / a1, 1.0 / a1
+        return self
+
+    def _initial_estimates(self, X):
+        weighted = X * self.taxon_weights_[None, :]
+        totals = weighted.sum(axis=1)
+        optima = np.nan_to_num(self.optima_)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            return np.where(totals > 0, (weighted @ optima) / np.where(totals > 0, totals, 1.0),
+                            np.nan)
+
+    def initial_estimates(self, X):
+        """Weighted averages of the optima before deshrinking, shape (n_samples,)."""
+        check_is_fitted(self)
+        X = validate_data(self, X, reset=False, dtype=np.float64)
+        return self._initial_estimates(X)
+
+    def predict(self, X):
+        """Deshrunk WA estimates, shape (n_samples,); NaN where a sample holds none of the
+        training taxa."""
+        check_is_fitted(self)
+        return self.intercept_ + self.slope_ * self.initial_estimates(X)

@@ -1,0 +1,388 @@
+"""Vectorised calibration of radiocarbon and calendar-type dates, and HPD ranges.
+
+A radiocarbon age R +- sigma calibrates on a curve (mu(theta), sigma_c(theta)) to the
+calendar-age density (uniform calendar prior, common practice)
+
+    p(theta | R) ~ N(R; mu(theta), sigma^2 + sigma_c(theta)^2),
+
+or, with the robust Student-t option of Christen & Perez (2009, their Eq. 4 form),
+
+    p(theta | R) ~ s^-1 (b + (R - mu)^2 / (2 s^2))^-(a + 1/2),  s^2 = sigma^2 + sigma_c^2,
+
+with a = 3, b = 4 by default (their suggested values, from memory). A reservoir offset
+dR +- e (14C yr) is subtracted from R and e is added in quadrature to sigma (common
+practice). Calendar-type dates (U-series, tephra, varve counts, the core top) are normal
+densities N(theta; age, error).
+
+Densities are held on the regular 1-yr (or curve-step) calendar grid of the curve, but
+only over each date's window, so a thousand dates cost a few million evaluations.
+
+References
+----------
+Christen JA, Perez S (2009). A new robust statistical model for radiocarbon data.
+Radiocarbon 51(3), 1047-1059. doi:10.1017/S003382220003410X
+Stuiver M, Polach HA (1977). Radiocarbon 19(3), 355-363. doi:10.1017/S0033822200003672
+"""
+
+from __future__ import annotations
+
+import warnings
+from dataclasses import dataclass
+
+import numpy as np
+
+from proxies.chronology.curves import CalibrationCurve
+
+__all__ = [
+    "CalibratedDates",
+    "CurveRangeError",
+    "calibrate_radiocarbon",
+    "calibrate_calendar",
+    "stack_calibrated",
+    "hpd_ranges",
+]
+
+#: Student-t defaults of Christen & Perez (2009), from memory
+T_SHAPE_A = 3.0
+T_SHAPE_B = 4.0
+
+
+class CurveRangeError(ValueError):
+    """A radiocarbon age lies outside the range a calibration curve can calibrate.
+
+    Attributes
+    ----------
+    index : ndarray of int
+        Positions (in the input arrays) of the offending ages.
+    """
+
+    def __init__(self, message: str, index):
+        super().__init__(message)
+        self.index = np.atleast_1d(np.asarray(index, dtype=int))
+
+
+@dataclass(frozen=True, eq=False)
+class CalibratedDates:
+    """Calendar-age densities of n dates on a shared regular grid, stored row-compressed.
+
+    Date i covers the grid cells ``start[i], start[i] + 1, ...`` (calendar age
+    ``step * index`` [cal BP]); its masses are ``values[offsets[i]:offsets[i + 1]]``
+    (probability mass per cell, each row sums to 1). Rows have their own widths, so a
+    date with a 10,000-yr window costs nothing to the others.
+
+    Attributes
+    ----------
+    step : float
+        Grid step [yr].
+    start : ndarray of int, shape (n,)
+        Grid index of each row's first cell.
+    offsets : ndarray of int, shape (n + 1,)
+        Row boundaries in ``values``.
+    values : ndarray, shape (offsets[-1],)
+        Probability mass per cell.
+    """
+
+    step: float
+    start: np.ndarray
+    offsets: np.ndarray
+    values: np.ndarray
+
+    def __len__(self) -> int:
+        return len(self.start)
+
+    @property
+    def widths(self) -> np.ndarray:
+        return np.diff(self.offsets)
+
+    def _row_col(self):
+        row = np.repeat(np.arange(len(self)), self.widths)
+        return row, np.arange(self.values.size) - self.offsets[row]
+
+    def row(self, i: int) -> tuple[np.ndarray, np.ndarray]:
+        """Calendar ages [cal BP] and masses of date ``i``."""
+        values = self.values[self.offsets[i]:self.offsets[i + 1]]
+        return self.step * (self.start[i] + np.arange(values.size)), values
+
+    def _cum(self):
+        cum = np.cumsum(self.values)
+        base = np.concatenate([[0.0], cum[self.offsets[1:] - 1]])
+        return cum, base
+
+    def quantile(self, q: float) -> np.ndarray:
+        """Quantile ``q`` of each date [cal BP], linear within the cumulative mass."""
+        cum, base = self._cum()
+        n = len(self)
+        k = np.searchsorted(cum, base[:n] + q * (base[1:] - base[:n]), side="left")
+        k = np.clip(k, self.offsets[:-1], self.offsets[1:] - 1)
+        below = np.where(k > 0, cum[np.maximum(k - 1, 0)], 0.0)
+        frac = (base[:n] + q * (base[1:] - base[:n]) - below) / np.maximum(self.values[k], 1e-300)
+        return self.step * (self.start + (k - self.offsets[:-1]) - 0.5 + np.clip(frac, 0, 1))
+
+    def median(self) -> np.ndarray:
+        """Calendar median of each date [cal BP]."""
+        return self.quantile(0.5)
+
+    def mode(self) -> np.ndarray:
+        """Most probable calendar age of each date [cal BP] (grid point)."""
+        row, col = self._row_col()
+        order = np.lexsort((-self.values, row))
+        first = order[self.offsets[:-1]]
+        return self.step * (self.start + col[first])
+
+    def mean(self) -> np.ndarray:
+        """Calendar mean of each date [cal BP]."""
+        row, col = self._row_col()
+        return np.bincount(row, self.values * self.step * (self.start[row] + col), minlength=len(self))
+
+    def hpd(self, level: float = 0.954) -> list[list[tuple[float, float, float]]]:
+        """Highest-posterior-density ranges of each date; see :func:`hpd_ranges`."""
+        return hpd_ranges(self, level)
+
+    def sample(self, size: int, rng: np.random.Generator) -> np.ndarray:
+        """Draw ``size`` calendar ages per date, shape (n, size) [cal BP].
+
+        Inverse-CDF sampling, uniform within the grid cell.
+        """
+        cum, base = self._cum()
+        n = len(self)
+        u = base[:n, None] + rng.random((n, size)) * (base[1:] - base[:n])[:, None]
+        k = np.searchsorted(cum, u, side="right")
+        k = np.clip(k, self.offsets[:-1, None], self.offsets[1:, None] - 1)
+        jitter = rng.random((n, size)) - 0.5
+        return self.step * (self.start[:, None] + (k - self.offsets[:-1, None]) + jitter)
+
+    def on_grid(self, origin: float, step: float, size: int) -> np.ndarray:
+        """Aggregate the densities onto another regular grid (coarser or equal step).
+
+        Cell c of the target grid is centred on ``origin + c * step`` and collects the mass
+        of the fine cells whose centre falls in ``[centre - step/2, centre + step/2)``.
+        Mass outside the target grid is dropped.
+
+        Returns
+        -------
+        ndarray, shape (n, size)
+            Mass per target cell (rows sum to less than 1 where truncated).
+        """
+        row, col = self._row_col()
+        ages = self.step * (self.start[row] + col)
+        cell = np.floor((ages - origin) / step + 0.5).astype(np.int64)
+        keep = (cell >= 0) & (cell < size)
+        out = np.bincount(row[keep] * size + cell[keep], weights=self.values[keep],
+                          minlength=len(self) * size)
+        return out.reshape(len(self), size)
+
+    def take(self, index) -> "CalibratedDates":
+        """The dates at positions ``index`` (in that order)."""
+        index = np.asarray(index, dtype=int)
+        pieces = [self.values[self.offsets[i]:self.offsets[i + 1]] for i in index]
+        offsets = np.concatenate([[0], np.cumsum([p.size for p in pieces])]).astype(int)
+        values = np.concatenate(pieces) if pieces else np.zeros(0)
+        return CalibratedDates(self.step, self.start[index].copy(), offsets, values)
+
+
+def hpd_ranges(dates: CalibratedDates, level: float) -> list[list[tuple[float, float, float]]]:
+    """Highest-posterior-density ranges of gridded densities (common practice).
+
+    The HPD region of a date is the smallest set of grid cells holding at least ``level``
+    of its mass; it is reported as one or more disjoint ranges.
+
+    Parameters
+    ----------
+    dates : CalibratedDates
+    level : float
+        Probability content, e.g. 0.683 or 0.954.
+
+    Returns
+    -------
+    list of list of (young, old, probability)
+        For each date, its ranges ordered by age: first and last grid age [cal BP] of the
+        range and the probability mass inside it.
+    """
+    if not 0 < level < 1:
+        raise ValueError(f"HPD level must be in (0, 1), got {level}")
+    n = len(dates)
+    values, offsets = dates.values, dates.offsets
+    row, col = dates._row_col()
+    # one flat sort: rows stay apart (key in [2 row, 2 row + 1]) and each row's masses come
+    # out in decreasing order; much faster than a lexsort (the key loses ~1e-13 absolute)
+    key = np.sort(2.0 * row + (1.0 - values))
+    ordered = np.clip(1.0 - (key - 2.0 * row), 0.0, None)
+    cum = np.cumsum(ordered)
+    base = np.concatenate([[0.0], cum[offsets[1:] - 1]])
+    total = base[1:] - base[:n]
+    k = np.searchsorted(cum, base[:n] + level * total - 1e-12 * total, side="left")
+    k = np.clip(k, offsets[:-1], offsets[1:] - 1)
+    threshold = ordered[k] - 1e-12
+    inside = (values >= threshold[row]) & (values > 0)
+    # runs of 'inside' within each row
+    prev_inside = np.concatenate([[False], inside[:-1]])
+    prev_inside[offsets[:-1][offsets[:-1] < values.size]] = False
+    next_inside = np.concatenate([inside[1:], [False]])
+    next_inside[offsets[1:][offsets[1:] > 0] - 1] = False
+    begins = np.flatnonzero(inside & ~prev_inside)
+    ends = np.flatnonzero(inside & ~next_inside)
+    cum_values = np.concatenate([[0.0], np.cumsum(values)])
+    prob = cum_values[ends + 1] - cum_values[begins]
+    young = dates.step * (dates.start[row[begins]] + col[begins])
+    old = dates.step * (dates.start[row[ends]] + col[ends])
+    out: list[list[tuple[float, float, float]]] = [[] for _ in range(n)]
+    for r, y, o, p in zip(row[begins].tolist(), young.tolist(), old.tolist(), prob.tolist()):
+        out[r].append((y, o, p))
+    return out
+
+
+def _pack(step: float, first: np.ndarray, rows: list[np.ndarray], order: np.ndarray) -> CalibratedDates:
+    """Row-compress densities computed in ``order`` back to input order, normalised."""
+    n = len(rows)
+    pieces = [None] * n
+    for position, values in zip(order, rows):
+        pieces[position] = values / values.sum()
+    widths = np.array([p.size for p in pieces], dtype=int)
+    offsets = np.concatenate([[0], np.cumsum(widths)]).astype(int)
+    return CalibratedDates(step, np.asarray(first, dtype=int), offsets, np.concatenate(pieces))
+
+
+def _likelihood(residual, total_var, student_t: bool, t_a: float, t_b: float):
+    if student_t:
+        return (t_b + 0.5 * residual**2 / total_var) ** (-(t_a + 0.5)) / np.sqrt(total_var)
+    return np.exp(-0.5 * residual**2 / total_var) / np.sqrt(total_var)
+
+
+def calibrate_radiocarbon(ages, errors, curve: CalibrationCurve, reservoir_offset=0.0,
+                          reservoir_error=0.0, student_t: bool = False, t_a: float = T_SHAPE_A,
+                          t_b: float = T_SHAPE_B, labels=None) -> CalibratedDates:
+    """Calibrate radiocarbon ages on a regular curve, all at once.
+
+    Parameters
+    ----------
+    ages : array_like, shape (n,)
+        Radiocarbon ages R [14C yr BP].
+    errors : array_like, shape (n,)
+        1-sigma errors [14C yr], > 0.
+    curve : CalibrationCurve
+        A curve on a regular grid (see :meth:`CalibrationCurve.on_grid`).
+    reservoir_offset, reservoir_error : array_like or float
+        Reservoir offset dR and its 1-sigma error [14C yr] per date (common practice:
+        R - dR, sigma^2 + e^2).
+    student_t : bool
+        Use the Student-t likelihood of Christen & Perez (2009) instead of the normal.
+    t_a, t_b : float
+        Its parameters a and b.
+    labels : sequence of str, optional
+        Names used in error messages.
+
+    Returns
+    -------
+    CalibratedDates
+
+    Raises
+    ------
+    CurveRangeError
+        If an age (after the reservoir correction) is more than 4 sigma outside the
+        radiocarbon range of the curve.
+    """
+    if not curve.is_regular:
+        raise ValueError(f"curve {curve.name!r} is not on a regular grid; use curve.on_grid(step)")
+    ages = np.atleast_1d(np.asarray(ages, dtype=float))
+    n = ages.size
+    errors = np.broadcast_to(np.asarray(errors, dtype=float), (n,))
+    offset = np.broadcast_to(np.asarray(reservoir_offset, dtype=float), (n,))
+    offset_error = np.broadcast_to(np.asarray(reservoir_error, dtype=float), (n,))
+    if np.any(~np.isfinite(ages)) or np.any(~(errors > 0)) or np.any(offset_error < 0):
+        raise ValueError("radiocarbon ages must be finite with errors > 0 and reservoir errors >= 0")
+    labels = [str(i) for i in range(n)] if labels is None else [str(x) for x in labels]
+    r = ages - offset
+    sigma = np.sqrt(errors**2 + offset_error**2)
+
+    mu, sc = curve.c14_age, curve.c14_sigma
+    lowest, highest = mu.min(), mu.max()
+    outside = (r + 4 * sigma < lowest - 4 * sc.max()) | (r - 4 * sigma > highest)
+    outside |= (r + 4 * sigma < lowest)
+    if np.any(outside):
+        bad = np.flatnonzero(outside)
+        names = ", ".join(f"{labels[i]} ({ages[i]:g}+-{errors[i]:g})" for i in bad[:5])
+        raise CurveRangeError(
+            f"radiocarbon ages outside curve {curve.name!r} (which covers {lowest:g}-{highest:g} 14C yr BP, "
+            f"{curve.cal_range[0]:g}-{curve.cal_range[1]:g} cal BP): {names}", bad)
+
+    k = 25.0 if student_t else 6.0
+    upper_env = np.maximum.accumulate(mu + k * sc)
+    lower_env = np.minimum.accumulate((mu - k * sc)[::-1])[::-1]
+    first = np.searchsorted(upper_env, r - k * sigma, side="left")
+    last = np.searchsorted(lower_env, r + k * sigma, side="right") - 1
+    first = np.clip(first, 0, mu.size - 1)
+    last = np.clip(np.maximum(last, first), 0, mu.size - 1)
+    widths = last - first + 1
+    order = np.argsort(widths, kind="stable")
+    rows = []
+    # dates of similar window width are evaluated together as one padded block
+    for block in np.array_split(order, max(1, n // 64)):
+        if block.size == 0:
+            continue
+        width = int(widths[block].max())
+        idx = first[block, None] + np.arange(width)[None, :]
+        valid = idx <= last[block, None]
+        idx = np.minimum(idx, mu.size - 1)
+        total_var = sigma[block, None] ** 2 + sc[idx] ** 2
+        dens = _likelihood(r[block, None] - mu[idx], total_var, student_t, t_a, t_b)
+        rows.extend(dens[j, : widths[i]] for j, i in enumerate(block))
+    result = _pack(curve.step, int(round(curve.cal_bp[0] / curve.step)) + first, rows, np.concatenate(
+        [blk for blk in np.array_split(order, max(1, n // 64)) if blk.size]))
+    edge_mass = np.where(first == 0, result.values[result.offsets[:-1]], 0.0)
+    edge_mass = np.maximum(edge_mass, np.where(last == mu.size - 1, result.values[result.offsets[1:] - 1], 0.0))
+    if np.any(edge_mass > 1e-4):
+        names = ", ".join(labels[i] for i in np.flatnonzero(edge_mass > 1e-4)[:5])
+        warnings.warn(f"calibrated densities truncated at the end of curve {curve.name!r}: {names}",
+                      stacklevel=2)
+    return result
+
+
+def calibrate_calendar(ages, errors, step: float = 1.0) -> CalibratedDates:
+    """Calendar-type dates as normal densities N(theta; age, error) on a regular grid.
+
+    Parameters
+    ----------
+    ages : array_like, shape (n,)
+        Calendar ages [cal BP] (U-series, tephra, varve counts, core top...).
+    errors : array_like, shape (n,)
+        1-sigma errors [yr], > 0.
+    step : float
+        Grid step [yr].
+    """
+    ages = np.atleast_1d(np.asarray(ages, dtype=float))
+    errors = np.broadcast_to(np.asarray(errors, dtype=float), ages.shape)
+    if np.any(~np.isfinite(ages)) or np.any(~(errors > 0)):
+        raise ValueError("calendar ages must be finite with errors > 0")
+    half = np.maximum(np.ceil(6 * errors / step), 1).astype(int)
+    centre = np.round(ages / step).astype(int)
+    first = centre - half
+    rows = []
+    for i in range(ages.size):
+        grid = step * (first[i] + np.arange(2 * half[i] + 1))
+        rows.append(np.exp(-0.5 * ((grid - ages[i]) / errors[i]) ** 2))
+    return _pack(step, first, rows, np.arange(ages.size))
+
+
+def stack_calibrated(parts: list[tuple[np.ndarray, CalibratedDates]], n: int) -> CalibratedDates:
+    """Combine several :class:`CalibratedDates` (same step) into one of ``n`` rows.
+
+    Parameters
+    ----------
+    parts : list of (positions, CalibratedDates)
+        Each part's rows go to ``positions`` in the result; every position 0..n-1 must be
+        filled exactly once.
+    n : int
+        Number of rows of the result.
+    """
+    steps = {p.step for _, p in parts}
+    if len(steps) != 1:
+        raise ValueError(f"calibrated dates on different grid steps {sorted(steps)}")
+    rows: list = [None] * n
+    start = np.zeros(n, dtype=int)
+    for positions, part in parts:
+        for j, position in enumerate(np.asarray(positions, dtype=int)):
+            rows[position] = part.values[part.offsets[j]:part.offsets[j + 1]]
+            start[position] = part.start[j]
+    if any(r is None for r in rows):
+        raise ValueError("stack_calibrated: some positions were not filled")
+    return _pack(steps.pop(), start, rows, np.arange(n))

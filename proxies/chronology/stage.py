@@ -1,0 +1,408 @@
+"""The chronology stage: calibrate a core's dates and build its age-depth ensemble.
+
+:func:`build_chronology` is the seam the pipeline calls (see DEVELOPERS.md). It is a thin
+adapter from a :class:`proxies.cores.Core` to the array functions of
+:mod:`proxies.chronology.calibrate`, :mod:`~proxies.chronology.accumulation` and
+:mod:`~proxies.chronology.interpolation`.
+"""
+
+from __future__ import annotations
+
+import math
+import warnings
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+from scipy import stats
+
+from proxies.chronology.accumulation import AccumulationProblem, fit_accumulation, place_nodes
+from proxies.chronology.calibrate import (
+    CalibratedDates,
+    CurveRangeError,
+    calibrate_calendar,
+    calibrate_radiocarbon,
+    stack_calibrated,
+)
+from proxies.chronology.curves import CalibrationCurve
+from proxies.chronology.interpolation import fit_interpolation
+from proxies.chronology.settings import ChronologySettings
+from proxies.problems import InputError, Problem
+
+__all__ = ["ChronologyResult", "build_chronology", "calibrate_core_dates", "format_ranges",
+           "mean_rate_from_dates", "CORE_TOP_LABEL"]
+
+#: label of the core-top pseudo-date added when ``core_top`` is on
+CORE_TOP_LABEL = "core top"
+_NICE_STEPS = (1, 2, 5, 10, 20, 50, 100)
+
+
+@dataclass(frozen=True, eq=False)
+class ChronologyResult:
+    """Age-depth ensemble of one core.
+
+    Attributes
+    ----------
+    depth_cm : ndarray, shape (n,)
+        Output depths [cm, composite].
+    ensemble : ndarray, shape (n, M)
+        Age of each member at each output depth [cal BP].
+    summary : pandas.DataFrame
+        ``chronology.parquet``: depth_cm, event_free_depth_cm, age_median, age_q025,
+        age_q975, age_mean, age_sd, acc_rate_yr_cm.
+    dates : pandas.DataFrame
+        ``dates.parquet``: each date's inputs with its calibration and outlier probability.
+    warnings : list of str
+    node_event_free_cm : ndarray, shape (K,)
+        Depths of the model's nodes [cm, event-free] (a hiatus appears twice).
+    node_paths : ndarray, shape (K, M)
+        Ages of the nodes [cal BP].
+    model : str
+        Model used.
+    hyperparameters : pandas.DataFrame
+        Accumulation model: mean_rate_yr_cm, shape, log_evidence, weight per grid point.
+    """
+
+    depth_cm: np.ndarray
+    ensemble: np.ndarray
+    summary: pd.DataFrame
+    dates: pd.DataFrame
+    warnings: list[str]
+    node_event_free_cm: np.ndarray
+    node_paths: np.ndarray
+    model: str
+    depth_scale: object = None
+    hyperparameters: pd.DataFrame = field(default_factory=pd.DataFrame)
+
+    def age_at(self, depth_cm) -> np.ndarray:
+        """Ensemble ages at composite depths [cm], shape (k, M) [cal BP].
+
+        Depths are converted to the event-free scale (a depth inside an event layer gets the
+        age of the layer's top) and the node paths interpolated linearly (extrapolated with
+        the end intervals' slopes beyond the nodes).
+        """
+        depth = np.atleast_1d(np.asarray(depth_cm, dtype=float))
+        free = _event_free(self.depth_scale, depth)
+        return interpolate_nodes(self.node_event_free_cm, self.node_paths, free)
+
+
+def interpolate_nodes(nodes: np.ndarray, paths: np.ndarray, depth: np.ndarray) -> np.ndarray:
+    """Linear interpolation of node paths (K, M) at depths (k,) -> (k, M).
+
+    A depth equal to a hiatus depth takes the age just above the hiatus.
+    """
+    k = np.searchsorted(nodes, depth, side="left") - 1
+    k = np.clip(k, 0, nodes.size - 2)
+    upper, lower = nodes[k], nodes[k + 1]
+    width = lower - upper
+    weight = np.where(width > 0, (depth - upper) / np.where(width > 0, width, 1.0), 1.0)
+    return paths[k] + weight[:, None] * (paths[k + 1] - paths[k])
+
+
+def _event_free(depth_scale, depth: np.ndarray) -> np.ndarray:
+    if depth_scale is None:
+        return np.asarray(depth, dtype=float)
+    return np.asarray(depth_scale.event_free_depth(depth), dtype=float)
+
+
+def _curve_name(cell, settings: ChronologySettings, curves: dict) -> str | None:
+    if cell is not None and not (isinstance(cell, float) and math.isnan(cell)) and str(cell).strip():
+        return str(cell).strip()
+    if settings.default_curve:
+        return settings.default_curve
+    if len(curves) == 1:
+        return next(iter(curves))
+    if "atmosphere" in curves:
+        return "atmosphere"
+    return None
+
+
+def _dates_file(core) -> str:
+    folder = getattr(core, "folder", "") or ""
+    return f"{folder}/dates" if folder else f"dates of core {getattr(core, 'id', '?')}"
+
+
+def calibrate_core_dates(core, curves: dict[str, CalibrationCurve], settings: ChronologySettings):
+    """Calibrate every date of a core (and the core top), grouped by curve.
+
+    Returns
+    -------
+    table : pandas.DataFrame
+        The dates table (core top first when added) with ``curve_used``.
+    calibrated : CalibratedDates
+        One row per table row, on the ``calibration_step_yr`` grid.
+
+    Raises
+    ------
+    proxies.problems.InputError
+        A date names an unknown curve, no curve is available for radiocarbon dates, or an age
+        lies outside its curve; each problem names the dates file, row and column.
+    """
+    table = core.dates.copy().reset_index(drop=True)
+    for column, default in (("thickness_cm", 0.0), ("curve", None), ("reservoir_offset", 0.0),
+                            ("reservoir_error", 0.0), ("exclude", False), ("source_row", np.nan)):
+        if column not in table.columns:
+            table[column] = default
+    if settings.core_top:
+        error = getattr(core, "top_age_error", None) or settings.top_age_error_yr
+        top = {c: None for c in table.columns}
+        top.update(label=CORE_TOP_LABEL, depth_cm=0.0, kind="calendar", age=float(core.top_age_cal_bp),
+                   error=float(error), thickness_cm=0.0, reservoir_offset=0.0, reservoir_error=0.0,
+                   exclude=False, source_row=np.nan)
+        table = pd.concat([pd.DataFrame([top]), table], ignore_index=True)
+    table["reservoir_offset"] = pd.to_numeric(table["reservoir_offset"]).fillna(0.0)
+    table["reservoir_error"] = pd.to_numeric(table["reservoir_error"]).fillna(0.0)
+    table["exclude"] = table["exclude"].fillna(False).astype(bool)
+    kinds = table["kind"].astype(str).str.lower().to_numpy()
+    file = _dates_file(core)
+    problems: list[Problem] = []
+    step = settings.calibration_step_yr
+    used = [None] * len(table)
+    parts = []
+    radiocarbon = np.flatnonzero(kinds == "radiocarbon")
+    groups: dict[str, list[int]] = {}
+    for i in radiocarbon:
+        name = _curve_name(table.at[i, "curve"], settings, curves)
+        row = _row(table, i)
+        if name is None:
+            problems.append(Problem(file, f"date {table.at[i, 'label']!r} needs a calibration curve but none "
+                                          "is given", "add a [curves] entry to the run config, or set "
+                                    "[chronology] default_curve", row=row, column="curve"))
+        elif name not in curves:
+            problems.append(Problem(file, f"curve {name!r} of date {table.at[i, 'label']!r} is not in [curves]",
+                                    f"use one of: {', '.join(sorted(curves)) or '(none)'}", row=row,
+                                    column="curve"))
+        else:
+            groups.setdefault(name, []).append(int(i))
+            used[i] = name
+    for name, rows in groups.items():
+        curve = curves[name].on_grid(step)
+        rows = np.asarray(rows)
+        try:
+            part = calibrate_radiocarbon(
+                table["age"].to_numpy(float)[rows], table["error"].to_numpy(float)[rows], curve,
+                table["reservoir_offset"].to_numpy(float)[rows], table["reservoir_error"].to_numpy(float)[rows],
+                student_t=settings.student_t, t_a=settings.t_a, t_b=settings.t_b,
+                labels=table["label"].astype(str).to_numpy()[rows])
+        except CurveRangeError as error:
+            for j in error.index:
+                i = rows[j]
+                problems.append(Problem(
+                    file, f"radiocarbon age {table.at[i, 'age']:g} of date {table.at[i, 'label']!r} is outside "
+                          f"curve {name!r} ({curve.c14_range()[0]:g}-{curve.c14_range()[1]:g} 14C yr BP)",
+                    "check the age and its reservoir offset, or use a curve that covers it",
+                    row=_row(table, i), column="age"))
+            continue
+        parts.append((rows, part))
+    calendar = np.flatnonzero(kinds == "calendar")
+    if calendar.size:
+        parts.append((calendar, calibrate_calendar(table["age"].to_numpy(float)[calendar],
+                                                   table["error"].to_numpy(float)[calendar], step)))
+    other = np.flatnonzero((kinds != "calendar") & (kinds != "radiocarbon"))
+    for i in other:
+        problems.append(Problem(file, f"unknown date kind {table.at[i, 'kind']!r}", "use radiocarbon or calendar",
+                                row=_row(table, i), column="kind"))
+    if problems:
+        raise InputError(problems)
+    table["curve_used"] = used
+    return table, stack_calibrated(parts, len(table))
+
+
+def _row(table: pd.DataFrame, i: int) -> int | None:
+    value = table.at[i, "source_row"]
+    return None if value is None or (isinstance(value, float) and math.isnan(value)) else int(value)
+
+
+def format_ranges(ranges) -> str:
+    """HPD ranges as text, e.g. ``"5048 to 5201 (62.7%); 5209 to 5310 (32.9%)"`` [cal BP]."""
+    return "; ".join(f"{young:.0f} to {old:.0f} ({100 * p:.1f}%)" for young, old, p in ranges)
+
+
+def mean_rate_from_dates(depth_cm, median_cal_bp) -> float | None:
+    """Data-driven mean accumulation rate [yr/cm]: Theil-Sen slope of date medians on depth.
+
+    The median of pairwise slopes (Sen 1968) resists outlying dates and hiatus jumps better
+    than least squares. Returns ``None`` with fewer than two distinct depths or a slope <= 0.
+
+    References
+    ----------
+    Sen PK (1968). Estimates of the regression coefficient based on Kendall's tau. JASA
+    63(324), 1379-1389. doi:10.1080/01621459.1968.10480934
+    """
+    depth = np.asarray(depth_cm, dtype=float)
+    median = np.asarray(median_cal_bp, dtype=float)
+    if np.unique(depth).size < 2:
+        return None
+    slope = stats.theilslopes(median, depth).slope
+    return float(slope) if np.isfinite(slope) and slope > 0 else None
+
+
+def _nice_step(span: float) -> float:
+    raw = span / 2000.0
+    for step in _NICE_STEPS:
+        if raw <= step:
+            return float(step)
+    return float(math.ceil(raw / 100.0) * 100)
+
+
+def build_chronology(core, curves: dict[str, CalibrationCurve], settings: ChronologySettings,
+                     ensemble: int, rng: np.random.Generator) -> ChronologyResult:
+    """Calibrate a core's dates and build its age-depth ensemble.
+
+    Parameters
+    ----------
+    core : proxies.cores.Core
+        The core (``dates``, ``samples``, ``depth_scale``, ``hiatuses_cm``, ``top_age_cal_bp``,
+        ``top_age_error``).
+    curves : dict of str to CalibrationCurve
+        Curves by their ``[curves]`` name.
+    settings : ChronologySettings
+    ensemble : int
+        Number of members M.
+    rng : numpy.random.Generator
+
+    Returns
+    -------
+    ChronologyResult
+    """
+    if ensemble < 1:
+        raise ValueError(f"ensemble must be >= 1, got {ensemble}")
+    messages: list[str] = []
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        table, calibrated = calibrate_core_dates(core, curves, settings)
+    messages.extend(str(w.message) for w in caught)
+    depth_scale = getattr(core, "depth_scale", None)
+    table["event_free_depth_cm"] = _event_free(depth_scale, table["depth_cm"].to_numpy(float))
+    medians = calibrated.median()
+    use = ~table["exclude"].to_numpy(bool)
+    if not use.any():
+        raise InputError(Problem(_dates_file(core), "every date is excluded; an age model needs at least one",
+                                 "set exclude = false for some dates"))
+    hiatuses = tuple(float(h) for h in _event_free(depth_scale, np.asarray(getattr(core, "hiatuses_cm", ()) or (),
+                                                                             dtype=float)))
+    out_depth = _output_depths(core, table, settings)
+    free_out = _event_free(depth_scale, out_depth)
+    z = table["event_free_depth_cm"].to_numpy(float)
+    centre = settings.mean_rate_yr_cm or mean_rate_from_dates(z[use], medians[use])
+    if centre is None:
+        centre = 10.0
+        messages.append("mean accumulation rate could not be estimated from the dates; 10 yr/cm assumed")
+    top, bottom = float(min(free_out.min(), z.min())), float(max(free_out.max(), z.max()))
+    outlier = np.full(len(table), np.nan)
+    hyper = pd.DataFrame()
+    if settings.model == "accumulation":
+        nodes, paths, outlier_used, hyper = _run_accumulation(
+            table, calibrated, use, z, hiatuses, top, bottom, centre, core, settings, ensemble, rng)
+    else:
+        nodes, paths, outlier_used = _run_interpolation(
+            calibrated, use, z, hiatuses, free_out, centre, settings, ensemble, rng)
+    outlier[use] = outlier_used
+    result_ensemble = interpolate_nodes(nodes, paths, free_out)
+    summary = _summary(out_depth, free_out, result_ensemble)
+    dates = _dates_table(table, calibrated, medians, outlier, interpolate_nodes(nodes, paths, z))
+    for label, p in zip(dates["label"], dates["outlier_prob"]):
+        if np.isfinite(p) and p > 0.5:
+            messages.append(f"date {label!r} is probably an outlier (posterior probability {p:.2f})")
+    return ChronologyResult(out_depth, result_ensemble, summary, dates, messages, nodes, paths,
+                            settings.model, depth_scale, hyper)
+
+
+def _output_depths(core, table: pd.DataFrame, settings: ChronologySettings) -> np.ndarray:
+    deepest = float(table["depth_cm"].max())
+    samples = getattr(core, "samples", None)
+    if samples is not None and len(samples) and "depth_cm" in samples:
+        thickness = samples["thickness_cm"].fillna(0.0) if "thickness_cm" in samples else 0.0
+        deepest = max(deepest, float((samples["depth_cm"] + thickness).max()))
+    top = min(0.0, float(table["depth_cm"].min()))
+    step = settings.output_step_cm
+    depth = np.arange(top, deepest + step * 0.5, step)
+    if depth[-1] < deepest - 1e-9:
+        depth = np.append(depth, deepest)
+    return depth
+
+
+def _run_accumulation(table, calibrated: CalibratedDates, use, z, hiatuses, top, bottom, centre, core,
+                      settings: ChronologySettings, ensemble: int, rng):
+    spacing = max(settings.node_spacing_cm, (bottom - top) / settings.max_nodes)
+    inside = tuple(h for h in hiatuses if top < h < bottom)
+    nodes, gap_after = place_nodes(top, bottom, spacing, z[use], inside)
+    rates = centre * np.asarray(settings.rate_multipliers)
+    used = calibrated.take(np.flatnonzero(use))
+    lows, highs = used.quantile(0.0005), used.quantile(0.9995)
+    z_used = z[use]
+    young = float(lows.min() - max(0.0, z_used.min() - top) * rates.max() * 3 - 100)
+    top_age = getattr(core, "top_age_cal_bp", None)
+    if top_age is not None:
+        error = getattr(core, "top_age_error", None) or settings.top_age_error_yr
+        # a core cannot be younger than its collection year: the grid starts there
+        young = float(min(lows.min(), top_age - 4 * error))
+    old = float(highs.max() + max(0.0, bottom - z_used.max()) * rates.max() * 3
+                + len(inside) * settings.hiatus_gap_yr * 10 + 2 * spacing * rates.max() + 100)
+    step = settings.grid_step_yr or _nice_step(old - young)
+    size = int(math.ceil((old - young) / step)) + 1
+    if size > 20000:
+        step = _nice_step((old - young) * 2000 / 20000)
+        size = int(math.ceil((old - young) / step)) + 1
+    origin = math.floor(young / step) * step
+    mass = used.on_grid(origin, step, size)
+    node_of = np.searchsorted(nodes, z_used - 1e-6, side="left")
+    prior = np.full(z_used.size, settings.outlier_prior)
+    problem = AccumulationProblem(nodes, gap_after, node_of, mass, prior, float(origin), float(step),
+                                  float(settings.node_spacing_cm))
+    mult, shape = np.meshgrid(rates, np.asarray(settings.rate_shapes), indexing="ij")
+    fit = fit_accumulation(problem, mult.ravel(), shape.ravel(), settings.hiatus_gap_yr, ensemble, rng)
+    hyper = pd.DataFrame({"mean_rate_yr_cm": fit.mean_rates, "shape": fit.shapes,
+                          "log_evidence": fit.log_evidence, "weight": fit.weights})
+    return nodes, fit.paths, fit.outlier_posterior, hyper
+
+
+def _run_interpolation(calibrated: CalibratedDates, use, z, hiatuses, free_out, centre,
+                       settings: ChronologySettings, ensemble: int, rng):
+    index = np.flatnonzero(use)
+    index = index[np.argsort(z[index], kind="stable")]
+    chosen = calibrated.take(index)
+    depths = z[index]
+    prior = np.full(index.size, settings.outlier_prior)
+    edges = sorted(h for h in hiatuses)
+    ladder = np.unique(np.concatenate([free_out, depths]))
+    nodes = np.sort(np.concatenate([ladder, [h for h in edges if ladder[0] < h < ladder[-1]]]))
+    # the second copy of a hiatus depth belongs to the section below it
+    query = nodes.copy()
+    for h in edges:
+        copies = np.flatnonzero(nodes == h)
+        if copies.size == 2:
+            query[copies[1]] = h + 1e-9
+    fit = fit_interpolation(depths, lambda size: chosen.sample(size, rng), query, edges, prior, ensemble, rng,
+                            smooth=settings.join == "smooth", fallback_rate=centre)
+    outlier = np.full(z.size, np.nan)
+    outlier[index] = fit.outlier_posterior
+    return nodes, fit.paths, outlier[use]
+
+
+def _summary(depth_cm, free, ensemble) -> pd.DataFrame:
+    q025, median, q975 = np.quantile(ensemble, [0.025, 0.5, 0.975], axis=1)
+    if depth_cm.size > 1:
+        rate = np.median(np.gradient(ensemble, depth_cm, axis=0), axis=1)
+    else:
+        rate = np.full(depth_cm.size, np.nan)
+    return pd.DataFrame({
+        "depth_cm": depth_cm, "event_free_depth_cm": free, "age_median": median, "age_q025": q025,
+        "age_q975": q975, "age_mean": ensemble.mean(axis=1), "age_sd": ensemble.std(axis=1, ddof=1)
+        if ensemble.shape[1] > 1 else np.zeros(depth_cm.size), "acc_rate_yr_cm": rate})
+
+
+def _dates_table(table, calibrated: CalibratedDates, medians, outlier, model_ages) -> pd.DataFrame:
+    out = table.copy()
+    hpd95, hpd68 = calibrated.hpd(0.954), calibrated.hpd(0.683)
+    out["cal_median_bp"] = medians
+    out["cal_mode_bp"] = calibrated.mode()
+    out["cal_mean_bp"] = calibrated.mean()
+    out["hpd95_young_bp"] = [r[0][0] for r in hpd95]
+    out["hpd95_old_bp"] = [r[-1][1] for r in hpd95]
+    out["hpd95_ranges"] = [format_ranges(r) for r in hpd95]
+    out["hpd68_ranges"] = [format_ranges(r) for r in hpd68]
+    out["outlier_prob"] = outlier
+    out["model_age_median_bp"] = np.median(model_ages, axis=1)
+    out["curve"] = out["curve"].astype(object).where(out["curve"].notna(), None)
+    return out

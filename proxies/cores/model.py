@@ -1,0 +1,163 @@
+"""The core data model: one sediment core, its sections, event layers and tables.
+
+A :class:`Core` is what :func:`pipelines.ingest.load_core` returns after validation: tables
+already in cm of composite depth, in file order, each with the 1-based file row of every
+record in a ``source_row`` column (header = row 1).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
+
+import pandas as pd
+from pandas.api.types import is_bool_dtype, is_numeric_dtype
+
+if TYPE_CHECKING:  # pragma: no cover
+    from proxies.cores.depth import DepthScale
+
+__all__ = ["Section", "EventLayer", "Core", "NON_PROXY_COLUMNS", "ERROR_SUFFIX"]
+
+#: sample/count columns that are never proxies or taxa
+NON_PROXY_COLUMNS = frozenset(
+    {"depth_cm", "thickness_cm", "section", "section_depth_cm", "source_row", "label"}
+)
+#: suffix of a proxy's 1-sigma analytical error column (same units as the proxy)
+ERROR_SUFFIX = "_error"
+
+#: year CE that is 0 cal BP
+BP_ZERO_CE = 1950
+
+
+@dataclass(frozen=True)
+class Section:
+    """One drive/section of a core.
+
+    Attributes
+    ----------
+    name : str
+        Section name as used in the tables' ``section`` column.
+    top_cm : float
+        Composite depth of the section top [cm].
+    """
+
+    name: str
+    top_cm: float
+
+
+@dataclass(frozen=True)
+class EventLayer:
+    """An instantaneous deposit (turbidite, tephra, slump, ...), cut out of the age model.
+
+    Attributes
+    ----------
+    top_cm, bottom_cm : float
+        Composite depth of the layer top and bottom [cm], ``top_cm < bottom_cm``.
+    kind : str
+        Free text, e.g. ``"turbidite"``.
+    """
+
+    top_cm: float
+    bottom_cm: float
+    kind: str = "unspecified"
+
+    @property
+    def thickness_cm(self) -> float:
+        """Layer thickness [cm]."""
+        return self.bottom_cm - self.top_cm
+
+
+@dataclass(frozen=True, eq=False)
+class Core:
+    """One validated sediment core.
+
+    Attributes
+    ----------
+    id : str
+        Core identifier (letters, digits, ``-``, ``_``).
+    archive : str
+        ``lake``, ``marine``, ``peat``, ``speleothem`` or ``other``.
+    latitude, longitude : float
+        Site position [decimal degrees].
+    collected_ce : int
+        Year CE the core was taken [yr CE].
+    site : str
+        Free-text site description (may be empty).
+    top_age_error : float or None
+        1-sigma uncertainty of the core-top age [yr], or ``None`` when not given.
+    samples : DataFrame
+        ``depth_cm`` (composite), optional ``thickness_cm``, ``section``,
+        ``section_depth_cm``, one float column per proxy, optional ``<proxy>_error``, and
+        ``source_row``.
+    dates : DataFrame
+        ``label``, ``depth_cm``, ``kind``, ``age``, ``error``, ``thickness_cm``, ``curve``,
+        ``reservoir_offset``, ``reservoir_error``, ``exclude`` (bool), ``source_row`` and any
+        extra text columns of the file.
+    counts : DataFrame or None
+        ``depth_cm``, one float column per taxon, ``source_row``.
+    sections : tuple of Section
+    event_layers : tuple of EventLayer
+        Sorted by depth.
+    hiatuses_cm : tuple of float
+        Composite depths of hiatuses [cm], sorted.
+    folder : str
+        The core folder as given.
+    """
+
+    id: str
+    archive: str
+    latitude: float
+    longitude: float
+    collected_ce: int
+    site: str
+    top_age_error: float | None
+    samples: pd.DataFrame = field(repr=False)
+    dates: pd.DataFrame = field(repr=False)
+    counts: pd.DataFrame | None = field(repr=False)
+    sections: tuple[Section, ...] = ()
+    event_layers: tuple[EventLayer, ...] = ()
+    hiatuses_cm: tuple[float, ...] = ()
+    folder: str = ""
+
+    @property
+    def top_age_cal_bp(self) -> float:
+        """Age of the core top [cal BP]: ``1950 - collected_ce`` (negative after 1950 CE)."""
+        return float(BP_ZERO_CE - self.collected_ce)
+
+    @property
+    def depth_scale(self) -> DepthScale:
+        """The core's :class:`~proxies.cores.depth.DepthScale`."""
+        from proxies.cores.depth import DepthScale
+
+        return DepthScale(self.sections, self.event_layers, self.hiatuses_cm)
+
+    @property
+    def proxy_columns(self) -> tuple[str, ...]:
+        """Numeric sample columns that are proxies, in file order.
+
+        Excludes depth, thickness, section, ``source_row`` and ``*_error`` columns.
+        """
+        return _value_columns(self.samples)
+
+    def error_column(self, proxy: str) -> str | None:
+        """Name of the 1-sigma analytical-error column of ``proxy``, or ``None``."""
+        name = proxy + ERROR_SUFFIX
+        return name if name in self.samples.columns else None
+
+    @property
+    def taxa(self) -> tuple[str, ...]:
+        """Taxon columns of the counts table, in file order (empty without counts)."""
+        if self.counts is None:
+            return ()
+        return _value_columns(self.counts)
+
+
+def _value_columns(table: pd.DataFrame) -> tuple[str, ...]:
+    return tuple(
+        str(name)
+        for name in table.columns
+        if name not in NON_PROXY_COLUMNS
+        and not str(name).endswith(ERROR_SUFFIX)
+        and is_numeric_dtype(table[name])
+        and not is_bool_dtype(table[name])
+    )

@@ -1,0 +1,14 @@
+"""Abrupt-event detection on every ensemble member.
+
+- :mod:`~proxies.events.ramp` -- ramp regression (Mudelsee 2000);
+- :mod:`~proxies.events.changepoints` -- change points in mean and slope (PELT / optimal partitioning);
+- :mod:`~proxies.events.persistence` -- AR(1) persistence of uneven series and surrogates (Mudelsee 2002);
+- :mod:`~proxies.events.candidates` -- shift and excursion candidates of each member;
+- :mod:`~proxies.events.significance` -- red-noise null distribution and p-values;
+- :mod:`~proxies.events.stage` -- :func:`detect_core_events`, the stage function.
+"""
+
+from proxies.events.settings import EventSettings
+from proxies.events.stage import EVENT_COLUMNS, EventResult, detect_core_events, detect_series_events
+
+__all__ = ["EventSettings", "EventResult", "detect_core_events", "detect_series_events", "EVENT_COLUMNS"]

@@ -1,0 +1,114 @@
+"""Settings of the event-detection stage: the ``[events]`` section of the run config."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, fields
+
+from proxies.problems import InputError, Problem
+
+__all__ = ["EventSettings"]
+
+_LIMITS = {
+    # key: (type, lower bound exclusive?, lower, upper, example)
+    "penalty_factor": (float, 0.0, None, "1.0"),
+    "alpha": (float, 0.0, 0.5, "0.05"),
+    "max_excursion_yr": (float, 0.0, None, "1000"),
+    "cluster_gap_yr": (float, 0.0, None, "300"),
+    "min_probability": (float, 0.0, 1.0, "0.05"),
+    "n_surrogates": (int, 19, None, "200"),
+    "ramp_window_points": (int, 3, None, "80"),
+}
+
+
+@dataclass(frozen=True)
+class EventSettings:
+    """How abrupt events are detected on every ensemble member.
+
+    Attributes
+    ----------
+    enabled : bool
+        Run detection at all. Default true.
+    penalty_factor : float
+        Multiplies the BIC penalty ``2 ln T`` of the change-point search; larger finds
+        fewer change points. Default 1.0.
+    detrend : bool
+        Remove each member's least-squares line before the change-point search, so that a
+        slow trend is not cut into steps (the red-noise null then has a linear trend
+        removed as well). Default true.
+    max_excursion_yr : float
+        A departure followed by a return whose middle segment lasts at most this long is
+        one event of kind ``excursion``; other change points are events of kind ``shift``
+        [yr]. Default 1000.
+    alpha : float
+        Significance level against AR(1) red noise. Default 0.05.
+    n_surrogates : int
+        AR(1) surrogate series of the calibrated null distribution. Default 200.
+    cluster_gap_yr : float
+        Member detections whose change times lie closer than this belong to one event [yr].
+        Default 300.
+    min_probability : float
+        Events detected (significantly) in a smaller share of members are not reported.
+        Default 0.05.
+    ramp_window_points : int
+        Largest window (grid points) searched by the ramp fit around a change. Default 80.
+    variables : tuple of str or None
+        Variables to analyse; ``None`` (default) all.
+    """
+
+    enabled: bool = True
+    penalty_factor: float = 1.0
+    detrend: bool = True
+    max_excursion_yr: float = 1000.0
+    alpha: float = 0.05
+    n_surrogates: int = 200
+    cluster_gap_yr: float = 300.0
+    min_probability: float = 0.05
+    ramp_window_points: int = 80
+    variables: tuple[str, ...] | None = None
+
+    @classmethod
+    def from_mapping(cls, mapping: dict | None, where: str = "[events]") -> "EventSettings":
+        """Validate an ``[events]`` TOML section and build the settings.
+
+        Raises
+        ------
+        proxies.problems.InputError
+            Naming every unknown key, wrong type or out-of-range value (``column`` = key).
+        """
+        mapping = dict(mapping or {})
+        known = {f.name for f in fields(cls)}
+        problems: list[Problem] = []
+        values: dict = {}
+        for key, value in mapping.items():
+            if key not in known:
+                problems.append(Problem(where, f"unknown key '{key}'",
+                                        f"use one of: {', '.join(sorted(known))}", column=key))
+                continue
+            if key in ("enabled", "detrend"):
+                if not isinstance(value, bool):
+                    problems.append(Problem(where, f"'{key}' must be true or false, got {value!r}",
+                                            "write true or false", column=key))
+                    continue
+            elif key == "variables":
+                if not (isinstance(value, list) and all(isinstance(v, str) for v in value)):
+                    problems.append(Problem(where, "'variables' must be a list of variable names",
+                                            'e.g. variables = ["temperature"]', column=key))
+                    continue
+                value = tuple(value)
+            else:
+                kind, lower, upper, example = _LIMITS[key]
+                ok_type = (isinstance(value, int) if kind is int else isinstance(value, (int, float)))
+                if isinstance(value, bool) or not ok_type:
+                    problems.append(Problem(where, f"'{key}' must be a{'n integer' if kind is int else ' number'}, "
+                                            f"got {value!r}", f"e.g. {key} = {example}", column=key))
+                    continue
+                value = kind(value)
+                if not value > lower or (upper is not None and value > upper):
+                    bound = f"> {lower}" + (f" and <= {upper}" if upper is not None else "")
+                    problems.append(Problem(where, f"'{key}' = {value} is out of range; it must be {bound}",
+                                            f"e.g. {key} = {example}", column=key))
+                    continue
+            values[key] = value
+        if problems:
+            raise InputError(problems)
+        return cls(**values)

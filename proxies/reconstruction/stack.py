@@ -1,0 +1,149 @@
+"""Regional composite of several cores, member by member.
+
+Each record's member series is expressed relative to the common stack window (departure
+from its window mean, or z-score over the window); the composite member ``m`` is the mean
+over the records that have a value at that time step. Members of different cores are
+independent draws, so pairing member ``m`` of one core with member ``m`` of another is a
+valid joint draw; when ensemble sizes differ, members are drawn with replacement (``rng``).
+"""
+
+from __future__ import annotations
+
+import warnings
+
+import numpy as np
+import pandas as pd
+
+from proxies.reconstruction.quantiles import BAND_LEVELS, band_name, ensemble_bands
+from proxies.reconstruction.settings import ReconstructionSettings
+
+__all__ = ["stack_records", "composite_members", "standardise_over_window"]
+
+
+def standardise_over_window(age_cal_bp: np.ndarray, values: np.ndarray, window: tuple[float, float],
+                            method: str) -> np.ndarray:
+    """Departures (``"anomaly"``) or z-scores (``"zscore"``) of each member over a window.
+
+    Parameters
+    ----------
+    age_cal_bp : ndarray (T,) [cal BP]
+    values : ndarray (T, M)
+    window : (young, old) [cal BP]
+    method : {"anomaly", "zscore"}
+
+    Returns
+    -------
+    ndarray (T, M)
+        NaN for members without at least two values in the window (``zscore``) or one
+        (``anomaly``).
+    """
+    inside = (age_cal_bp >= window[0]) & (age_cal_bp <= window[1])
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        mean = np.nanmean(values[inside], axis=0)
+        out = values - mean[None, :]
+        if method == "zscore":
+            sd = np.nanstd(values[inside], axis=0, ddof=1)
+            sd[~(sd > 0)] = np.nan
+            out = out / sd[None, :]
+        elif method != "anomaly":
+            raise ValueError(f"stack method must be 'anomaly' or 'zscore', got {method!r}")
+    return out
+
+
+def composite_members(aligned: list[np.ndarray]) -> tuple[np.ndarray, np.ndarray]:
+    """Member-by-member mean over records.
+
+    Parameters
+    ----------
+    aligned : list of ndarray (T, M)
+        Records on the same grid and with the same number of members.
+
+    Returns
+    -------
+    composite : ndarray (T, M)
+        Mean over records with a value (NaN where none has).
+    n_records : ndarray (T,)
+        Number of records whose member-median has a value at each step.
+    """
+    cube = np.stack(aligned)  # (R, T, M)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        composite = np.nanmean(cube, axis=0)
+        n_records = np.isfinite(np.nanmedian(cube, axis=2)).sum(axis=0)
+    return composite, n_records
+
+
+def _common_grid(series_list) -> np.ndarray:
+    steps = {round(float(np.diff(s.age_cal_bp)[0]), 9) for s in series_list if s.age_cal_bp.size > 1}
+    if len(steps) > 1:
+        raise ValueError(f"records to stack have different grid steps {sorted(steps)} yr; "
+                         "use one [reconstruction] grid_step_yr for the run")
+    return np.unique(np.concatenate([s.age_cal_bp for s in series_list]))
+
+
+def _on_grid(series, grid, values):
+    out = np.full((grid.size, values.shape[1]), np.nan)
+    out[np.searchsorted(grid, series.age_cal_bp)] = values
+    return out
+
+
+def _overlap(series_list) -> tuple[float, float]:
+    young = max(float(s.age_cal_bp[np.isfinite(np.nanmedian(s.values, axis=1))].min()) for s in series_list)
+    old = min(float(s.age_cal_bp[np.isfinite(np.nanmedian(s.values, axis=1))].max()) for s in series_list)
+    if young > old:
+        raise ValueError("the records to stack do not overlap in time; state a stack window "
+                         "([reconstruction] stack_young_cal_bp / stack_old_cal_bp)")
+    return young, old
+
+
+def stack_records(results: dict, settings: ReconstructionSettings,
+                  rng: np.random.Generator) -> pd.DataFrame:
+    """Regional composite of every variable shared by two or more cores.
+
+    Parameters
+    ----------
+    results : dict[str, ReconstructionResult]
+        Core id -> reconstruction result.
+    settings : ReconstructionSettings
+        ``stack_method``, ``stack_window``, ``min_member_share``.
+    rng : numpy.random.Generator
+        Draws member indices when cores have different ensemble sizes.
+
+    Returns
+    -------
+    DataFrame (``stack.parquet``)
+        ``age_cal_bp, variable, method, value_median, value_q025, value_q160, value_q840,
+        value_q975, n_records, stack_young_cal_bp, stack_old_cal_bp``. Variables found in a
+        single core are composites of one record (``n_records`` <= 1), still reported.
+    """
+    by_variable: dict[str, list] = {}
+    for core_id in sorted(results):
+        for name, s in results[core_id].series.items():
+            by_variable.setdefault(name, []).append(s)
+    frames = []
+    for variable in sorted(by_variable):
+        series_list = by_variable[variable]
+        grid = _common_grid(series_list)
+        window = settings.stack_window or _overlap(series_list)
+        n_members = max(s.values.shape[1] for s in series_list)
+        aligned = []
+        for s in series_list:
+            values = s.values
+            if values.shape[1] != n_members:
+                values = values[:, rng.integers(0, values.shape[1], n_members)]
+            standard = standardise_over_window(s.age_cal_bp, values, window, settings.stack_method)
+            aligned.append(_on_grid(s, grid, standard))
+        composite, n_records = composite_members(aligned)
+        bands = ensemble_bands(composite, settings.min_member_share)
+        frame = {"age_cal_bp": grid, "variable": variable, "method": settings.stack_method}
+        for level in BAND_LEVELS:
+            frame[f"value_{band_name(level)}"] = bands[band_name(level)]
+        frame["n_records"] = n_records.astype(np.int64)
+        frame["stack_young_cal_bp"] = window[0]
+        frame["stack_old_cal_bp"] = window[1]
+        frames.append(pd.DataFrame(frame))
+    if not frames:
+        return pd.DataFrame(columns=["age_cal_bp", "variable", "method", "value_median",
+                                     "value_q025", "value_q975", "n_records"])
+    return pd.concat(frames, ignore_index=True)

@@ -1,0 +1,274 @@
+"""The run report: content of the figures, self-containment of the HTML, determinism and
+tolerance of incomplete runs. Uses the synthetic run folder of ``run_folder_factory``."""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import re
+import xml.etree.ElementTree as ET
+
+import matplotlib.colors as mcolors
+import numpy as np
+import pandas as pd
+import pytest
+from scipy import stats
+
+from pipelines.report import style, write_run_report
+from pipelines.report.figures_calibration import analogue_figure, cv_statistics
+from pipelines.report.figures_chronology import (OUTLIER_LINE, accumulation_figure,
+                                                 age_depth_figure, outlier_figure)
+from pipelines.report.figures_events import event_figure
+from pipelines.report.figures_reconstruction import band_pairs, reconstruction_figure
+from pipelines.report.rundata import (_warning_list, hpd_ranges_of, read_run,
+                                      reconstruction_series)
+from pipelines.runfolder import atomic_write_parquet
+from run_folder_factory import make_run_folder
+
+
+@pytest.fixture(scope="module")
+def run_dir(tmp_path_factory):
+    return make_run_folder(tmp_path_factory.mktemp("run") / "run-a")
+
+
+@pytest.fixture(scope="module")
+def report_text(run_dir):
+    return write_run_report(run_dir).read_text(encoding="utf-8")
+
+
+def _core(run_dir, core_id):
+    return next(c for c in read_run(run_dir).cores if c.core_id == core_id)
+
+
+# --- the page ------------------------------------------------------------------------------
+
+def test_report_has_figures_and_no_outside_reference(report_text):
+    """At least four figures, all inline SVG; no address of another site anywhere in the
+    text (no 'http', no '//'), no src attribute, only in-page anchors and relative links to
+    the figure files."""
+    assert report_text.count('<figure class="plot"') >= 4
+    assert report_text.count("<svg") == report_text.count('<figure class="plot"')
+    lowered = report_text.lower()
+    assert "http" not in lowered and "//" not in report_text
+    assert " src=" not in lowered and "url(" not in re.sub(r"url\(#[^)]+\)", "", lowered)
+    assert "<script" not in lowered and "<link" not in lowered
+    for href in re.findall(r'href="([^"]*)"', report_text):
+        assert href.startswith("#") or re.fullmatch(r"figures/[\w.-]+\.(png|svg)", href), href
+
+
+def test_report_ids_are_unique_and_internal_links_resolve(report_text):
+    """Figure ids are prefixed per figure, so no id repeats on the page; every '#x' link and
+    url(#x) has its target."""
+    ids = re.findall(r'\bid="([^"]+)"', report_text)
+    assert len(ids) == len(set(ids))
+    targets = set(ids)
+    for ref in re.findall(r'(?:href="#|url\(#)([^")]+)', report_text):
+        assert ref in targets, ref
+
+
+def test_summary_lists_every_core_and_the_failure_reason(report_text):
+    for core_id in ("TARN-2", "FJORD-7", "BOG-3", "MIRE-9"):
+        assert f'id="core-{core_id.lower()}"' in report_text
+    assert "must be &gt; 0" in report_text  # the failed core's reason, escaped
+    assert "failed" in report_text and "No results were written for this core." in report_text
+
+
+def test_figures_saved_as_png_and_svg(run_dir, report_text):
+    """Every linked figure exists as a PNG (signature) and a well-formed SVG with a viewBox."""
+    links = re.findall(r'href="(figures/[^"]+)"', report_text)
+    assert links and len(links) % 2 == 0
+    for link in links:
+        path = run_dir / link
+        assert path.is_file(), link
+        if link.endswith(".png"):
+            assert path.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+        else:
+            root = ET.fromstring(path.read_bytes())
+            assert root.tag.endswith("svg") and root.get("viewBox")
+
+
+def test_rerun_is_byte_identical(tmp_path):
+    """Two reports of the same run folder give identical HTML, PNG and SVG bytes."""
+    run = make_run_folder(tmp_path / "run")
+
+    def digest():
+        files = [run / "report.html", *sorted((run / "figures").iterdir())]
+        return {p.name: hashlib.sha256(p.read_bytes()).hexdigest() for p in files}
+
+    write_run_report(run)
+    first = digest()
+    write_run_report(run)
+    assert digest() == first
+
+
+def test_tolerates_missing_and_broken_tables(tmp_path):
+    """A core whose reconstruction table lacks a required column and whose date densities
+    are gone still gets a report: the note names the file and column, dates fall back to
+    HPD bars, and stale figure files are removed."""
+    run = make_run_folder(tmp_path / "run")
+    write_run_report(run)
+    assert (run / "figures" / "TARN-2_reconstruction_sst_mgca_mmol_mol.png").exists()
+    recon = pd.read_parquet(run / "TARN-2" / "reconstruction.parquet")
+    atomic_write_parquet(run / "TARN-2" / "reconstruction.parquet", recon.drop(columns="value_median"))
+    (run / "TARN-2" / "date_densities.parquet").unlink()
+    (run / "stack.parquet").unlink()
+    text = write_run_report(run).read_text(encoding="utf-8")
+    assert "reconstruction.parquet lacks column(s) value_median" in text
+    assert not (run / "figures" / "TARN-2_reconstruction_sst_mgca_mmol_mol.png").exists()
+    assert "date, 95 % HPD range" in (run / "figures" / "TARN-2_age_depth.svg").read_text() or \
+        (run / "figures" / "TARN-2_age_depth.svg").exists()
+    core = _core(run, "TARN-2")
+    fig = age_depth_figure(core)
+    thick = [ln for ln in fig.axes[0].lines if ln.get_linewidth() == 3.0]
+    assert len(thick) == len(core.table("dates"))  # one 95 % HPD bar per date
+
+
+def test_run_folder_without_summary_or_manifest(tmp_path):
+    """Only a core folder with a chronology: the report says what is missing."""
+    run = make_run_folder(tmp_path / "run")
+    (run / "summary.parquet").unlink()
+    (run / "manifest.json").unlink()
+    text = write_run_report(run).read_text(encoding="utf-8")
+    assert "manifest.json is missing" in text
+    assert "not listed in summary.parquet" in text
+    assert text.count('<figure class="plot"') >= 4
+
+
+# --- figure content --------------------------------------------------------------------------
+
+def test_age_depth_figure_draws_the_chronology_and_every_density(run_dir):
+    """The median line is the chronology's age_median; one density glyph per date; depth
+    increases downwards."""
+    core = _core(run_dir, "TARN-2")
+    fig = age_depth_figure(core)
+    ax = fig.axes[0]
+    chron = core.table("chronology")
+    medians = [ln for ln in ax.lines if ln.get_linewidth() == 1.4]
+    assert len(medians) == 1
+    np.testing.assert_array_equal(medians[0].get_xdata(), chron["age_median"].to_numpy())
+    glyphs = [c for c in ax.collections if c.get_zorder() == 4]
+    assert len(glyphs) == len(core.table("dates"))
+    hatched = [c for c in glyphs if c.get_hatch()]
+    assert len(hatched) == int((core.table("dates")["outlier_prob"] >= OUTLIER_LINE).sum())
+    assert ax.get_ylim()[0] > ax.get_ylim()[1]
+
+
+def test_accumulation_rate_is_the_ensemble_median_of_age_differences(run_dir):
+    """Median line = median over members of diff(age)/diff(depth), computed here directly."""
+    core = _core(run_dir, "TARN-2")
+    ens = core.table("age_ensemble")
+    members = ens.filter(regex=r"^m\d+$").to_numpy(float)
+    expected = np.median(np.diff(members, axis=0) / np.diff(ens["depth_cm"].to_numpy())[:, None], axis=1)
+    fig = accumulation_figure(core)
+    line = next(ln for ln in fig.axes[0].lines if ln.get_label() == "median of members")
+    np.testing.assert_allclose(line.get_ydata(), expected, rtol=1e-12)
+
+
+def test_outlier_figure_bars_are_the_probabilities(run_dir):
+    core = _core(run_dir, "TARN-2")
+    fig = outlier_figure(core)
+    bars = sorted(fig.axes[0].patches, key=lambda p: p.get_y())
+    dates = core.table("dates").sort_values("depth_cm")
+    np.testing.assert_allclose([b.get_width() for b in bars], dates["outlier_prob"].to_numpy())
+    assert [bool(b.get_hatch()) for b in bars] == list(dates["outlier_prob"] >= OUTLIER_LINE)
+
+
+def test_cv_statistics_match_scipy():
+    """RMSEP from its definition and r² from scipy.stats.pearsonr (independent)."""
+    rng = np.random.default_rng(3)
+    obs = rng.uniform(0, 20, 60)
+    pred = obs + rng.normal(0, 1.5, 60)
+    got = cv_statistics(pd.DataFrame({"observed": obs, "predicted": pred}))
+    assert got["rmsep"] == pytest.approx(np.sqrt(np.mean((pred - obs) ** 2)), rel=1e-12)
+    assert got["r2"] == pytest.approx(stats.pearsonr(obs, pred)[0] ** 2, rel=1e-12)
+    assert got["mean_bias"] == pytest.approx(np.mean(pred - obs), rel=1e-12)
+
+
+def test_analogue_figure_plots_distances_against_median_age(run_dir):
+    core = _core(run_dir, "TARN-2")
+    fig = analogue_figure(core)
+    ax = fig.axes[0]
+    assert ax.get_ylabel() == "min distance"
+    diag = core.table("calibration_diagnostics")
+    chron = core.table("chronology")
+    expected_age = np.interp(diag["depth_cm"], chron["depth_cm"], chron["age_median"])
+    line = ax.lines[0]
+    order = np.argsort(expected_age)
+    np.testing.assert_allclose(line.get_xdata(), expected_age[order])
+    np.testing.assert_allclose(line.get_ydata(), diag["min_distance"].to_numpy()[order])
+    levels = sorted(ln.get_ydata()[0] for ln in ax.lines[1:])
+    assert levels == [0.2, 0.45]  # the two thresholds of the table
+    assert ax.xaxis_inverted()  # older ages to the left
+
+
+def test_reconstruction_figure_bands_and_warm_cold_split(run_dir):
+    core = _core(run_dir, "TARN-2")
+    series = reconstruction_series(core.table("reconstruction"))[0]
+    assert [lvl for lvl, _, _ in band_pairs(series.rows, "value")] == [0.95, 0.68]
+    fig = reconstruction_figure(core, series)
+    top, anomaly = fig.axes[0], fig.axes[1]
+    np.testing.assert_array_equal(top.lines[0].get_ydata(), series.rows["value_median"].to_numpy())
+    warm = [c for c in anomaly.collections if mcolors.same_color(c.get_facecolor()[0], style.WARM)
+            if len(c.get_facecolor())]
+    assert len(warm) == 1
+    med = series.rows["anomaly_median"].to_numpy()
+    ages = series.rows["age_cal_bp"].to_numpy()
+    verts = np.vstack([p.vertices for p in warm[0].get_paths()])
+    inside = (verts[:, 0] >= ages[med > 0].min() - 50) & (verts[:, 0] <= ages[med > 0].max() + 50)
+    assert inside.all()  # warm fill only where the median anomaly is above zero
+    assert series.reference_window == (0.0, 1000.0)
+
+
+def test_event_figure_one_lane_per_event(run_dir):
+    core = _core(run_dir, "TARN-2")
+    fig = event_figure(core, "sst")
+    lanes = fig.axes[-1]
+    events = core.table("events")
+    bars = sorted(lanes.patches, key=lambda p: p.get_y())
+    assert len(bars) == len(events)
+    for bar, (_, row) in zip(bars, events.iterrows()):
+        assert bar.get_x() == pytest.approx(row["onset_q025"])
+        assert bar.get_x() + bar.get_width() == pytest.approx(row["onset_q975"])
+        assert bool(bar.get_hatch()) == (not row["significant"])
+
+
+def test_palette_survives_greyscale():
+    """Series that a figure tells apart differ in lightness, not only in hue (relative
+    luminance, WCAG 2.x definition)."""
+    def luminance(colour):
+        rgb = np.array(mcolors.to_rgb(colour))
+        lin = np.where(rgb <= 0.04045, rgb / 12.92, ((rgb + 0.055) / 1.055) ** 2.4)
+        return float(lin @ [0.2126, 0.7152, 0.0722])
+
+    assert luminance(style.WARM) < luminance(style.COOL) - 0.3
+    assert luminance(style.BAND_DARK) < luminance(style.BAND_LIGHT) - 0.2
+    assert luminance(style.INK) < luminance(style.BAND_DARK) - 0.3
+    linestyles = [s[1] for s in style.SERIES_STYLES]
+    assert len(set(map(str, linestyles))) == len(linestyles)
+
+
+# --- reading helpers --------------------------------------------------------------------------
+
+@pytest.mark.parametrize("cell, expected", [
+    ("4870-5120; 5150-5200", [(4870, 5120), (5150, 5200)]),
+    ("-50–120", [(-50, 120)]),
+    (json.dumps([[4870, 5120, 0.91], [5150, 5200, 0.04]]), [(4870, 5120), (5150, 5200)]),
+    (None, []),
+])
+def test_hpd_ranges_from_text(cell, expected):
+    dates = pd.DataFrame({"label": ["a"], "depth_cm": [1.0], "hpd95": pd.Series([cell], dtype=object)})
+    assert hpd_ranges_of(dates) == [expected]
+
+
+def test_hpd_ranges_from_column_pair():
+    dates = pd.DataFrame({"label": ["a", "b"], "hpd95_young": [100.0, np.nan],
+                          "hpd95_old": [300.0, 5.0]})
+    assert hpd_ranges_of(dates) == [[(100.0, 300.0)], []]
+
+
+@pytest.mark.parametrize("cell, expected", [
+    (["a", "b"], ["a", "b"]), ("one\ntwo", ["one", "two"]), ('["x"]', ["x"]),
+    (0, []), (3, ["3 warning(s); see log.txt"]), (None, []), (float("nan"), []),
+])
+def test_warning_cells(cell, expected):
+    assert _warning_list(cell) == expected
