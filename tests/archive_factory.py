@@ -21,6 +21,22 @@ import numpy as np
 CURVE_NAME = "atmosphere"  # the [curves] key (file: curves/invented.14c)
 BROKEN_KINDS = ("missing_column", "negative_error", "bad_toml")
 
+#: config sections that take the synthetic cores through every stage (published UK'37
+#: equation of Mueller et al. 1998, as the demo config spells it)
+FULL_CHAIN = """
+[calibration.uk37]
+method = "equation"
+equation = "uk37_mueller1998"
+variable = "sst"
+units = "degC"
+
+[reconstruction]
+grid_step_yr = 100.0
+
+[events]
+n_surrogates = 50
+"""
+
 
 def invented_curve_rows(shift_14c: float = 0.0) -> np.ndarray:
     """Rows (cal BP, 14C age, sigma, Delta14C, sigma) of an invented curve, 0..12000 cal BP,

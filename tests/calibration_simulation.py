@@ -5,8 +5,16 @@ from __future__ import annotations
 import numpy as np
 
 
+def simulate_species(n_taxa, rng, gradient=(0.0, 25.0)):
+    """Optima, tolerances and heights of Gaussian response curves."""
+    lo, hi = gradient
+    return {"optima": rng.uniform(lo - 3, hi + 3, n_taxa),
+            "tolerances": rng.uniform(1.5, 5.0, n_taxa),
+            "heights": rng.lognormal(0.0, 1.0, n_taxa)}
+
+
 def gaussian_response_training(n_samples, n_taxa, rng, count_total=400, noise_sd=0.0,
-                               gradient=(0.0, 25.0)):
+                               gradient=(0.0, 25.0), species=None):
     """Percentages and targets simulated from Gaussian species response curves.
 
     Expected abundance of taxon k at gradient value y is
@@ -22,10 +30,9 @@ def gaussian_response_training(n_samples, n_taxa, rng, count_total=400, noise_sd
     true : ndarray (n_samples,)
     """
     lo, hi = gradient
+    species = species or simulate_species(n_taxa, rng, gradient)
+    optima, tolerances, heights = species["optima"], species["tolerances"], species["heights"]
     true = rng.uniform(lo, hi, n_samples)
-    optima = rng.uniform(lo - 3, hi + 3, n_taxa)
-    tolerances = rng.uniform(1.5, 5.0, n_taxa)
-    heights = rng.lognormal(0.0, 1.0, n_taxa)
     expected = heights * np.exp(-0.5 * ((true[:, None] - optima) / tolerances) ** 2)
     share = expected / expected.sum(axis=1, keepdims=True)
     counts = rng.poisson(count_total * share).astype(float)

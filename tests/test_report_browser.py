@@ -152,26 +152,19 @@ def chromium(tmp_path):
                 pass
 
 
-def test_report_renders_in_headless_chromium(tmp_path, chromium):
-    """Open the report of a synthetic run: >= 4 figures all drawn, no image broken, only
-    in-page anchors and relative figure links, no request leaving file:/data:, no uncaught
-    exception, no console or browser-log error. Saves test-artifacts/report.png."""
-    from pipelines.report import write_run_report
-
-    run = make_run_folder(tmp_path / "run")
-    report = write_run_report(run)
+def _check_in_browser(client: DevTools, report: pathlib.Path, artifact: pathlib.Path) -> dict:
+    """Load ``report`` and assert what a reader needs; save a screenshot to ``artifact``."""
     for domain in ("Page", "Runtime", "Log", "Network"):
-        chromium.call(f"{domain}.enable")
-    chromium.call("Page.navigate", url=report.resolve().as_uri())
-    chromium.wait_for("Page.loadEventFired")
-    chromium.drain(0.5)
-    result = chromium.call("Runtime.evaluate", expression=PAGE_CHECK, returnByValue=True)
+        client.call(f"{domain}.enable")
+    client.call("Page.navigate", url=report.resolve().as_uri())
+    client.wait_for("Page.loadEventFired")
+    client.drain(0.5)
+    result = client.call("Runtime.evaluate", expression=PAGE_CHECK, returnByValue=True)
     state = json.loads(result["result"]["value"])
-    shot = chromium.call("Page.captureScreenshot", format="png")
-    ARTIFACT.parent.mkdir(parents=True, exist_ok=True)
-    ARTIFACT.write_bytes(base64.b64decode(shot["data"]))
-    shutil.copy(ARTIFACT, tmp_path / "report.png")
-    print(f"\nscreenshot: {ARTIFACT}")
+    shot = client.call("Page.captureScreenshot", format="png")
+    artifact.parent.mkdir(parents=True, exist_ok=True)
+    artifact.write_bytes(base64.b64decode(shot["data"]))
+    print(f"\nscreenshot: {artifact}")
 
     assert state["title"].startswith("downcore run report")
     assert state["figures"] >= 4
@@ -180,7 +173,7 @@ def test_report_renders_in_headless_chromium(tmp_path, chromium):
     for ref in state["refs"]:
         assert ref.startswith("#") or ref.startswith("figures/"), ref
     errors = []
-    for event in chromium.events:
+    for event in client.events:
         method, params = event.get("method"), event.get("params", {})
         if method == "Runtime.exceptionThrown":
             errors.append(params)
@@ -194,4 +187,41 @@ def test_report_renders_in_headless_chromium(tmp_path, chromium):
         elif method == "Network.loadingFailed":
             errors.append(params)
     assert not errors, errors
-    assert ARTIFACT.stat().st_size > 10_000
+    assert artifact.stat().st_size > 10_000
+    return state
+
+
+def test_report_renders_in_headless_chromium(tmp_path, chromium):
+    """Open the report of a synthetic run: >= 4 figures all drawn, no image broken, only
+    in-page anchors and relative figure links, no request leaving file:/data:, no uncaught
+    exception, no console or browser-log error. Saves test-artifacts/report.png."""
+    from pipelines.report import write_run_report
+
+    run = make_run_folder(tmp_path / "run")
+    _check_in_browser(chromium, write_run_report(run), ARTIFACT)
+    shutil.copy(ARTIFACT, tmp_path / "report.png")
+
+
+@pytest.mark.slow
+def test_demo_report_renders_in_headless_chromium(tmp_path, chromium, request):
+    """The same checks on the demo run's report (test-artifacts/demo-report.png).
+
+    Uses the run folder named by ``DOWNCORE_DEMO_RUN`` when set (e.g. the one ``.ci/run``
+    made), else runs ``downcore demo`` into a temporary folder."""
+    run = os.environ.get("DOWNCORE_DEMO_RUN")
+    if run and (pathlib.Path(run) / "report.html").is_file():
+        report = pathlib.Path(run) / "report.html"
+    else:
+        from click.testing import CliRunner
+
+        from pipelines.cli import main
+
+        request.getfixturevalue("prefect_harness")
+        out = tmp_path / "demo-run"
+        result = CliRunner().invoke(main, ["demo", "--out", str(out), "--quiet"])
+        assert (out / "report.html").is_file(), result.output
+        report = out / "report.html"
+    state = _check_in_browser(chromium, report, ARTIFACT.with_name("demo-report.png"))
+    text = report.read_text(encoding="utf-8")
+    assert "http" not in text and "//" not in text
+    assert state["figures"] >= 4

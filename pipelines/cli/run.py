@@ -74,12 +74,22 @@ def print_summary(outcome: Any, quiet: bool) -> None:
     console.print(f"results: {outcome.run_dir}", markup=False, highlight=False)
 
 
+def _silence_task_failures() -> None:
+    """A failed core is reported in the summary and its log.txt; Prefect's own traceback of
+    the failed task would only repeat it on the terminal (set PREFECT_LOGGING_LEVEL to see
+    Prefect's logs again). Prefect re-reads its logging config from the environment."""
+    for logger in ("TASK_RUNS", "FLOW_RUNS"):
+        os.environ.setdefault(f"PREFECT_LOGGING_LOGGERS_PREFECT_{logger}_LEVEL", "CRITICAL")
+
+
 def execute(config: pathlib.Path, out: pathlib.Path, *, workers, dask_address, dask_local,
             cache_dir, recompute, quiet, resume: bool = False, report: bool = True) -> Any:
     """Run and print; exit with the documented status on errors."""
     from pipelines.flows.runners import apply_environment_defaults
 
-    apply_environment_defaults()
+    applied = apply_environment_defaults()
+    if "PREFECT_LOGGING_LEVEL" in applied:
+        _silence_task_failures()
     from pipelines.flows.run import execute_run
     from pipelines.progress import RunProgress
     from pipelines.runfolder import RunFolderError

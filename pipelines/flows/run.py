@@ -185,6 +185,8 @@ def execute_run(config_path: str | os.PathLike[str], out_dir: str | os.PathLike[
                               started_utc=started_utc, seconds=seconds)
     manifest["notes"] = notes
     manifest["cache_dir"] = str(cache)
+    manifest["code_fingerprint"] = plan.fingerprint
+    manifest["options"] = {"report": bool(report), "recompute": bool(recompute), "resume": bool(resume)}
     write_manifest(run_dir, manifest)
     (run_dir / IN_PROGRESS_MARKER).unlink(missing_ok=True)
     return RunOutcome(run_dir=run_dir, summary=pd.DataFrame(result["cores"]),

@@ -20,8 +20,8 @@ from pipelines.report.figures_chronology import (accumulation_figure, age_depth_
                                                  outlier_figure)
 from pipelines.report.figures_events import event_figure, event_variables
 from pipelines.report.figures_reconstruction import reconstruction_figure, stack_figure
-from pipelines.report.rundata import (CoreData, RunData, hpd_ranges_of, median_column,
-                                      read_run, reconstruction_series)
+from pipelines.report.rundata import (CoreData, RunData, downcore_version, hpd_ranges_of,
+                                      median_column, read_run, reconstruction_series)
 from pipelines.runfolder import atomic_write_text
 
 __all__ = ["write_run_report", "REPORT_NAME"]
@@ -69,7 +69,7 @@ def _manifest_items(run: RunData) -> list[tuple[str, object]]:
         ("ensemble members", run_cfg.get("ensemble")),
         ("run config", (m.get("config") or {}).get("path")),
         ("input files", len(m.get("inputs") or []) or None),
-        ("downcore version", versions.get("downcore")),
+        ("downcore version", versions.get("downcore") or downcore_version()),
     ]
     return [(k, v) for k, v in items if v not in (None, "")]
 
@@ -180,7 +180,7 @@ def _reconstruction_part(core: CoreData, figs: _Figures) -> str:
                          f"Reconstruction: {series.label}",
                          "Top: median and 68 %/95 % ranges on the time grid with the calibrated "
                          "samples at their median ages. Middle: anomalies against the reference "
-                         "window (dotted span), dark above and hatched light below it. Bottom: "
+                         "window (cross-hatched span), dark above and hatched light below it. Bottom: "
                          "samples behind each grid point.")
     return body or H.note_html("No reconstruction for this core.")
 
@@ -267,7 +267,7 @@ def write_run_report(run_dir: str | pathlib.Path) -> pathlib.Path:
     if stack:
         toc.append(("composite", "Regional composite"))
     toc += [(f"core-{H.anchor(c.core_id)}", f"Core {c.core_id}") for c in run.cores]
-    version = (run.manifest.get("versions") or {}).get("downcore", "")
+    version = (run.manifest.get("versions") or {}).get("downcore") or downcore_version()
     title = f"downcore run report: {run.folder.name}"
     subtitle = (f"{len(run.cores)} core(s); ages in cal BP (years before 1950 CE); "
                 "bands are ensemble quantiles")

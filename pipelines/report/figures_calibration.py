@@ -116,6 +116,12 @@ def diagnostic_columns(diag: pd.DataFrame) -> tuple[list[str], list[str]]:
     return metrics, thresholds
 
 
+def _metric_rank(name: str) -> tuple[int, str]:
+    """Distances first, then missing taxa, then anything else (alphabetical within)."""
+    lowered = name.lower()
+    return (0 if "dist" in lowered else 1 if "missing" in lowered else 2, name)
+
+
 def _pretty(name: str) -> str:
     return name.replace("_", " ")
 
@@ -130,7 +136,9 @@ def analogue_figure(core: CoreData, max_panels: int = 3):
     metrics, thresholds = diagnostic_columns(diag)
     if not metrics:
         return None
-    metrics = sorted(metrics, key=lambda n: (0 if "dist" in n.lower() else 1, n))[:max_panels]
+    varying = [m for m in metrics
+               if pd.to_numeric(diag[m], errors="coerce").dropna().nunique() > 1]
+    metrics = sorted(varying or metrics[:1], key=_metric_rank)[:max_panels]
     if "age_cal_bp" in diag.columns:
         ages = pd.to_numeric(diag["age_cal_bp"], errors="coerce").to_numpy(float)
         xlabel = "age [cal BP]"

@@ -74,6 +74,9 @@ def event_figure(core: CoreData, variable: str):
         ax.fill_between(age, 0, p, color=style.MOSS, alpha=0.55, linewidth=0)
         ax.plot(age, p, color=style.INK, linewidth=0.9)
         ax.set_ylim(0, 1.02)
+        if not has_events and not np.nanmax(p, initial=0.0) > 0:
+            ax.text(0.5, 0.55, "no event found in any ensemble member", transform=ax.transAxes,
+                    ha="center", color=style.INK, fontsize=8.5)
         ax.set_ylabel("event probability")
         ax.set_title(f"{core.core_id}: events in {variable}")
     if has_events:

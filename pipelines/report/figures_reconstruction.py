@@ -89,7 +89,7 @@ def reconstruction_figure(core: CoreData, series: Series):
         ax.errorbar(samples["age"], samples["median"],
                     yerr=None if not np.isfinite(err).any() else np.abs(err),
                     linestyle="none", marker="o", markersize=2.8, markerfacecolor="white",
-                    markeredgecolor=style.CLAY, ecolor=style.CLAY, elinewidth=0.5,
+                    markeredgecolor=style.CLAY, ecolor=(0.64, 0.29, 0.18, 0.35), elinewidth=0.4,
                     markeredgewidth=0.7, zorder=5)
         handles.append(Line2D([], [], linestyle="none", marker="o", markerfacecolor="white",
                               markeredgecolor=style.CLAY, label="calibrated samples (95 %)"))
@@ -104,9 +104,9 @@ def reconstruction_figure(core: CoreData, series: Series):
         ahandles: list = []
         window = series.reference_window
         if window is not None:
-            axa.axvspan(min(window), max(window), facecolor="none", edgecolor=style.SLATE,
-                        hatch="....", linewidth=0, zorder=0)
-            ahandles.append(Patch(facecolor="none", edgecolor=style.SLATE, hatch="....",
+            axa.axvspan(min(window), max(window), facecolor="none", edgecolor=style.INK,
+                        hatch="xx", linewidth=0, alpha=0.45, zorder=5)
+            ahandles.append(Patch(facecolor="none", edgecolor=style.INK, hatch="xx",
                                   label=f"reference {min(window):g}–{max(window):g} cal BP"))
         _bands(axa, age, rows, "anomaly", ahandles)
         axa.fill_between(age, 0, med, where=med > 0, interpolate=True, color=style.WARM,

@@ -32,7 +32,8 @@ import numpy as np
 import pandas as pd
 import xarray as xr
 
-from pipelines.report.rundata import RunData, Series, quantile_columns, reconstruction_series
+from pipelines.report.rundata import (RunData, Series, downcore_version, quantile_columns,
+                                      reconstruction_series)
 from pipelines.runfolder import atomic_write_bytes
 
 __all__ = ["NETCDF_NAME", "build_dataset", "write_netcdf", "cf_units", "standard_name_for",
@@ -70,9 +71,11 @@ def cf_units(units: str) -> str:
 
 def standard_name_for(variable: str, units: str) -> str | None:
     """The CF standard name of a reconstructed variable, when one fits its name and units."""
-    name = _STANDARD_NAMES.get(variable.strip().lower())
-    if name is None:
+    key = variable.strip().lower()
+    matches = [k for k in _STANDARD_NAMES if key == k or key.startswith(k + "_")]
+    if not matches:
         return None
+    name = _STANDARD_NAMES[max(matches, key=len)]
     if name.endswith("temperature") and cf_units(units) not in _TEMPERATURE_UNITS:
         return None
     return name
@@ -127,9 +130,10 @@ def _quantile_block(rows: pd.DataFrame, prefix: str, levels: np.ndarray) -> np.n
 
 
 def _history(run: RunData) -> str:
-    created = run.manifest.get("created_utc") or run.manifest.get("started_utc") or "unknown time"
-    return (f"{created}: downcore run finished; reconstructions.nc written from the run "
-            "folder's reconstruction.parquet and stack.parquet tables")
+    created = run.manifest.get("created_utc") or run.manifest.get("started_utc")
+    when = f"{created}: " if created else ""
+    return (f"{when}downcore run; reconstructions.nc written from the run folder's "
+            "reconstruction.parquet and stack.parquet tables")
 
 
 def build_dataset(run: RunData) -> xr.Dataset | None:
@@ -238,11 +242,11 @@ def build_dataset(run: RunData) -> xr.Dataset | None:
     if core_ids:
         coords["core"] = ("core", np.array(core_ids, dtype=object),
                           {"long_name": "core identifier", "cf_role": "timeseries_id"})
-    versions = run.manifest.get("versions") or {}
+    version = (run.manifest.get("versions") or {}).get("downcore") or downcore_version()
     attrs = {
         "Conventions": "CF-1.8",
         "title": f"downcore reconstructions of run {run.folder.name}",
-        "source": f"downcore {versions.get('downcore', '')}".strip()
+        "source": f"downcore {version}".strip()
                   + ": age-depth ensembles, proxy calibration and reconstruction members",
         "history": _history(run),
         "comment": "Values are quantiles over ensemble members (quantile dimension). Ages are "

@@ -21,6 +21,8 @@ import numpy as np
 import pandas as pd
 import pyarrow.parquet as pq
 
+from pipelines.runfolder import IN_PROGRESS_MARKER
+
 __all__ = [
     "REQUIRED_COLUMNS",
     "CoreData",
@@ -34,6 +36,7 @@ __all__ = [
     "Series",
     "units_of",
     "reconstruction_series",
+    "downcore_version",
 ]
 
 #: columns each per-core table must hold for the report to use it (the run-folder contract)
@@ -156,7 +159,8 @@ def _warning_list(value: Any) -> list[str]:
             return [str(v) for v in json.loads(text)]
         except ValueError:
             pass
-    return [line.strip() for line in text.splitlines() if line.strip()]
+    return [part.strip() for line in text.splitlines() for part in line.split(" | ")
+            if part.strip()]
 
 
 def _first_present(row: pd.Series, names: tuple[str, ...]) -> Any:
@@ -185,7 +189,10 @@ def _core_from_summary(row: pd.Series) -> CoreData:
 def _read_manifest(folder: pathlib.Path, notes: list[str]) -> dict[str, Any]:
     path = folder / "manifest.json"
     if not path.is_file():
-        notes.append("manifest.json is missing (an unfinished run?)")
+        # a run writes its report before its manifest (which hashes the report): only a
+        # folder that is not being written is missing something
+        if not (folder / IN_PROGRESS_MARKER).exists():
+            notes.append("manifest.json is missing (an unfinished run?)")
         return {}
     try:
         data = json.loads(path.read_text(encoding="utf-8"))
@@ -408,3 +415,13 @@ def reconstruction_series(table: pd.DataFrame | None) -> list[Series]:
         rows = rows.sort_values("age_cal_bp", kind="stable").reset_index(drop=True)
         out.append(Series(str(key[0]), proxy or None, units_of(rows), rows))
     return out
+
+
+def downcore_version() -> str:
+    """The installed downcore version (``""`` when it is not installed)."""
+    import importlib.metadata
+
+    try:
+        return importlib.metadata.version("downcore")
+    except importlib.metadata.PackageNotFoundError:
+        return ""

@@ -147,7 +147,11 @@ def save_figure(fig: Figure, run_dir: pathlib.Path, key: str, title: str,
         Shown above and below the figure in the report.
     """
     safe = re.sub(r"[^A-Za-z0-9_.-]+", "_", key)
-    png, svg = _png_bytes(fig), _svg_text(fig)
+    png = _png_bytes(fig)
+    # the layout is settled by the first save; freezing it saves a second constrained-layout
+    # pass (the slowest part of drawing) and keeps the SVG identical in layout to the PNG
+    fig.set_layout_engine("none")
+    svg = _svg_text(fig)
     plt.close(fig)
     atomic_write_bytes(run_dir / "figures" / f"{safe}.png", png)
     atomic_write_bytes(run_dir / "figures" / f"{safe}.svg", svg.encode("utf-8"))

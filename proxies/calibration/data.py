@@ -106,6 +106,7 @@ class InstrumentalSeries:
         if np.any(years != np.round(years)):
             raise ValueError(f"instrumental series '{self.name}': years must be whole years CE")
         if np.any(np.diff(years) <= 0):
-            raise ValueError(f"instrumental series '{self.name}': years must be strictly increasing")
+            raise ValueError(f"instrumental series '{self.name}': years must be strictly "
+                             "increasing")
         object.__setattr__(self, "year_ce", years.astype(np.int64))
         object.__setattr__(self, "values", values)

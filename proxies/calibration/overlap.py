@@ -129,13 +129,15 @@ def fit_classical(proxy, climate) -> OverlapFit:
 
 
 def _deming(x, y, ratio):
-    xm, ym = x.mean(), y.mean()
-    sxx = np.mean((x - xm) ** 2)
-    syy = np.mean((y - ym) ** 2)
-    sxy = np.mean((x - xm) * (y - ym))
+    """Deming line through (x, y); x and y may be (n,) or (k, n) (one line per row)."""
+    xm = x.mean(axis=-1, keepdims=True)
+    ym = y.mean(axis=-1, keepdims=True)
+    sxx = np.mean((x - xm) ** 2, axis=-1)
+    syy = np.mean((y - ym) ** 2, axis=-1)
+    sxy = np.mean((x - xm) * (y - ym), axis=-1)
     delta = syy / sxx if ratio is None else ratio
     b = (syy - delta * sxx + np.sqrt((syy - delta * sxx) ** 2 + 4 * delta * sxy ** 2)) / (2 * sxy)
-    return ym - b * xm, b
+    return ym[..., 0] - b * xm[..., 0], b
 
 
 def fit_errors_in_variables(proxy, climate, error_ratio=None) -> OverlapFit:
@@ -154,7 +156,10 @@ def fit_errors_in_variables(proxy, climate, error_ratio=None) -> OverlapFit:
     a, b = _deming(x, y, error_ratio)
     n = x.size
     keep = ~np.eye(n, dtype=bool)
-    jack = np.array([_deming(x[k], y[k], error_ratio) for k in keep])
+    # all n leave-one-out fits at once: row k of the (n, n - 1) arrays leaves out pair k
+    jack = np.column_stack(_deming(np.broadcast_to(x, (n, n))[keep].reshape(n, n - 1),
+                                   np.broadcast_to(y, (n, n))[keep].reshape(n, n - 1),
+                                   error_ratio))
     cov = (n - 1) / n * ((jack - jack.mean(0)).T @ (jack - jack.mean(0)))
     sd = np.sqrt(np.sum((y - a - b * x) ** 2) / (n - 2))
     return OverlapFit("errors_in_variables", a, b, cov, sd, n)

@@ -11,7 +11,7 @@ file (``where``) and the key.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field, fields
+from dataclasses import dataclass, fields
 from typing import Any, Mapping
 
 from proxies.problems import InputError, Problem
@@ -52,7 +52,8 @@ class _Checker:
             return default
         value = self.mapping[key]
         names = {str: "text", bool: "true/false", int: "an integer", float: "a number"}
-        wanted = " or ".join(names[k] for k in kinds)
+        wanted = "a number" if set(kinds) == {int, float} else \
+            " or ".join(names[k] for k in kinds)
         if isinstance(value, bool) and bool not in kinds or not isinstance(value, kinds):
             self.fail(key, f"must be {wanted}, got {value!r}", f"write {key} as {wanted}")
             return default
@@ -70,7 +71,8 @@ class _Checker:
     def allow_only(self, allowed):
         for key in self.mapping:
             if key not in allowed:
-                self.fail(key, f"unknown key '{key}'", f"allowed keys: {', '.join(sorted(allowed))}")
+                self.fail(key, f"unknown key '{key}'",
+                          f"allowed keys: {', '.join(sorted(allowed))}")
 
 
 _COMMON = {"method", "variable", "units", "reference"}

@@ -13,6 +13,8 @@ from typing import Any, Mapping
 import numpy as np
 import pandas as pd
 
+from proxies.problems import InputError, Problem
+
 from .assemblage import counts_to_percentages, rare_taxa_mask, transform_abundances
 from .crossval import (bootstrap_predictions, choose_n_components, component_predictions,
                        hblock_predictions, kfold_predictions, loo_predictions,
@@ -59,7 +61,8 @@ class FittedTransfer:
     performance : pandas.DataFrame
         Per component (``training/<name>_performance.parquet``).
     cv : pandas.DataFrame
-        ``id, observed, n_components, predicted, residual`` cross-validated
+        ``id, observed, predicted, residual, n_components`` cross-validated with the chosen
+        number of components, plus ``predicted_c1 ...`` for every component of WA-PLS
         (``training/<name>_cv.parquet``).
     taxa : tuple of str
         Training taxa kept by the rare-taxa filter, in model column order.
@@ -142,19 +145,24 @@ def prepare_training(training: TrainingSet, spec: TrainingSpec):
     percent : ndarray (n_sites, n_kept)
         Untransformed percentages of the kept taxa.
     """
+    section = f"training.{training.name}"
     percent = counts_to_percentages(training.taxa)
     if percent.isna().any(axis=None):
-        bad = list(training.ids[percent.isna().any(axis=1).to_numpy()])
-        raise ValueError(f"training set '{training.name}': sites with no counts: {bad[:10]}")
+        bad = [str(i) for i in training.ids[percent.isna().any(axis=1).to_numpy()]]
+        raise InputError(Problem(spec.file, f"sites with no counts: {', '.join(bad[:10])}",
+                                 "remove those sites or add their counts"))
     keep = rare_taxa_mask(percent.to_numpy(), spec.min_occurrences, spec.min_max_percent)
     if keep.sum() < 2:
-        raise ValueError(f"training set '{training.name}': fewer than 2 taxa pass the "
-                         f"rare-taxa filter (min_occurrences={spec.min_occurrences}, "
-                         f"min_max_percent={spec.min_max_percent})")
+        raise InputError(Problem(spec.file, "fewer than 2 taxa pass the rare-taxa filter",
+                                 "lower min_occurrences or min_max_percent",
+                                 column=f"{section}.min_occurrences"))
     kept = percent.loc[:, keep]
     if np.any(kept.to_numpy().sum(axis=1) <= 0):
-        raise ValueError(f"training set '{training.name}': some sites hold only filtered taxa; "
-                         "lower min_occurrences or min_max_percent")
+        bad = [str(i) for i in training.ids[kept.to_numpy().sum(axis=1) <= 0]]
+        raise InputError(Problem(spec.file, f"sites {', '.join(bad[:10])} hold only taxa "
+                                 "removed by the rare-taxa filter",
+                                 "lower min_occurrences or min_max_percent",
+                                 column=f"{section}.min_max_percent"))
     x = np.asarray(transform_abundances(kept.to_numpy(), spec.transform), dtype=float)
     return x, tuple(map(str, kept.columns)), kept.to_numpy()
 
@@ -211,14 +219,13 @@ def fit_transfer_function(training: TrainingSet, spec: TrainingSpec,
     performance.insert(2, "validation", spec.validation)
     performance["chosen"] = performance["n_components"] == n_components
     model = spec.estimator(n_components).fit(x, y)
-    A = predicted.shape[1]
-    cv = pd.DataFrame({
-        "id": np.tile(training.ids.astype(str), A),
-        "observed": np.tile(y, A),
-        "n_components": np.repeat(np.arange(1, A + 1), y.size),
-        "predicted": predicted.T.ravel(),
-    })
+    cv = pd.DataFrame({"id": training.ids.astype(str), "observed": y,
+                       "predicted": predicted[:, n_components - 1]})
     cv["residual"] = cv["predicted"] - cv["observed"]
+    cv["n_components"] = n_components
+    if predicted.shape[1] > 1:
+        for a in range(predicted.shape[1]):
+            cv[f"predicted_c{a + 1}"] = predicted[:, a]
     return FittedTransfer(
         name=training.name, spec=spec, model=model, n_components=n_components,
         performance=performance, cv=cv, taxa=taxa,
@@ -228,14 +235,25 @@ def fit_transfer_function(training: TrainingSet, spec: TrainingSpec,
         training_x=x, training_y=y, training_percent=percent)
 
 
+_NOT_TAXA = frozenset({"depth_cm", "thickness_cm", "section", "section_depth_cm", "source_row",
+                       "label"})
+
+
+def _taxa_columns(core) -> list[str]:
+    """Taxon columns of the counts table (``core.taxa`` when the core provides it)."""
+    taxa = getattr(core, "taxa", None)
+    if taxa is not None:
+        return list(taxa)
+    return [c for c in core.counts.columns
+            if c not in _NOT_TAXA and pd.api.types.is_numeric_dtype(core.counts[c])]
+
+
 def _transfer_record(core, proxy: ProxyCalibration, fitted: FittedTransfer, ensemble, rng,
                      warnings):
     counts = core.counts
     if counts is None:
-        warnings.append(f"[calibration.{COUNTS_KEY}] is set but core {core.id} has no counts "
-                        "table; skipped")
-        return None
-    taxa_columns = [c for c in counts.columns if c not in ("depth_cm", "source_row", "section")]
+        return None  # the run config is shared by all cores; this one has no counts
+    taxa_columns = _taxa_columns(core)
     table = counts[taxa_columns]
     depth = counts["depth_cm"].to_numpy(dtype=float)
     x, aligned = prepare_fossil(table, fitted)
@@ -286,8 +304,9 @@ def _transfer_record(core, proxy: ProxyCalibration, fitted: FittedTransfer, ense
         "detail": f"{spec.model} on training set '{fitted.name}' ({spec.validation})",
     }]
     keep = ~empty
-    record = CalibratedRecord(COUNTS_KEY, fitted.target_name, fitted.units, "transfer",
-                              fitted.reference, depth[keep], values[keep])
+    record = CalibratedRecord(COUNTS_KEY, proxy.variable or fitted.target_name,
+                              proxy.units or fitted.units, "transfer", fitted.reference,
+                              depth[keep], values[keep])
     return record, skill, diagnostics
 
 
@@ -352,6 +371,9 @@ def _overlap_record(core, chronology, proxy: ProxyCalibration, rows, values, ens
         raise KeyError(f"[calibration.{proxy.column}] names instrumental series "
                        f"'{proxy.series}', which was not loaded")
     series: InstrumentalSeries = instrumental[proxy.series]
+    if chronology is None:
+        raise ValueError(f"[calibration.{proxy.column}] uses the instrumental overlap, which "
+                         "needs the core's age ensemble; no chronology was given")
     samples = core.samples.loc[rows]
     top, bottom = _sample_limits(core.samples)
     top, bottom = top[rows], bottom[rows]
@@ -462,9 +484,7 @@ def calibrate_core(core, chronology, settings: CalibrationSettings,
             sample_tables.append(_summaries(record, src))
             continue
         if proxy.column not in samples:
-            warnings.append(f"core {core.id} has no column '{proxy.column}' configured in "
-                            f"[calibration.{proxy.column}]; skipped")
-            continue
+            continue  # the run config is shared by all cores; this one lacks the proxy
         values_all = samples[proxy.column].to_numpy(dtype=float)
         rows = np.flatnonzero(np.isfinite(values_all))
         if rows.size == 0:

@@ -31,7 +31,10 @@ def wa_optima(X, y):
 
 
 def wa_tolerances(X, y, optima):
-    """Taxon tolerances ``t_k = sqrt(sum_i x_ik (y_i - u_k)^2 / sum_i x_ik)`` (Birks et al. 1990)."""
+    """Taxon tolerances ``t_k = sqrt(sum_i x_ik (y_i - u_k)^2 / sum_i x_ik)``.
+
+    Birks et al. (1990), without the small-sample (N2) correction.
+    """
     totals = X.sum(axis=0)
     # sum_i x_ik (y_i - u_k)^2 = X^T y^2 - 2 u X^T y + u^2 totals, written without cancellation
     squared = np.einsum("ik,ik->k", X, (y[:, None] - np.nan_to_num(optima)[None, :]) ** 2)
@@ -97,7 +100,8 @@ class WA(RegressorMixin, BaseEstimator):
     def fit(self, X, y):
         """Estimate optima, tolerances and the deshrinking line from a training set."""
         if self.deshrinking not in ("inverse", "classical"):
-            raise ValueError(f"deshrinking must be 'inverse' or 'classical', got {self.deshrinking!r}")
+            raise ValueError("deshrinking must be 'inverse' or 'classical', "
+                             f"got {self.deshrinking!r}")
         X, y = validate_data(self, X, y, y_numeric=True, dtype=np.float64)
         if np.any(X < 0):
             raise ValueError("Negative values in data: abundances must be non-negative")

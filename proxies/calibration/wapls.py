@@ -127,7 +127,8 @@ class WAPLS(RegressorMixin, BaseEstimator):
         if np.any(X < 0):
             raise ValueError("Negative values in data: abundances must be non-negative")
         if np.sum(X.sum(axis=1) > 0) < 3:
-            raise ValueError(f"WA-PLS needs at least 3 training samples, got n_samples={X.shape[0]}")
+            raise ValueError("WA-PLS needs at least 3 training samples with a positive total, "
+                             f"got n_samples={int(np.sum(X.sum(axis=1) > 0))}")
         self.intercept_, self.component_coef_ = wapls_coefficients(X, y, int(self.n_components))
         self.coef_ = self.component_coef_[-1]
         return self

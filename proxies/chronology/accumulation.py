@@ -166,20 +166,23 @@ def increment_kernel(dz_cm: float, mean_rate: float, shape: float, step: float, 
     ndarray, shape (J,)
         Probability of an increment of t cells, t = 0..J-1.
     """
-    parts = []
+    parts = []  # (isf, cdf) pairs; scipy's plain functions avoid frozen-distribution overhead
     if dz_cm > 0:
         local_shape = shape * dz_cm / reference_cm
-        parts.append(stats.gamma(a=local_shape, scale=mean_rate * dz_cm / local_shape))
+        scale = mean_rate * dz_cm / local_shape
+        parts.append((lambda q: stats.gamma.isf(q, local_shape, scale=scale),
+                      lambda x: stats.gamma.cdf(x, local_shape, scale=scale)))
     if gap_mean is not None:
-        parts.append(stats.expon(scale=gap_mean))
+        parts.append((lambda q: stats.expon.isf(q, scale=gap_mean),
+                      lambda x: stats.expon.cdf(x, scale=gap_mean)))
     kernel = np.ones(1)
-    for dist in parts:
-        cells = int(np.ceil(dist.isf(_TAIL) / step)) + 2
+    for isf, cdf in parts:
+        cells = int(np.ceil(isf(_TAIL) / step)) + 2
         if max_cells is not None:
             cells = min(cells, max_cells)
         edges = (np.arange(cells + 1) - 0.5) * step
         edges[0] = 0.0
-        piece = np.diff(dist.cdf(edges))
+        piece = np.diff(cdf(edges))
         kernel = np.convolve(kernel, piece)
     if max_cells is not None:
         kernel = kernel[:max_cells]

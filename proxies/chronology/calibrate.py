@@ -201,32 +201,35 @@ def hpd_ranges(dates: CalibratedDates, level: float) -> list[list[tuple[float, f
     if not 0 < level < 1:
         raise ValueError(f"HPD level must be in (0, 1), got {level}")
     n = len(dates)
-    values, offsets = dates.values, dates.offsets
-    row, col = dates._row_col()
+    values, offsets, widths = dates.values, dates.offsets, dates.widths
+    # cells below 0.01 / width hold < 1 % of a row's mass in total, less than 1 - level for
+    # any level <= 0.99: they can never be in the HPD region, so only the others are handled
+    cut = np.repeat(0.01 / np.maximum(widths, 1), widths) if level <= 0.99 else np.zeros(values.size)
+    position = np.flatnonzero(values >= cut)
+    mass = values[position]
+    row = np.searchsorted(offsets, position, side="right") - 1
     # one flat sort: rows stay apart (key in [2 row, 2 row + 1]) and each row's masses come
     # out in decreasing order; much faster than a lexsort (the key loses ~1e-13 absolute)
-    key = np.sort(2.0 * row + (1.0 - values))
+    key = np.sort(2.0 * row + (1.0 - mass))
     ordered = np.clip(1.0 - (key - 2.0 * row), 0.0, None)
-    cum = np.cumsum(ordered)
-    base = np.concatenate([[0.0], cum[offsets[1:] - 1]])
-    total = base[1:] - base[:n]
-    k = np.searchsorted(cum, base[:n] + level * total - 1e-12 * total, side="left")
-    k = np.clip(k, offsets[:-1], offsets[1:] - 1)
+    kept_offsets = np.concatenate([[0], np.cumsum(np.bincount(row, minlength=n))])
+    cum = np.concatenate([[0.0], np.cumsum(ordered)])
+    total = np.add.reduceat(values, offsets[:-1])
+    k = np.searchsorted(cum, cum[kept_offsets[:-1]] + level * total * (1 - 1e-12), side="left") - 1
+    k = np.clip(k, kept_offsets[:-1], kept_offsets[1:] - 1)
     threshold = ordered[k] - 1e-12
-    inside = (values >= threshold[row]) & (values > 0)
-    # runs of 'inside' within each row
-    prev_inside = np.concatenate([[False], inside[:-1]])
-    prev_inside[offsets[:-1][offsets[:-1] < values.size]] = False
-    next_inside = np.concatenate([inside[1:], [False]])
-    next_inside[offsets[1:][offsets[1:] > 0] - 1] = False
-    begins = np.flatnonzero(inside & ~prev_inside)
-    ends = np.flatnonzero(inside & ~next_inside)
-    cum_values = np.concatenate([[0.0], np.cumsum(values)])
-    prob = cum_values[ends + 1] - cum_values[begins]
-    young = dates.step * (dates.start[row[begins]] + col[begins])
-    old = dates.step * (dates.start[row[ends]] + col[ends])
+    inside = mass >= threshold[row]
+    position, row, mass = position[inside], row[inside], mass[inside]
+    new_run = np.concatenate([[True], (np.diff(position) != 1) | (np.diff(row) != 0)])
+    begins = np.flatnonzero(new_run)
+    ends = np.concatenate([begins[1:] - 1, [position.size - 1]])
+    cum_mass = np.concatenate([[0.0], np.cumsum(mass)])
+    prob = cum_mass[ends + 1] - cum_mass[begins]
+    run_row = row[begins]
+    young = dates.step * (dates.start[run_row] + position[begins] - offsets[run_row])
+    old = dates.step * (dates.start[run_row] + position[ends] - offsets[run_row])
     out: list[list[tuple[float, float, float]]] = [[] for _ in range(n)]
-    for r, y, o, p in zip(row[begins].tolist(), young.tolist(), old.tolist(), prob.tolist()):
+    for r, y, o, p in zip(run_row.tolist(), young.tolist(), old.tolist(), prob.tolist()):
         out[r].append((y, o, p))
     return out
 
@@ -305,7 +308,7 @@ def calibrate_radiocarbon(ages, errors, curve: CalibrationCurve, reservoir_offse
             f"radiocarbon ages outside curve {curve.name!r} (which covers {lowest:g}-{highest:g} 14C yr BP, "
             f"{curve.cal_range[0]:g}-{curve.cal_range[1]:g} cal BP): {names}", bad)
 
-    k = 25.0 if student_t else 6.0
+    k = 25.0 if student_t else 5.0
     upper_env = np.maximum.accumulate(mu + k * sc)
     lower_env = np.minimum.accumulate((mu - k * sc)[::-1])[::-1]
     first = np.searchsorted(upper_env, r - k * sigma, side="left")
@@ -325,7 +328,15 @@ def calibrate_radiocarbon(ages, errors, curve: CalibrationCurve, reservoir_offse
         idx = np.minimum(idx, mu.size - 1)
         total_var = sigma[block, None] ** 2 + sc[idx] ** 2
         dens = _likelihood(r[block, None] - mu[idx], total_var, student_t, t_a, t_b)
-        rows.extend(dens[j, : widths[i]] for j, i in enumerate(block))
+        dens[~valid] = 0.0
+        # trim each window to cells above 1e-10 of its peak (the windows above are generous)
+        significant = dens >= 1e-10 * dens.max(axis=1, keepdims=True)
+        lead = np.argmax(significant, axis=1)
+        tail = width - np.argmax(significant[:, ::-1], axis=1)
+        for j, i in enumerate(block):
+            rows.append(dens[j, lead[j]: tail[j]])
+            first[i] += lead[j]
+            last[i] = first[i] + tail[j] - lead[j] - 1
     result = _pack(curve.step, int(round(curve.cal_bp[0] / curve.step)) + first, rows, np.concatenate(
         [blk for blk in np.array_split(order, max(1, n // 64)) if blk.size]))
     edge_mass = np.where(first == 0, result.values[result.offsets[:-1]], 0.0)

@@ -50,7 +50,7 @@ class ChronologySettings:
         cores). Default 300.
     grid_step_yr : float or None
         Calendar grid step of the accumulation model [yr]; ``None`` ("auto", default): the
-        age span / 2000 rounded up to 1, 2, 5, 10, 20, 50 or 100 yr.
+        age span / 4000 rounded up to 1, 2, 5, 10, 20, 50 or 100 yr.
     calibration_step_yr : float
         Step of the regular grid curves are interpolated onto for calibration [yr].
         Default 1.

@@ -238,7 +238,7 @@ def mean_rate_from_dates(depth_cm, median_cal_bp) -> float | None:
 
 
 def _nice_step(span: float) -> float:
-    raw = span / 2000.0
+    raw = span / 4000.0
     for step in _NICE_STEPS:
         if raw <= step:
             return float(step)

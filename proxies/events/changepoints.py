@@ -24,9 +24,12 @@ Schwarz, G. (1978). Estimating the dimension of a model. Ann. Stat. 6, 461-464.
 
 from __future__ import annotations
 
+import warnings
+
 import numpy as np
 
-__all__ = ["MODELS", "bic_penalty", "robust_sigma", "pelt", "optimal_partitioning"]
+__all__ = ["MODELS", "bic_penalty", "robust_sigma", "robust_sigma_observed", "pelt",
+           "optimal_partitioning"]
 
 #: Parameters added per extra segment, by model.
 MODELS = {"mean": 2, "slope": 3}
@@ -53,27 +56,64 @@ def robust_sigma(x: np.ndarray) -> np.ndarray:
     return np.where(sigma > 0, sigma, 1.0)
 
 
-class _Cumulants:
-    """Cumulative sums giving any segment's RSS in O(1); segment = x[s:t] (half open)."""
+def robust_sigma_observed(x: np.ndarray, observed: np.ndarray) -> np.ndarray:
+    """:func:`robust_sigma` from differences of neighbouring points that are both observed.
 
-    def __init__(self, x: np.ndarray):
+    Differences involving gap-filled (interpolated) points are too smooth and would
+    understate the noise.
+
+    Parameters
+    ----------
+    x : ndarray (T, M)
+    observed : ndarray of bool (T, M)
+
+    Returns
+    -------
+    ndarray (M,)
+    """
+    x = np.asarray(x, dtype=float)
+    both = observed[1:] & observed[:-1]
+    d = np.where(both, np.diff(x, axis=0), np.nan)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        med = np.nanmedian(d, axis=0)
+        mad = np.nanmedian(np.abs(d - med), axis=0)
+    sigma = mad / (0.6745 * np.sqrt(2.0))
+    fallback = robust_sigma(x)
+    return np.where(np.isfinite(sigma) & (sigma > 0), sigma, fallback)
+
+
+class _Cumulants:
+    """Cumulative sums giving any segment's RSS in O(1); segment = x[s:t] (half open).
+
+    Optional weights (0 or 1) let gap-filled points take no part in the cost (mean model).
+    """
+
+    def __init__(self, x: np.ndarray, weights: np.ndarray | None = None):
         x = np.asarray(x, dtype=float)
-        x = x - x.mean(axis=0)
+        w = np.ones_like(x) if weights is None else np.asarray(weights, dtype=float)
+        self.weighted = weights is not None
+        x = x - np.sum(w * x, axis=0) / np.maximum(np.sum(w, axis=0), 1e-300)
         idx = np.arange(x.shape[0], dtype=float).reshape((-1,) + (1,) * (x.ndim - 1))
         zero = np.zeros((1,) + x.shape[1:])
-        self.sx = np.concatenate([zero, np.cumsum(x, axis=0)])
-        self.sxx = np.concatenate([zero, np.cumsum(x * x, axis=0)])
+        self.sw = np.concatenate([zero, np.cumsum(w, axis=0)])
+        self.sx = np.concatenate([zero, np.cumsum(w * x, axis=0)])
+        self.sxx = np.concatenate([zero, np.cumsum(w * x * x, axis=0)])
         self.six = np.concatenate([zero, np.cumsum(idx * x, axis=0)])
 
     def rss(self, s, t, model: str):
-        n = (t - s).astype(float) if isinstance(t - s, np.ndarray) else float(t - s)
         sx = self.sx[t] - self.sx[s]
         sxx = self.sxx[t] - self.sxx[s]
+        if model == "mean":
+            sw = self.sw[t] - self.sw[s]
+            with np.errstate(invalid="ignore", divide="ignore"):
+                return np.where(sw > 0, sxx - sx * sx / np.where(sw > 0, sw, 1.0), 0.0)
+        if self.weighted:
+            raise ValueError("weights are supported for the mean model only")
+        n = (t - s).astype(float) if isinstance(t - s, np.ndarray) else float(t - s)
         if np.ndim(n) and np.ndim(sx) > np.ndim(n):
             n = n.reshape(n.shape + (1,) * (np.ndim(sx) - np.ndim(n)))
         centred = sxx - sx * sx / n
-        if model == "mean":
-            return centred
         # Index sums over s..t-1 in closed form.
         s_f = np.asarray(s, dtype=float).reshape(np.shape(n)) if np.ndim(n) else float(s)
         si = n * (2 * s_f + n - 1) / 2
@@ -144,7 +184,8 @@ def pelt(x: np.ndarray, model: str = "mean", penalty: float | None = None,
 
 
 def optimal_partitioning(x: np.ndarray, model: str = "mean", penalty: float | None = None,
-                         sigma: np.ndarray | None = None, min_size: int | None = None) -> list[np.ndarray]:
+                         sigma: np.ndarray | None = None, min_size: int | None = None,
+                         weights: np.ndarray | None = None) -> list[np.ndarray]:
     """Exact optimal partitioning of every member (column) of an ensemble at once.
 
     Same objective and result as :func:`pelt` member by member; the dynamic programme runs
@@ -157,6 +198,9 @@ def optimal_partitioning(x: np.ndarray, model: str = "mean", penalty: float | No
     model, penalty, min_size : see :func:`pelt`
     sigma : ndarray (M,), optional
         Noise scale per member; default :func:`robust_sigma` per column.
+    weights : ndarray (T, M) of 0/1, optional
+        Mean model only: points with weight 0 (e.g. filled gaps) do not enter the cost, so
+        segments are placed on the grid but fitted to observed points only.
 
     Returns
     -------
@@ -168,17 +212,25 @@ def optimal_partitioning(x: np.ndarray, model: str = "mean", penalty: float | No
     beta = bic_penalty(n, model) if penalty is None else float(penalty)
     inv_scale2 = 1.0 / (robust_sigma(x) if sigma is None else np.asarray(sigma, dtype=float)) ** 2
     size = _MIN_SIZE[model] if min_size is None else int(min_size)
-    cum = _Cumulants(x)
+    cum = _Cumulants(x, weights)
     best = np.full((n + 1, m), np.inf)
     best[0] = -beta
     last = np.zeros((n + 1, m), dtype=np.int64)
+    columns = np.arange(m)
     for t in range(size, n + 1):
-        cand = np.arange(0, t - size + 1)
-        cand = cand[(cand == 0) | (cand >= size)]
-        total = best[cand] + cum.rss(cand, t, model) * inv_scale2
+        # Candidates s = 0..t-size; those with 0 < s < size have best[s] = inf (no valid
+        # segmentation ends there), so a contiguous slice is exact and avoids gathers.
+        hi = t - size + 1
+        if model == "mean":
+            sw = np.maximum(cum.sw[t] - cum.sw[:hi], 1e-12)  # sx = 0 where sw = 0
+            sx = cum.sx[t] - cum.sx[:hi]
+            cost = (cum.sxx[t] - cum.sxx[:hi]) - sx * sx / sw
+        else:
+            cost = cum.rss(np.arange(hi), t, model)
+        total = best[:hi] + cost * inv_scale2
         k = np.argmin(total, axis=0)
-        best[t] = total[k, np.arange(m)] + beta
-        last[t] = cand[k]
+        best[t] = total[k, columns] + beta
+        last[t] = k
     out = []
     for j in range(m):
         changes = []

@@ -9,14 +9,15 @@ from proxies.problems import InputError, Problem
 __all__ = ["EventSettings"]
 
 _LIMITS = {
-    # key: (type, lower bound exclusive?, lower, upper, example)
+    # key: (type, exclusive lower bound (None: >= 0), upper bound or None, example)
     "penalty_factor": (float, 0.0, None, "1.0"),
     "alpha": (float, 0.0, 0.5, "0.05"),
     "max_excursion_yr": (float, 0.0, None, "1000"),
     "cluster_gap_yr": (float, 0.0, None, "300"),
+    "background_yr": (float, None, None, "2000"),
     "min_probability": (float, 0.0, 1.0, "0.05"),
     "n_surrogates": (int, 19, None, "200"),
-    "ramp_window_points": (int, 3, None, "80"),
+    "ramp_window_points": (int, 3, None, "24"),
 }
 
 
@@ -31,10 +32,11 @@ class EventSettings:
     penalty_factor : float
         Multiplies the BIC penalty ``2 ln T`` of the change-point search; larger finds
         fewer change points. Default 1.0.
-    detrend : bool
-        Remove each member's least-squares line before the change-point search, so that a
-        slow trend is not cut into steps (the red-noise null then has a linear trend
-        removed as well). Default true.
+    background_yr : float
+        Width of the running median removed from each member before the change-point
+        search, so that slow climate change is not cut into steps [yr]; 0 removes a
+        straight line instead. The red-noise surrogates get the same treatment. Changes
+        slower than about half this width are not sought. Default 2000.
     max_excursion_yr : float
         A departure followed by a return whose middle segment lasts at most this long is
         one event of kind ``excursion``; other change points are events of kind ``shift``
@@ -50,20 +52,21 @@ class EventSettings:
         Events detected (significantly) in a smaller share of members are not reported.
         Default 0.05.
     ramp_window_points : int
-        Largest window (grid points) searched by the ramp fit around a change. Default 80.
+        Largest window (grid points) searched by the ramp fit around a change (half before,
+        half after it); bounds how far onset and end can lie from the change. Default 24.
     variables : tuple of str or None
         Variables to analyse; ``None`` (default) all.
     """
 
     enabled: bool = True
     penalty_factor: float = 1.0
-    detrend: bool = True
+    background_yr: float = 2000.0
     max_excursion_yr: float = 1000.0
     alpha: float = 0.05
     n_surrogates: int = 200
     cluster_gap_yr: float = 300.0
     min_probability: float = 0.05
-    ramp_window_points: int = 80
+    ramp_window_points: int = 24
     variables: tuple[str, ...] | None = None
 
     @classmethod
@@ -84,7 +87,7 @@ class EventSettings:
                 problems.append(Problem(where, f"unknown key '{key}'",
                                         f"use one of: {', '.join(sorted(known))}", column=key))
                 continue
-            if key in ("enabled", "detrend"):
+            if key == "enabled":
                 if not isinstance(value, bool):
                     problems.append(Problem(where, f"'{key}' must be true or false, got {value!r}",
                                             "write true or false", column=key))
@@ -103,8 +106,9 @@ class EventSettings:
                                             f"got {value!r}", f"e.g. {key} = {example}", column=key))
                     continue
                 value = kind(value)
-                if not value > lower or (upper is not None and value > upper):
-                    bound = f"> {lower}" + (f" and <= {upper}" if upper is not None else "")
+                low_ok = value >= 0 if lower is None else value > lower
+                if not low_ok or (upper is not None and value > upper):
+                    bound = (">= 0" if lower is None else f"> {lower}") + (f" and <= {upper}" if upper is not None else "")
                     problems.append(Problem(where, f"'{key}' = {value} is out of range; it must be {bound}",
                                             f"e.g. {key} = {example}", column=key))
                     continue

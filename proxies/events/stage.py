@@ -1,14 +1,23 @@
 """The event stage: abrupt events detected on every ensemble member of every variable.
 
-Per variable of a reconstruction: the gridded members (gaps filled by linear interpolation,
-oldest first) are segmented by change points in mean (optimal partitioning with a BIC-type
-penalty, Killick et al. 2012); candidate shifts and excursions are tested against AR(1) red
-noise with the persistence estimated from the data (Mudelsee 2002); significant candidates
-get onset, end and amplitude from a ramp fit (Mudelsee 2000) on the member's values. Member
-detections whose change times lie within ``cluster_gap_yr`` of each other form one event;
-its onset, end, duration and amplitude are distributions over members, its probability is
-the share of members in which it is detected and significant, and its p-value is the median
-over all members of the smallest p-value of a matching candidate (1 where none).
+Per variable of a reconstruction, oldest first:
+
+1. each member's empty grid cells are filled by linear interpolation and its slow background
+   (running median over ``background_yr``) is removed;
+2. change points in mean are found in every member by exact optimal partitioning with a
+   BIC-type penalty (Killick, Fearnhead & Eckley 2012), fitted to observed cells only;
+3. candidate shifts and excursions (:mod:`proxies.events.candidates`) are tested against AR(1)
+   red noise whose persistence is estimated from the members (Mudelsee 2002) and matched by
+   simulation (:mod:`proxies.events.significance`);
+4. each significant candidate gets onset, end and amplitude from ramp fits (Mudelsee 2000) on
+   the member's gridded values;
+5. member detections of the same kind and direction are grouped by their change times
+   (``cluster_gap_yr``) into events. An event's onset, end, duration and amplitude are
+   distributions over the members that detect it; its ``probability`` is the share of all
+   members in which it is detected and significant; its ``p_value`` is the median over all
+   members of the smallest p-value of a matching candidate (1 where none), and it is
+   ``significant`` when that median is below ``alpha`` (i.e. significant in at least half of
+   the members).
 """
 
 from __future__ import annotations
@@ -18,12 +27,11 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-from proxies.events.candidates import KIND_NAMES, Candidates, detect_candidates, detrend_members
+from proxies.events.candidates import EXCURSION, KIND_NAMES, Candidates, detect_candidates
 from proxies.events.changepoints import bic_penalty
-from proxies.events.persistence import ar1_coefficient_even
 from proxies.events.ramp import fit_ramps
 from proxies.events.settings import EventSettings
-from proxies.events.significance import monte_carlo_p_values, null_maxima
+from proxies.events.significance import matched_null_tau, monte_carlo_p_values, null_maxima, prepare_series
 from proxies.reconstruction.grid import fill_gaps
 
 __all__ = ["EventResult", "detect_core_events", "detect_series_events", "EVENT_COLUMNS"]
@@ -64,14 +72,23 @@ def _member_detections(x: np.ndarray, ages_fwd: np.ndarray, cands: Candidates, p
                                      "duration", "amplitude", "p_value", "statistic"])
     half = settings.ramp_window_points // 2
     series = x[:, sig.member]
-    start, stop = _ramp_windows(sig.first, sig.window_start, sig.window_mid, half)
-    down = fit_ramps(ages_fwd, series, start, stop, settings.ramp_window_points)
-    end_index = down.i2.copy()
-    is_exc = sig.kind == 1
+    is_exc = sig.kind == EXCURSION
+    # Excursions: the return ramp is fitted first, from the start of the changed segment to the
+    # end of the next one; the departure ramp then ends where the return starts, so that the
+    # level of the changed segment is not diluted by the return (Mudelsee 2000 fits one
+    # transition per window).
+    down_stop = sig.window_mid.copy()
+    end_index = np.zeros(len(sig), dtype=np.int64)
     if is_exc.any():
         start2, stop2 = _ramp_windows(sig.second[is_exc], sig.first[is_exc], sig.window_stop[is_exc], half)
         back = fit_ramps(ages_fwd, series[:, is_exc], start2, stop2, settings.ramp_window_points)
-        end_index[is_exc] = np.maximum(back.i2, down.i2[is_exc])
+        down_stop[is_exc] = np.maximum(back.i1, sig.first[is_exc])
+        end_index[is_exc] = back.i2
+    start, stop = _ramp_windows(sig.first, sig.window_start, down_stop, half)
+    stop = np.maximum(stop, start + 1)
+    down = fit_ramps(ages_fwd, series, start, stop, settings.ramp_window_points)
+    end_index[~is_exc] = down.i2[~is_exc]
+    end_index = np.maximum(end_index, down.i2)
     onset = ages_fwd[down.i1]
     end = ages_fwd[end_index]
     return pd.DataFrame({"member": sig.member, "kind": sig.kind, "sign": sig.sign,
@@ -81,10 +98,19 @@ def _member_detections(x: np.ndarray, ages_fwd: np.ndarray, cands: Candidates, p
 
 
 def _clusters(change_age: np.ndarray, gap: float) -> np.ndarray:
-    order = np.argsort(-change_age, kind="stable")  # oldest first
-    labels = np.empty(change_age.size, dtype=np.int64)
-    breaks = np.concatenate([[0], np.cumsum(np.abs(np.diff(change_age[order])) > gap)])
-    labels[order] = breaks
+    """Greedy mode seeking: the age with most detections within +-gap/2 becomes a centre and
+    takes every detection within +-gap of it; repeat on the rest. Unlike single linkage,
+    scattered false detections cannot chain two events together."""
+    labels = np.full(change_age.size, -1, dtype=np.int64)
+    label = 0
+    while np.any(labels < 0):
+        free = np.flatnonzero(labels < 0)
+        ages = np.sort(change_age[free])
+        counts = (np.searchsorted(ages, ages + gap / 2, side="right")
+                  - np.searchsorted(ages, ages - gap / 2, side="left"))
+        centre = ages[int(np.argmax(counts))]
+        labels[free[np.abs(change_age[free] - centre) <= gap]] = label
+        label += 1
     return labels
 
 
@@ -161,22 +187,27 @@ def detect_series_events(age_cal_bp: np.ndarray, values: np.ndarray, settings: E
     """
     age_cal_bp = np.asarray(age_cal_bp, dtype=float)
     n_members = values.shape[1]
-    x = fill_gaps(values)[::-1]
+    observed = np.isfinite(values)[::-1]
     ages_fwd = age_cal_bp[::-1]
+    x = fill_gaps(values)[::-1]
     step = float(np.abs(np.diff(age_cal_bp)).mean())
-    a = float(np.median(ar1_coefficient_even(detrend_members(x) if settings.detrend else x)))
-    tau_steps = -1.0 / np.log(a)
+    background = int(round(settings.background_yr / step)) if settings.background_yr > 0 else 0
+    work = prepare_series(x, observed, background)
+    # Persistence from each member's own (unevenly spaced) non-empty cells (Mudelsee 2002),
+    # bias-corrected by simulation so that the null matches the data's treatment.
+    tau_steps, _ = matched_null_tau(work, observed, background, rng)
+    tau_yr = tau_steps * step
     max_exc = max(int(np.floor(settings.max_excursion_yr / step)), 1)
     penalty = bic_penalty(x.shape[0], "mean", settings.penalty_factor)
-    cands = detect_candidates(x, max_exc, penalty, settings.detrend)
-    null = null_maxima(x.shape[0], tau_steps, settings.n_surrogates, max_exc, penalty,
-                       settings.detrend, rng)
+    cands = detect_candidates(work, max_exc, penalty, observed)
+    null = null_maxima(x.shape[0], tau_steps, settings.n_surrogates, max_exc, penalty, rng,
+                       observed=observed, background_points=background)
     p = monte_carlo_p_values(cands, null)
     det = _member_detections(x, ages_fwd, cands, p, settings)
     rows, spans = _events_from_detections(det, cands, p, ages_fwd, n_members, settings)
     events = pd.DataFrame(rows)
     probability = _probability_through_time(age_cal_bp, spans, n_members)
-    return events, probability, det, tau_steps * step
+    return events, probability, det, tau_yr
 
 
 def detect_core_events(reconstruction, settings: EventSettings, rng: np.random.Generator) -> EventResult:

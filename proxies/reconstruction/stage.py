@@ -44,7 +44,7 @@ class GridSeries:
     anomalies : ndarray (T, M)
         ``values`` minus each member's reference value.
     n_samples : ndarray (T,)
-        Median over members of the number of samples in each cell (0 = empty cell).
+        Upper median over members of the number of samples in each cell (0 = empty cell).
     reference_window : (float, float)
         (young, old) [cal BP] of the reference.
     reference_kind : str
@@ -195,7 +195,9 @@ def reconstruct_core(core, chronology, calibration, settings: ReconstructionSett
         grid_values = means if settings.binning == "bin" else interpolate_members(ages, values, grid)
         label = _record_label(record, set(series))
         reference, window, kind = _reference(ages, values, grid, grid_values, settings, core.id, label)
-        n_samples = np.round(np.median(counts, axis=1)).astype(np.int64)
+        # Upper median: a cell has n_samples >= 1 exactly when at least half of the members have
+        # a sample in it, which is when it gets quantiles (min_member_share = 0.5).
+        n_samples = np.quantile(counts, 0.5, axis=1, method="higher").astype(np.int64)
         series[label] = GridSeries(label, str(record.units), grid.copy(), grid_values,
                                    anomalies_from_reference(grid_values, reference), n_samples,
                                    window, kind, str(record.proxy))

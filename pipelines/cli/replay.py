@@ -1,0 +1,64 @@
+"""``downcore replay MANIFEST --out DIR``: re-run a recorded run and report, per output,
+identical or different.
+
+Exit status: 0 every output identical (or within the documented tolerance) and no input
+changed; 1 an output differs, is missing or is new; 2 an input changed or is missing (or the
+manifest cannot be read).
+"""
+
+from __future__ import annotations
+
+import pathlib
+import sys
+
+import click
+
+from pipelines.cli.run import executor_options, make_choice
+
+
+@click.command(name="replay")
+@click.argument("manifest", type=click.Path(exists=True, path_type=pathlib.Path))
+@click.option("--out", "out", required=True, type=click.Path(path_type=pathlib.Path),
+              help="New run folder for the replay (refused if it exists and is not empty).")
+@click.option("--all", "show_all", is_flag=True, help="List every output, not only the differing ones.")
+@executor_options
+def command(manifest, out, show_all, workers, dask_address, dask_local, cache_dir, recompute, quiet) -> None:
+    """Re-run the run recorded in MANIFEST (a manifest.json or its run folder) from scratch and
+    compare every output with the recorded one."""
+    from pipelines.flows.runners import apply_environment_defaults
+
+    applied = apply_environment_defaults()
+    if "PREFECT_LOGGING_LEVEL" in applied:
+        from pipelines.cli.run import _silence_task_failures
+
+        _silence_task_failures()
+    from pipelines.progress import RunProgress
+    from pipelines.replay import replay_run
+    from pipelines.runfolder import RunFolderError, atomic_write_text
+    from proxies.problems import InputError
+
+    del recompute  # a replay always recomputes (empty work store unless --cache-dir is given)
+    try:
+        report = replay_run(manifest, out, choice=make_choice(workers, dask_address, dask_local),
+                            cache_dir=cache_dir, progress=RunProgress(quiet=quiet))
+    except (ValueError, FileNotFoundError, InputError, RunFolderError) as error:
+        click.echo(f"downcore replay: {error}", err=True)
+        sys.exit(2)
+    for change in report.input_changes:
+        click.echo(f"INPUT {change}", err=True)
+    if report.replay_dir is None:
+        click.echo("downcore replay: the recorded run config is gone; nothing was re-run", err=True)
+        sys.exit(2)
+    table = report.table()
+    atomic_write_text(report.replay_dir.parent / f"{report.replay_dir.name}-replay.csv", table.to_csv(index=False))
+    counts = table["verdict"].value_counts().to_dict()
+    shown = table if show_all else table[~table["verdict"].isin(["identical", "not compared"])]
+    for row in shown.itertuples():
+        click.echo(f"{row.verdict:>16}  {row.path}" + (f"  ({row.detail})" if row.detail else ""))
+    for name, (was, now) in report.version_changes.items():
+        click.echo(f"version of {name}: recorded {was}, now {now}")
+    click.echo("replay: " + ", ".join(f"{n} {v}" for v, n in sorted(counts.items()))
+               + f"; report {report.replay_dir.parent / (report.replay_dir.name + '-replay.csv')}")
+    if report.input_changes:
+        sys.exit(2)
+    sys.exit(0 if report.ok else 1)

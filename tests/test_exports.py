@@ -1,0 +1,187 @@
+"""Exports: CSV beside every Parquet table and the CF netCDF file of the reconstructions."""
+
+from __future__ import annotations
+
+import hashlib
+import warnings
+
+import cftime
+import numpy as np
+import pandas as pd
+import pytest
+import xarray as xr
+from click.testing import CliRunner
+
+from pipelines.report import write_exports
+from pipelines.report.csv import parquet_tables
+from pipelines.report.netcdf import DAYS_PER_YEAR, build_dataset, cf_units, standard_name_for
+from pipelines.report.rundata import read_run
+from pipelines.runfolder import atomic_write_parquet
+from run_folder_factory import make_run_folder
+
+#: units our netCDF may carry; each is a valid udunits string (udunits2 unit database, from
+#: memory: "year", "degC", "K", "1", "1e-3", "percent", "mm", "m")
+UDUNITS_OK = {"year", "degC", "K", "1", "1e-3", "percent", "mm", "m", "mm year-1"}
+
+
+@pytest.fixture(scope="module")
+def exported(tmp_path_factory):
+    run = make_run_folder(tmp_path_factory.mktemp("exp") / "run")
+    return run, write_exports(run)
+
+
+def _open(path):
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")  # "opens cleanly": no decoding or serialisation warning
+        return xr.open_dataset(path, engine="h5netcdf").load()
+
+
+def test_csv_beside_every_parquet_and_round_trip(exported):
+    """Every Parquet table has a CSV twin holding the same values (floats round-trip exactly:
+    pandas writes the shortest repr)."""
+    run, written = exported
+    tables = parquet_tables(run)
+    assert len(tables) >= 15
+    for table in tables:
+        csv = table.with_suffix(".csv")
+        assert csv in written
+        original = pd.read_parquet(table)
+        again = pd.read_csv(csv, keep_default_na=True)
+        assert list(again.columns) == list(original.columns)
+        for column in original.columns:
+            if pd.api.types.is_numeric_dtype(original[column]) and not pd.api.types.is_bool_dtype(original[column]):
+                np.testing.assert_array_equal(again[column].to_numpy(float),
+                                              original[column].to_numpy(float), err_msg=f"{csv}:{column}")
+
+
+def test_no_csv_on_request(tmp_path):
+    run = make_run_folder(tmp_path / "run")
+    written = write_exports(run, csv=False)
+    assert [p.name for p in written] == ["reconstructions.nc"]
+    assert not list(run.rglob("*.csv"))
+
+
+def test_netcdf_opens_cleanly_and_every_variable_has_units(exported):
+    run, _ = exported
+    ds = _open(run / "reconstructions.nc")
+    assert ds.attrs["Conventions"] == "CF-1.8"
+    for key in ("title", "history", "source"):
+        assert ds.attrs[key]
+    assert len(ds.data_vars) >= 4
+    for name, variable in ds.data_vars.items():
+        assert variable.attrs.get("units") in UDUNITS_OK, name
+        assert variable.attrs.get("long_name"), name
+    for name in ("age", "quantile"):
+        assert ds[name].attrs["units"] in UDUNITS_OK
+    assert ds["sst"].dims == ("core", "quantile", "age")
+    assert ds["sst"].attrs["standard_name"] == "sea_surface_temperature"
+    assert ds["sst_anomaly"].attrs["units"] == "K"  # a temperature difference
+    np.testing.assert_array_equal(ds["quantile"].values, [0.025, 0.16, 0.5, 0.84, 0.975])
+
+
+def test_netcdf_values_equal_the_tables(exported):
+    """Median and 2.5 % quantile of core TARN-2 equal reconstruction.parquet; the stack
+    equals stack.parquet; the age axis is the union of the grids."""
+    run, _ = exported
+    ds = _open(run / "reconstructions.nc")
+    recon = pd.read_parquet(run / "TARN-2" / "reconstruction.parquet")
+    part = ds.sel(core="TARN-2").sel(age=recon["age_cal_bp"].to_numpy())
+    np.testing.assert_array_equal(part["sst"].sel(quantile=0.5).values, recon["value_median"])
+    np.testing.assert_array_equal(part["sst"].sel(quantile=0.025).values, recon["value_q025"])
+    np.testing.assert_array_equal(part["sst_anomaly"].sel(quantile=0.975).values, recon["anomaly_q975"])
+    np.testing.assert_array_equal(part["sst_n_samples"].values, recon["n_samples"])
+    np.testing.assert_array_equal(ds["sst_reference_window"].sel(core="TARN-2").values, [0.0, 1000.0])
+    stack = pd.read_parquet(run / "stack.parquet")
+    np.testing.assert_array_equal(ds["stack_sst"].sel(quantile=0.5, age=stack["age_cal_bp"].to_numpy()).values,
+                                  stack["value_median"])
+    # the stack has quantiles 0.025/0.5/0.975 only: the others are missing, not invented
+    assert np.isnan(ds["stack_sst"].sel(quantile=0.16).values).all()
+    expected_ages = np.union1d(recon["age_cal_bp"], stack["age_cal_bp"])
+    np.testing.assert_array_equal(ds["age"].values, expected_ages)
+
+
+def test_time_coordinate_decodes_to_the_right_calendar_year(exported):
+    """The auxiliary CF time decodes (cftime, 365-day calendar) to year 1950 - age on
+    1 January for whole-year ages; the raw file holds -365 days per year of age."""
+    run, _ = exported
+    ds = _open(run / "reconstructions.nc")
+    decoded = ds["time"].values
+    assert isinstance(decoded[0], cftime.DatetimeNoLeap)
+    for age, when in zip(ds["age"].values, decoded):
+        assert when.year == 1950 - int(age) and (when.month, when.day) == (1, 1)
+    with xr.open_dataset(run / "reconstructions.nc", engine="h5netcdf", decode_times=False) as raw:
+        np.testing.assert_array_equal(raw["time"].values, -DAYS_PER_YEAR * raw["age"].values)
+        assert raw["time"].attrs["calendar"] == "365_day"
+        assert raw["time"].attrs["units"].startswith("days since 1950-01-01")
+
+
+def test_netcdf_readable_by_the_netcdf_c_library(exported):
+    """An independent reader (netCDF4-python over netCDF-C) sees the same variables,
+    dimensions and units."""
+    netCDF4 = pytest.importorskip("netCDF4")
+    run, _ = exported
+    with netCDF4.Dataset(run / "reconstructions.nc") as nc:
+        assert nc.Conventions == "CF-1.8"
+        assert nc.variables["sst"].dimensions == ("core", "quantile", "age")
+        for name, variable in nc.variables.items():
+            assert "units" in variable.ncattrs() or name in ("core",), name
+        assert list(nc.variables["core"][:]) == ["TARN-2"]
+
+
+def test_exports_are_byte_identical_on_rerun(exported):
+    run, written = exported
+    before = {p: hashlib.sha256(p.read_bytes()).hexdigest() for p in written}
+    again = write_exports(run)
+    assert {p: hashlib.sha256(p.read_bytes()).hexdigest() for p in again} == before
+
+
+def test_same_variable_from_two_proxies_gets_two_names(tmp_path):
+    run = make_run_folder(tmp_path / "run")
+    path = run / "TARN-2" / "reconstruction.parquet"
+    recon = pd.read_parquet(path)
+    other = recon.assign(proxy="uk37", value_median=recon["value_median"] + 1.0)
+    atomic_write_parquet(path, pd.concat([recon, other], ignore_index=True))
+    ds = build_dataset(read_run(run))
+    assert {"sst_mgca_mmol_mol", "sst_uk37"} <= set(ds.data_vars)
+    np.testing.assert_allclose(ds["sst_uk37"].sel(quantile=0.5).values - ds["sst_mgca_mmol_mol"].sel(quantile=0.5).values,
+                               np.where(np.isnan(ds["sst_uk37"].sel(quantile=0.5).values), np.nan, 1.0))
+
+
+def test_run_without_reconstructions_writes_no_netcdf(tmp_path):
+    run = make_run_folder(tmp_path / "run")
+    for core in ("TARN-2",):
+        (run / core / "reconstruction.parquet").unlink()
+    (run / "stack.parquet").unlink()
+    assert build_dataset(read_run(run)) is None
+    assert all(p.suffix == ".csv" for p in write_exports(run))
+
+
+@pytest.mark.parametrize("units, expected", [("°C", "degC"), ("degC", "degC"), ("‰", "1e-3"),
+                                             ("", "1"), ("%", "percent"), ("mm", "mm")])
+def test_cf_units(units, expected):
+    assert cf_units(units) == expected
+
+
+def test_standard_name_needs_matching_units():
+    assert standard_name_for("sst", "degC") == "sea_surface_temperature"
+    assert standard_name_for("tjul", "°C") == "air_temperature"
+    assert standard_name_for("sst", "1") is None
+    assert standard_name_for("varve_mm", "mm") is None
+
+
+def test_cli_report_regenerates_report_and_exports(tmp_path):
+    """`downcore report RUN --no-csv` writes the report, figures and netCDF but no CSV;
+    without the flag the CSV files appear too."""
+    from pipelines.cli import main
+
+    run = make_run_folder(tmp_path / "run")
+    result = CliRunner().invoke(main, ["report", str(run), "--no-csv"])
+    assert result.exit_code == 0, result.output
+    assert (run / "report.html").is_file() and (run / "reconstructions.nc").is_file()
+    assert not list(run.rglob("*.csv"))
+    assert "report:" in result.output
+    result = CliRunner().invoke(main, ["report", str(run)])
+    assert result.exit_code == 0, result.output
+    assert (run / "TARN-2" / "chronology.csv").is_file()
+    bad = CliRunner().invoke(main, ["report", str(tmp_path)])
+    assert bad.exit_code != 0 and "no summary.parquet" in bad.output

@@ -1,0 +1,155 @@
+"""The archive flow under Prefect's test harness: isolation of failing cores, the summary,
+byte-identical re-runs, caching by content hash, and the per-core flow.
+
+The cores come from tests/archive_factory.py (synthetic cores with a known truth and an
+invented curve built in code).
+"""
+
+from __future__ import annotations
+
+import pathlib
+
+import pandas as pd
+import pytest
+
+from archive_factory import FULL_CHAIN, broken_ids, write_archive, write_curve
+from pipelines.flows.run import execute_run
+from pipelines.flows.runners import ExecutorChoice
+from pipelines.manifest import read_manifest
+from pipelines.runfolder import RunFolderError, read_parquet
+
+pytestmark = pytest.mark.usefixtures("prefect_harness")
+
+CORE_FILES = {"chronology.parquet", "age_ensemble.parquet", "dates.parquet", "calibration.parquet",
+              "calibrated_samples.parquet", "calibration_diagnostics.parquet",
+              "reconstruction.parquet", "reconstruction_ensemble.parquet", "events.parquet",
+              "event_probability.parquet", "log.txt"}
+
+
+def _parquet_bytes(run: pathlib.Path) -> dict[str, bytes]:
+    return {p.relative_to(run).as_posix(): p.read_bytes() for p in sorted(run.rglob("*.parquet"))}
+
+
+def _run(config, out, cache, **kwargs):
+    return execute_run(config, out, cache_dir=cache, report=False,
+                       choice=ExecutorChoice(workers=2), **kwargs)
+
+
+@pytest.fixture(scope="module")
+def small_archive(tmp_path_factory):
+    root = tmp_path_factory.mktemp("archive")
+    config = write_archive(root, n_cores=4, broken=1, ensemble=40, n_dates=4, n_samples=15,
+                           extra_config=FULL_CHAIN)
+    return root, config
+
+
+@pytest.fixture(scope="module")
+def first_run(small_archive):
+    root, config = small_archive
+    return _run(config, root / "runs" / "first", root / "cache")
+
+
+def test_failing_core_is_isolated_and_reported(first_run):
+    summary = read_parquet(first_run.run_dir / "summary.parquet")
+    assert list(summary["core_id"]) == ["SYN-000", "SYN-001", "SYN-002", "SYN-003"]
+    assert first_run.failed == broken_ids(4, 1) == ["SYN-003"]
+    bad = summary.set_index("core_id").loc["SYN-003"]
+    assert bad["stage_reached"] == "none" and "depth_cm" in bad["error"] and "samples.csv" in bad["error"]
+    good = summary[summary["status"] == "ok"]
+    assert set(good["stage_reached"]) == {"events"}
+    for core in good["core_id"]:
+        assert {p.name for p in (first_run.run_dir / core).iterdir()} == CORE_FILES
+    assert [p.name for p in (first_run.run_dir / "SYN-003").iterdir()] == ["log.txt"]
+    assert "required column 'depth_cm'" in (first_run.run_dir / "SYN-003" / "log.txt").read_text()
+    assert (first_run.run_dir / "stack.parquet").is_file()
+
+
+def test_run_folder_is_complete_and_manifest_lists_outputs(first_run):
+    run = first_run.run_dir
+    assert not (run / ".downcore-in-progress").exists()
+    assert not [p for p in run.rglob(".*")], "no temporary file may remain"
+    manifest = read_manifest(run)
+    assert set(manifest["outputs"]) == {p.relative_to(run).as_posix() for p in run.rglob("*")
+                                        if p.is_file() and p.name != "manifest.json"}
+    assert manifest["seeds"]["run_seed"] == 20261201
+    assert "chronology/SYN-000" in manifest["seeds"]["streams"]
+    assert any(e["role"] == "curves" for e in manifest["inputs"])
+    timings = pd.read_csv(run / "timings.csv")
+    assert set(timings["stage"]) >= {"ingest", "chronology", "events"}
+
+
+def test_rerun_is_byte_identical_and_fully_reused(small_archive, first_run):
+    root, config = small_archive
+    again = _run(config, root / "runs" / "second", root / "cache")
+    assert _parquet_bytes(again.run_dir) == _parquet_bytes(first_run.run_dir)
+    assert again.timings["reused"].all()
+
+
+def test_out_folder_that_is_not_empty_is_refused(small_archive, first_run):
+    root, config = small_archive
+    with pytest.raises(RunFolderError, match="not empty"):
+        _run(config, first_run.run_dir, root / "cache")
+
+
+def test_new_curve_recomputes_chronology_and_later_not_ingest(tmp_path):
+    config = write_archive(tmp_path, n_cores=2, ensemble=30, n_dates=4, n_samples=12, extra_config=FULL_CHAIN)
+    first = _run(config, tmp_path / "r1", tmp_path / "cache")
+    assert not first.timings["reused"].any()
+    write_curve(tmp_path / "curves" / "invented.14c", shift_14c=60.0)  # a "curve update"
+    second = _run(config, tmp_path / "r2", tmp_path / "cache")
+    reused = second.timings.set_index(["core_id", "stage"])["reused"]
+    assert reused.xs("ingest", level="stage").all()
+    for stage in ("chronology", "calibration", "reconstruction", "events"):
+        assert not reused.xs(stage, level="stage").any(), stage
+    a = read_parquet(first.run_dir / "SYN-000" / "chronology.parquet")
+    b = read_parquet(second.run_dir / "SYN-000" / "chronology.parquet")
+    assert (b["age_median"] - a["age_median"]).abs().max() > 10.0  # the new curve moved the ages
+
+
+def test_changed_core_file_recomputes_only_that_core(tmp_path):
+    config = write_archive(tmp_path, n_cores=2, ensemble=30, n_dates=4, n_samples=12)
+    _run(config, tmp_path / "r1", tmp_path / "cache")
+    dates = tmp_path / "cores" / "SYN-001" / "dates.csv"
+    dates.write_text(dates.read_text().replace(",30\n", ",35\n", 1))
+    second = _run(config, tmp_path / "r2", tmp_path / "cache")
+    reused = second.timings.set_index(["core_id", "stage"])["reused"]
+    assert reused.loc[("SYN-000", "ingest")] and reused.loc[("SYN-000", "chronology")]
+    assert not reused.loc[("SYN-001", "ingest")] and not reused.loc[("SYN-001", "chronology")]
+
+
+def test_minimal_config_runs_with_defaults_and_notes_skipped_stages(tmp_path):
+    """[run] and [curves] only: chronology runs; calibration has nothing to do (noted)."""
+    config = write_archive(tmp_path, n_cores=1, ensemble=30, n_dates=4, n_samples=12)
+    outcome = _run(config, tmp_path / "r", tmp_path / "cache")
+    row = outcome.summary.iloc[0]
+    assert row["status"] == "ok" and row["stage_reached"] == "calibration"
+    assert "reconstruction skipped" in row["notes"]
+    assert (outcome.run_dir / "SYN-000" / "age_ensemble.parquet").is_file()
+    ensemble = read_parquet(outcome.run_dir / "SYN-000" / "age_ensemble.parquet")
+    assert list(ensemble.columns[:3]) == ["depth_cm", "m0000", "m0001"] and ensemble.shape[1] == 31
+
+
+def test_core_flow_runs_one_core(small_archive, tmp_path):
+    from pipelines.flows.archive import core_flow
+    from pipelines.flows.plan import build_plan
+    from pipelines.flows.runners import ExecutorChoice, prefect_run_settings
+
+    root, config = small_archive
+    plan = build_plan(config)
+    (tmp_path / "run").mkdir()
+    with prefect_run_settings(ExecutorChoice()):
+        row = core_flow(plan=plan, folder=str(root / "cores" / "SYN-001"), run_dir=str(tmp_path / "run"),
+                        cache_dir=str(root / "cache"))
+    assert row["status"] == "ok" and row["stage_reached"] == "events"
+    assert (tmp_path / "run" / "SYN-001" / "events.parquet").is_file()
+
+
+@pytest.mark.slow
+def test_archive_of_fifty_cores_with_three_broken(tmp_path):
+    config = write_archive(tmp_path, n_cores=50, broken=3, ensemble=20, n_dates=4, n_samples=10)
+    outcome = _run(config, tmp_path / "run", tmp_path / "cache")
+    assert len(outcome.summary) == 50
+    assert sorted(outcome.failed) == broken_ids(50, 3)
+    assert (outcome.summary["status"] == "ok").sum() == 47
+    assert all((outcome.run_dir / cid / "chronology.parquet").is_file()
+               for cid in outcome.summary.loc[outcome.summary["status"] == "ok", "core_id"])

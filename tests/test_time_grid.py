@@ -1,0 +1,74 @@
+"""Time grid, per-member cell means and interpolation (proxies.reconstruction.grid)."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from proxies.reconstruction.grid import (bin_means, cal_bp_to_ce, ce_to_cal_bp, fill_gaps,
+                                         interpolate_members, regular_grid)
+
+
+def test_cal_bp_and_ce_round_trip():
+    """CE = 1950 - BP (definition of 'before present', common practice)."""
+    assert cal_bp_to_ce(0) == 1950
+    assert cal_bp_to_ce(-50) == 2000
+    assert cal_bp_to_ce(9300) == -7350
+    np.testing.assert_allclose(ce_to_cal_bp(cal_bp_to_ce([-68.0, 1234.5])), [-68.0, 1234.5])
+
+
+def test_regular_grid_is_on_multiples_of_the_step():
+    grid = regular_grid(-68.0, 1033.0, 50.0)
+    assert grid[0] == -50.0 and grid[-1] == 1050.0
+    np.testing.assert_allclose(np.diff(grid), 50.0)
+    assert np.all(np.mod(grid, 50.0) == 0)
+    with pytest.raises(ValueError):
+        regular_grid(0, 100, 0)
+    with pytest.raises(ValueError):
+        regular_grid(100, 0, 10)
+
+
+def test_bin_means_match_a_loop_with_member_specific_ages():
+    """Independent check: the same means by an explicit loop over members and cells."""
+    rng = np.random.default_rng(0)
+    n, m = 40, 7
+    ages = np.sort(rng.uniform(0, 1000, (n, m)), axis=0)   # each member its own ages
+    values = rng.normal(size=(n, m))
+    values[3, 2] = np.nan
+    grid = regular_grid(0, 1000, 100)
+    means, counts = bin_means(ages, values, grid)
+    for j in range(m):
+        for k, centre in enumerate(grid):
+            inside = (ages[:, j] >= centre - 50) & (ages[:, j] < centre + 50) & np.isfinite(values[:, j])
+            assert counts[k, j] == inside.sum()
+            if inside.any():
+                assert means[k, j] == pytest.approx(values[inside, j].mean())
+            else:
+                assert np.isnan(means[k, j])
+
+
+def test_empty_cells_stay_empty_and_are_counted():
+    ages = np.array([[10.0], [20.0], [260.0]])
+    values = np.array([[1.0], [3.0], [5.0]])
+    means, counts = bin_means(ages, values, regular_grid(0, 300, 100))
+    np.testing.assert_array_equal(counts[:, 0], [2, 0, 0, 1])
+    assert means[0, 0] == 2.0 and means[3, 0] == 5.0
+    assert np.isnan(means[1, 0]) and np.isnan(means[2, 0])
+
+
+def test_interpolation_matches_numpy_and_does_not_extrapolate():
+    ages = np.array([[100.0, 150.0], [300.0, 350.0], [500.0, 400.0]])
+    values = np.array([[1.0, 0.0], [3.0, 2.0], [5.0, 4.0]])
+    grid = regular_grid(0, 600, 100)
+    out = interpolate_members(ages, values, grid)
+    np.testing.assert_allclose(out[1:6, 0], np.interp(grid[1:6], ages[:, 0], values[:, 0]))
+    assert np.isnan(out[0, 0]) and np.isnan(out[6, 0])
+    assert np.isnan(out[1, 1]) and np.isnan(out[5, 1])      # outside 150..400
+    assert out[2, 1] == pytest.approx(0.5)                   # 200: a quarter from (150,0) to (350,2)
+
+
+def test_fill_gaps_interpolates_inside_and_holds_edges():
+    x = np.array([[np.nan, 1.0], [2.0, np.nan], [np.nan, 3.0], [6.0, np.nan]])
+    filled = fill_gaps(x)
+    np.testing.assert_allclose(filled[:, 0], [2.0, 2.0, 4.0, 6.0])
+    np.testing.assert_allclose(filled[:, 1], [1.0, 2.0, 3.0, 3.0])
