@@ -85,7 +85,7 @@ def _status_cell(core: CoreData) -> str:
 def _summary_section(run: RunData) -> str:
     rows = []
     for core in run.cores:
-        reason = core.reason or ("; ".join(core.warnings[:1]) if not core.ok and core.warnings else "")
+        reason = core.reason or (core.warnings[0] if core.warnings else "")
         rows.append(
             f'<tr><td><a href="#core-{H.anchor(core.core_id)}">{H.esc(core.core_id)}</a></td>'
             f"<td>{_status_cell(core)}</td><td>{H.esc(core.stage or '–')}</td>"

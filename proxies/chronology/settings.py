@@ -26,7 +26,7 @@ _NUMBERS = {
     "output_step_cm": (float, 0.0, None, "1"),
 }
 _AUTO_NUMBERS = {"grid_step_yr": (0.0, "10"), "mean_rate_yr_cm": (0.0, "20")}
-_LISTS = {"rate_multipliers": "[0.5, 0.71, 1.0, 1.41, 2.0]", "rate_shapes": "[1.5, 3.0, 6.0]"}
+_LISTS = {"rate_multipliers": "[0.5, 0.71, 1.0, 1.41, 2.0]", "rate_shapes": "[1.5, 3, 6, 12, 24, 48]"}
 _BOOLS = ("student_t", "core_top")
 _CHOICES = {"model": MODELS, "join": JOINS}
 
@@ -60,7 +60,10 @@ class ChronologySettings:
     rate_multipliers : tuple of float
         Mean rates tried = centre x these. Default (0.5, 0.71, 1.0, 1.41, 2.0).
     rate_shapes : tuple of float
-        Gamma shapes tried (larger = more regular accumulation). Default (1.5, 3.0, 6.0).
+        Gamma shapes of the rate over one ``node_spacing_cm`` interval tried (larger = more
+        regular accumulation; the sd of the rate is mean / sqrt(shape)).
+        Default (1.5, 3, 6, 12, 24, 48): from very irregular to very regular, the evidence
+        chooses.
     hiatus_gap_yr : float
         Mean of the exponential gap prior at a hiatus [yr]. Default 5000.
     outlier_prior : float
@@ -90,7 +93,7 @@ class ChronologySettings:
     calibration_step_yr: float = 1.0
     mean_rate_yr_cm: float | None = None
     rate_multipliers: tuple[float, ...] = (0.5, 0.71, 1.0, 1.41, 2.0)
-    rate_shapes: tuple[float, ...] = (1.5, 3.0, 6.0)
+    rate_shapes: tuple[float, ...] = (1.5, 3.0, 6.0, 12.0, 24.0, 48.0)
     hiatus_gap_yr: float = 5000.0
     outlier_prior: float = 0.05
     student_t: bool = False
