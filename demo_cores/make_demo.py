@@ -39,7 +39,7 @@ Forward models (coefficients from memory of the papers; see demo_cores/README.md
   doi:10.1016/j.gca.2010.05.027).
 - Midge abundances: Gaussian response curves on July air temperature (ter Braak & Looman 1986,
   Vegetatio 65:3, doi:10.1007/BF00032121), lognormal ecological noise, multinomial counting.
-- Biogenic silica: an invented linear response, ``bsi_percent = 1.5 + 1.2 T``.
+- Biogenic silica: an invented linear response, ``bsi_percent = 2.5 T - 10``.
 """
 
 from __future__ import annotations
@@ -626,21 +626,21 @@ def make_tel07(climate: pd.DataFrame, marine: pd.DataFrame) -> dict:
 # 3c. CORV-3: annually laminated lake, biogenic silica, depths in mm
 # ---------------------------------------------------------------------------------------------
 
-BSI_INTERCEPT, BSI_SLOPE = 1.5, 1.2  # invented: bsi_percent = 1.5 + 1.2 T
+BSI_INTERCEPT, BSI_SLOPE = -10.0, 2.5  # invented: bsi_percent = 2.5 T - 10
 BSI_NOISE_SD, BSI_ERROR = 0.35, 0.25  # non-climatic scatter and quoted analytical error [%]
 
 
 def bsi_from_air_temperature(air_temp_c):
-    """Invented biogenic-silica response: bsi = 1.5 + 1.2 T [% dry mass]."""
+    """Invented biogenic-silica response: bsi = 2.5 T - 10 [% dry mass]."""
     return BSI_INTERCEPT + BSI_SLOPE * np.asarray(air_temp_c, dtype=float)
 
 
 def make_corv(climate: pd.DataFrame) -> dict:
-    """CORV-3 tables and truth: contiguous 4-mm samples, varve-count and 137Cs dates."""
+    """CORV-3 tables and truth: contiguous 6-mm samples, varve-count and 137Cs dates."""
     model = CORV_AGE_DEPTH
     rng = rng_for(DEMO_SEED, "core", "CORV-3")
-    depth = np.arange(0.2, 60.0, 0.4)  # cm: contiguous 4-mm slices
-    thickness = np.full(depth.size, 0.4)
+    depth = np.arange(0.3, 60.0, 0.6)  # cm: contiguous 6-mm slices, 3.5-4.5 yr each
+    thickness = np.full(depth.size, 0.6)
     young, old = _window_ages(model, depth, thickness)
     air = np.array([window_mean(climate, "air_temp_c", y, o) for y, o in zip(young, old)])
     noiseless = bsi_from_air_temperature(air)
@@ -661,9 +661,9 @@ def make_corv(climate: pd.DataFrame) -> dict:
     for k, z in enumerate(count_depth_cm):
         true_age = float(model.age(z))
         years = true_age - TOP_AGE_CAL_BP
-        drift += rng.normal(0.0, 0.3 * np.sqrt(years - counted_years))
+        drift += rng.normal(0.0, 0.15 * np.sqrt(years - counted_years))
         counted_years = years
-        error = float(np.round(1.0 + 0.02 * years, 1))
+        error = float(np.round(0.5 + 0.01 * years, 1))
         label = f"CORV3-V{k + 1:02d}"
         rows.append((label, round(10.0 * z, 1), "calendar", float(np.round(true_age + drift)), error, "varve count"))
         truth_dates.append((label, z, round(true_age, 2), False))
@@ -857,7 +857,7 @@ def _forward_toml(responses_file: str) -> str:
         ("[tex86]", {"equation": "SST = 68.4 log10(TEX86) + 38.6 (Kim et al. 2010)", "slope": TEX86_SLOPE,
                      "intercept": TEX86_INTERCEPT, "analytical_sd": TEX86_ERROR,
                      "nonclimate_sd_c": NONCLIMATE_SD_C["tex86"], "variable": "sst_c"}),
-        ("[bsi_percent]", {"equation": "bsi_percent = 1.5 + 1.2 T (invented)", "intercept": BSI_INTERCEPT,
+        ("[bsi_percent]", {"equation": "bsi_percent = 2.5 T - 10 (invented)", "intercept": BSI_INTERCEPT,
                            "slope": BSI_SLOPE, "nonclimate_sd": BSI_NOISE_SD, "analytical_sd": BSI_ERROR,
                            "variable": "air_temp_c"}),
         ("[midges]", {"model": "Gaussian response on July air temperature, lognormal noise, multinomial counts",

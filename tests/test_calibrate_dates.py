@@ -76,6 +76,7 @@ def test_matches_direct_formula_on_the_whole_curve(intcal):
         cal, mass = dates.row(i)
         np.testing.assert_allclose(mass, full[cal.astype(int)], atol=1e-9)
         assert full.sum() - full[cal.astype(int)].sum() < 1e-6
+        assert dates.mode()[i] == np.argmax(full)
 
 
 def test_reservoir_offset_is_subtraction_and_quadrature(intcal):

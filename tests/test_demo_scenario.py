@@ -265,7 +265,7 @@ def test_measured_marine_proxies_scatter_around_the_noiseless_truth_as_documente
 
 
 def test_biogenic_silica_is_linear_in_true_air_temperature():
-    """CORV-3 bsi_percent = 1.5 + 1.2 T + noise (the scenario's invented response): an ordinary
+    """CORV-3 bsi_percent = 2.5 T - 10 + noise (the scenario's invented response): an ordinary
     least-squares fit on the true sample temperatures recovers the slope within its error."""
     samples = pd.read_csv(DEMO / "cores" / "CORV-3" / "samples.csv")
     truth = _truth("CORV-3_samples.csv")
@@ -273,8 +273,8 @@ def test_biogenic_silica_is_linear_in_true_air_temperature():
     slope, intercept = np.polyfit(truth["air_temp_c"], samples["bsi_percent"], 1)
     residual = samples["bsi_percent"] - (intercept + slope * truth["air_temp_c"])
     slope_se = residual.std() / (truth["air_temp_c"].std() * np.sqrt(len(residual)))
-    assert abs(slope - 1.2) < 3.0 * slope_se
-    np.testing.assert_allclose(truth["bsi_percent_noiseless"], 1.5 + 1.2 * truth["air_temp_c"], atol=1e-3)
+    assert abs(slope - 2.5) < 3.0 * slope_se
+    np.testing.assert_allclose(truth["bsi_percent_noiseless"], 2.5 * truth["air_temp_c"] - 10.0, atol=2e-3)
 
 
 def _curve_at(name: str, cal_bp: float) -> tuple[float, float]:

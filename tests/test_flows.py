@@ -153,3 +153,45 @@ def test_archive_of_fifty_cores_with_three_broken(tmp_path):
     assert (outcome.summary["status"] == "ok").sum() == 47
     assert all((outcome.run_dir / cid / "chronology.parquet").is_file()
                for cid in outcome.summary.loc[outcome.summary["status"] == "ok", "core_id"])
+
+
+def test_disk_full_is_a_clear_error_and_leaves_no_result(tmp_path, monkeypatch):
+    """ENOSPC while writing: every core fails with the disk message, the run stops with a
+    RunFolderError naming the disk, and no manifest (no complete run) is presented."""
+    import errno
+    import os
+
+    from pipelines import runfolder
+
+    config = write_archive(tmp_path, n_cores=2, ensemble=20, n_dates=4, n_samples=10)
+
+    def no_space(fd):
+        raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC))
+
+    monkeypatch.setattr(runfolder.os, "fsync", no_space)
+    with pytest.raises(RunFolderError, match="disk is full"):
+        _run(config, tmp_path / "run", tmp_path / "cache")
+    assert not (tmp_path / "run" / "manifest.json").exists()
+    assert not list((tmp_path / "run").rglob("*.parquet"))
+    assert not [p for p in tmp_path.rglob("*.tmp")]
+
+
+def test_progress_reports_cores_done_and_stages(small_archive, tmp_path):
+    import io
+
+    from pipelines.progress import RunProgress
+
+    root, config = small_archive
+    lines = io.StringIO()
+    progress = RunProgress(stream=lines, live=False)
+    execute_run(config, tmp_path / "run", cache_dir=root / "cache", report=False, progress=progress)
+    text = lines.getvalue().splitlines()
+    assert len(text) == 4 and text[-1].startswith("[4/4]")
+    assert any("SYN-003: failed (reached none)" in line for line in text)
+    live = RunProgress(stream=io.StringIO(), live=True)
+    execute_run(config, tmp_path / "run-live", cache_dir=root / "cache", report=False, progress=live)
+    assert live.done == 4 and live.failed == 1 and live.current == {}
+    quiet = io.StringIO()
+    execute_run(config, tmp_path / "run-quiet", cache_dir=root / "cache", report=False,
+                progress=RunProgress(quiet=True, stream=quiet))
+    assert quiet.getvalue() == ""

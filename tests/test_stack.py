@@ -71,3 +71,20 @@ def test_different_ensemble_sizes_are_resampled_and_grid_steps_must_agree():
     results["C"] = _Result({"t": _series(other, rng.normal(size=(other.size, 30)), "t")})
     with pytest.raises(ValueError, match="grid steps"):
         stack_records(results, ReconstructionSettings(), rng)
+
+
+def test_records_are_grouped_by_climate_variable():
+    """Two proxies of one variable in one core (labels 'sst' and 'sst_uk37') and a second
+    core's 'sst' make one composite of three records."""
+    rng = np.random.default_rng(4)
+    ages = np.arange(0.0, 501.0, 50.0)
+
+    def series(label):
+        values = rng.normal(size=(ages.size, 20))
+        return GridSeries(label, "degC", ages, values, values, np.ones(ages.size, int),
+                          (0.0, 500.0), "window", "p", "sst")
+
+    results = {"A": _Result({"sst": series("sst"), "sst_uk37": series("sst_uk37")}),
+               "B": _Result({"sst": series("sst")})}
+    stack = stack_records(results, ReconstructionSettings(), rng)
+    assert set(stack["variable"]) == {"sst"} and (stack["n_records"] == 3).all()

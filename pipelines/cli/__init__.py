@@ -22,8 +22,28 @@ SUBCOMMANDS: dict[str, str] = {
     "report": "report",
 }
 
+#: one-line help shown by ``downcore --help`` without importing every command's module
+SHORT_HELP: dict[str, str] = {
+    "run": "Run the chain on the cores a run config lists into a new run folder.",
+    "demo": "Run the invented demo cores offline and print where the results are.",
+    "replay": "Re-run a recorded run from its manifest and compare every output.",
+    "compare": "Per core, how chronology, reconstruction and events moved between two runs.",
+}
+
 
 class _LazyGroup(click.Group):
+    def format_commands(self, ctx: click.Context, formatter: click.HelpFormatter) -> None:
+        rows = []
+        for name in self.list_commands(ctx):
+            text = SHORT_HELP.get(name)
+            if text is None:
+                command = self.get_command(ctx, name)
+                text = command.get_short_help_str(limit=formatter.width) if command else ""
+            rows.append((name, text))
+        if rows:
+            with formatter.section("Commands"):
+                formatter.write_dl(rows)
+
     def list_commands(self, ctx: click.Context) -> list[str]:
         return sorted(SUBCOMMANDS)
 

@@ -105,7 +105,7 @@ def _cached_or_build(store: WorkStore, stage: str, key: str, produce: Callable[[
     entry = None if recompute else store.lookup(stage, key)
     cached = entry is not None
     if entry is None:
-        entry = store.build(stage, key, produce)
+        entry = store.build(stage, key, produce, replace=recompute)
     entry.update(extra)
     entry["cached"] = cached
     entry["seconds"] = round(time.perf_counter() - start, 4)

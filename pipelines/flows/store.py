@@ -14,6 +14,8 @@ import json
 import os
 import pathlib
 import pickle
+import shutil
+import time
 from dataclasses import dataclass
 from typing import Any, Callable
 
@@ -47,13 +49,23 @@ class WorkStore:
             return None
         return _described(folder, info)
 
-    def build(self, stage: str, key: str, produce: Callable[[pathlib.Path], dict[str, Any]]) -> dict[str, Any]:
+    def build(self, stage: str, key: str, produce: Callable[[pathlib.Path], dict[str, Any]],
+              replace: bool = False) -> dict[str, Any]:
         """Run ``produce(staging_dir)`` and publish its folder as the entry for ``key``.
 
         ``produce`` writes its files into the staging folder and returns the entry description
         (``files``: logical name -> file name, plus ``warnings``, ``notes`` and anything small).
+        With ``replace`` an existing entry is retired first (``--recompute``); otherwise an
+        entry published meanwhile by another run wins and the new copy is discarded.
         """
         target = self.entry_dir(stage, key)
+        if replace and target.exists():
+            retired = target.with_name(f".{key}.retired-{os.getpid()}-{time.monotonic_ns()}")
+            try:
+                os.rename(target, retired)
+                shutil.rmtree(retired, ignore_errors=True)
+            except OSError:
+                pass
         with staging_folder(target.parent, key) as staged:
             info = produce(staged)
             info.setdefault("files", {})

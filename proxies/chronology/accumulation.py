@@ -391,7 +391,8 @@ def fit_accumulation(problem: AccumulationProblem, mean_rates, shapes, gap_mean:
     like = problem.node_likelihoods()
     per_date = problem.date_likelihoods()
     kernels = transition_kernels(problem, mean_rates, shapes, gap_mean)
-    filtered, log_evidence, _ = forward_filter(like, kernels)
+    date_nodes = np.unique(problem.date_node)
+    filtered, log_evidence, predicted = forward_filter(like, kernels, keep_predicted=date_nodes)
     if not np.any(np.isfinite(log_evidence)):
         raise ValueError("no age-depth path is compatible with the dates on the calendar grid; "
                          "check the dates, hiatuses and grid range")
@@ -405,11 +406,9 @@ def fit_accumulation(problem: AccumulationProblem, mean_rates, shapes, gap_mean:
     outlier = np.zeros(len(problem.date_node))
     sub_kernels = [block[active] for block in kernels]
     if len(problem.date_node):
-        date_nodes = np.unique(problem.date_node)
-        _, _, predicted = forward_filter(like, sub_kernels, keep_predicted=date_nodes)
         beta = backward_messages(like, sub_kernels)
         for j, h in enumerate(active):
-            node_predicted = {k: predicted[k][j] for k in date_nodes}
+            node_predicted = {k: predicted[k][h] for k in date_nodes}
             outlier += weights_active[j] * _outlier_posterior(problem, node_predicted, beta[j], per_date)
     column = 0
     for h in active:

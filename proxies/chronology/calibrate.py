@@ -124,10 +124,11 @@ class CalibratedDates:
 
     def mode(self) -> np.ndarray:
         """Most probable calendar age of each date [cal BP] (grid point)."""
-        row, col = self._row_col()
-        order = np.lexsort((-self.values, row))
-        first = order[self.offsets[:-1]]
-        return self.step * (self.start + col[first])
+        peak = np.maximum.reduceat(self.values, self.offsets[:-1])
+        row = np.repeat(np.arange(len(self)), self.widths)
+        hit = np.flatnonzero(self.values == peak[row])
+        first = hit[np.searchsorted(row[hit], np.arange(len(self)))]
+        return self.step * (self.start + first - self.offsets[:-1])
 
     def mean(self) -> np.ndarray:
         """Calendar mean of each date [cal BP]."""
@@ -202,12 +203,13 @@ def hpd_ranges(dates: CalibratedDates, level: float) -> list[list[tuple[float, f
         raise ValueError(f"HPD level must be in (0, 1), got {level}")
     n = len(dates)
     values, offsets, widths = dates.values, dates.offsets, dates.widths
-    # cells below 0.01 / width hold < 1 % of a row's mass in total, less than 1 - level for
-    # any level <= 0.99: they can never be in the HPD region, so only the others are handled
-    cut = np.repeat(0.01 / np.maximum(widths, 1), widths) if level <= 0.99 else np.zeros(values.size)
+    # cells below 0.9 (1 - level) / width hold less than 1 - level of a row's mass in total:
+    # they can never be in the HPD region, so only the others are handled
+    row_of_cell = np.repeat(np.arange(n, dtype=np.int32), widths)
+    cut = (0.9 * (1.0 - level) / np.maximum(widths, 1))[row_of_cell]
     position = np.flatnonzero(values >= cut)
     mass = values[position]
-    row = np.searchsorted(offsets, position, side="right") - 1
+    row = row_of_cell[position]
     # one flat sort: rows stay apart (key in [2 row, 2 row + 1]) and each row's masses come
     # out in decreasing order; much faster than a lexsort (the key loses ~1e-13 absolute)
     key = np.sort(2.0 * row + (1.0 - mass))
@@ -243,6 +245,16 @@ def _pack(step: float, first: np.ndarray, rows: list[np.ndarray], order: np.ndar
     widths = np.array([p.size for p in pieces], dtype=int)
     offsets = np.concatenate([[0], np.cumsum(widths)]).astype(int)
     return CalibratedDates(step, np.asarray(first, dtype=int), offsets, np.concatenate(pieces))
+
+
+def _gather_rows(step: float, start: np.ndarray, blocks: list, row_width: np.ndarray) -> CalibratedDates:
+    """Row-compress padded blocks ``(rows, densities)`` into input order (rows normalised)."""
+    offsets = np.concatenate([[0], np.cumsum(row_width)]).astype(np.int64)
+    values = np.empty(offsets[-1])
+    for rows, dens in blocks:
+        for j, i in enumerate(rows.tolist()):
+            values[offsets[i]:offsets[i + 1]] = dens[j, : row_width[i]]
+    return CalibratedDates(step, np.asarray(start, dtype=int), offsets, values)
 
 
 def _likelihood(residual, total_var, student_t: bool, t_a: float, t_b: float):
@@ -299,8 +311,7 @@ def calibrate_radiocarbon(ages, errors, curve: CalibrationCurve, reservoir_offse
 
     mu, sc = curve.c14_age, curve.c14_sigma
     lowest, highest = mu.min(), mu.max()
-    outside = (r + 4 * sigma < lowest - 4 * sc.max()) | (r - 4 * sigma > highest)
-    outside |= (r + 4 * sigma < lowest)
+    outside = (r + 4 * sigma < lowest) | (r - 4 * sigma > highest)
     if np.any(outside):
         bad = np.flatnonzero(outside)
         names = ", ".join(f"{labels[i]} ({ages[i]:g}+-{errors[i]:g})" for i in bad[:5])
@@ -317,28 +328,21 @@ def calibrate_radiocarbon(ages, errors, curve: CalibrationCurve, reservoir_offse
     last = np.clip(np.maximum(last, first), 0, mu.size - 1)
     widths = last - first + 1
     order = np.argsort(widths, kind="stable")
-    rows = []
+    flat = []
     # dates of similar window width are evaluated together as one padded block
     for block in np.array_split(order, max(1, n // 64)):
         if block.size == 0:
             continue
         width = int(widths[block].max())
-        idx = first[block, None] + np.arange(width)[None, :]
-        valid = idx <= last[block, None]
-        idx = np.minimum(idx, mu.size - 1)
+        cells = np.arange(width)[None, :]
+        idx = np.minimum(first[block, None] + cells, mu.size - 1)
         total_var = sigma[block, None] ** 2 + sc[idx] ** 2
         dens = _likelihood(r[block, None] - mu[idx], total_var, student_t, t_a, t_b)
-        dens[~valid] = 0.0
-        # trim each window to cells above 1e-10 of its peak (the windows above are generous)
-        significant = dens >= 1e-10 * dens.max(axis=1, keepdims=True)
-        lead = np.argmax(significant, axis=1)
-        tail = width - np.argmax(significant[:, ::-1], axis=1)
-        for j, i in enumerate(block):
-            rows.append(dens[j, lead[j]: tail[j]])
-            first[i] += lead[j]
-            last[i] = first[i] + tail[j] - lead[j] - 1
-    result = _pack(curve.step, int(round(curve.cal_bp[0] / curve.step)) + first, rows, np.concatenate(
-        [blk for blk in np.array_split(order, max(1, n // 64)) if blk.size]))
+        dens[cells >= widths[block, None]] = 0.0
+        dens /= dens.sum(axis=1, keepdims=True)
+        flat.append((block, dens))
+    row_width = widths
+    result = _gather_rows(curve.step, int(round(curve.cal_bp[0] / curve.step)) + first, flat, row_width)
     edge_mass = np.where(first == 0, result.values[result.offsets[:-1]], 0.0)
     edge_mass = np.maximum(edge_mass, np.where(last == mu.size - 1, result.values[result.offsets[1:] - 1], 0.0))
     if np.any(edge_mass > 1e-4):

@@ -12,7 +12,7 @@ _LIMITS = {
     # key: (type, exclusive lower bound (None: >= 0), upper bound or None, example)
     "penalty_factor": (float, 0.0, None, "1.0"),
     "alpha": (float, 0.0, 0.5, "0.05"),
-    "max_excursion_yr": (float, 0.0, None, "1000"),
+    "max_excursion_yr": (float, 0.0, None, "600"),
     "cluster_gap_yr": (float, 0.0, None, "300"),
     "background_yr": (float, None, None, "2000"),
     "min_probability": (float, 0.0, 1.0, "0.05"),
@@ -40,7 +40,9 @@ class EventSettings:
     max_excursion_yr : float
         A departure followed by a return whose middle segment lasts at most this long is
         one event of kind ``excursion``; other change points are events of kind ``shift``
-        [yr]. Default 1000.
+        [yr]. Default 600: centennial-scale abrupt events (a few hundred years); a longer
+        departure shows as two shifts. A shorter limit searches fewer candidates, so the
+        red-noise null is less severe.
     alpha : float
         Significance level against AR(1) red noise. Default 0.05.
     n_surrogates : int
@@ -61,7 +63,7 @@ class EventSettings:
     enabled: bool = True
     penalty_factor: float = 1.0
     background_yr: float = 2000.0
-    max_excursion_yr: float = 1000.0
+    max_excursion_yr: float = 600.0
     alpha: float = 0.05
     n_surrogates: int = 200
     cluster_gap_yr: float = 300.0

@@ -55,7 +55,9 @@ def prepare_series(values: np.ndarray, observed: np.ndarray, background_points: 
 
 def _median_tau_steps(work: np.ndarray, observed: np.ndarray) -> float:
     steps = np.arange(work.shape[0], dtype=float)
-    tau = np.nanmedian(ar1_tau_uneven_members(steps, np.where(observed, work, np.nan)))
+    taus = ar1_tau_uneven_members(steps, np.where(observed, work, np.nan))
+    taus = taus[np.isfinite(taus)]
+    tau = np.median(taus) if taus.size else np.nan
     return float(tau) if np.isfinite(tau) else 0.0
 
 

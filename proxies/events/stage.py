@@ -235,9 +235,8 @@ def detect_core_events(reconstruction, settings: EventSettings, rng: np.random.G
         names = [n for n in names if n in settings.variables]
     for name in names if settings.enabled else []:
         s = reconstruction.series[name]
-        have = np.isfinite(np.nanmedian(np.where(np.isfinite(s.values), s.values, np.nan), axis=1)) \
-            if s.values.size else np.zeros(0, dtype=bool)
-        rows = np.flatnonzero(have)
+        # Grid points where at least half of the members have a value (as in the table).
+        rows = np.flatnonzero(np.isfinite(s.values).mean(axis=1) >= 0.5) if s.values.size else np.zeros(0, int)
         if rows.size < _MIN_POINTS:
             notes.append(f"{name}: only {rows.size} grid points with values; events not searched")
             continue

@@ -99,7 +99,7 @@ def _overlap(series_list) -> tuple[float, float]:
 
 def stack_records(results: dict, settings: ReconstructionSettings,
                   rng: np.random.Generator) -> pd.DataFrame:
-    """Regional composite of every variable shared by two or more cores.
+    """Regional composite of every climate variable, over all records of all cores.
 
     Parameters
     ----------
@@ -114,13 +114,14 @@ def stack_records(results: dict, settings: ReconstructionSettings,
     -------
     DataFrame (``stack.parquet``)
         ``age_cal_bp, variable, method, value_median, value_q025, value_q160, value_q840,
-        value_q975, n_records, stack_young_cal_bp, stack_old_cal_bp``. Variables found in a
-        single core are composites of one record (``n_records`` <= 1), still reported.
+        value_q975, n_records, stack_young_cal_bp, stack_old_cal_bp``. Records are grouped by
+        ``GridSeries.climate_variable`` (so two proxies of one variable in one core are two
+        records); a variable with a single record is still reported (``n_records`` <= 1).
     """
     by_variable: dict[str, list] = {}
     for core_id in sorted(results):
         for name, s in results[core_id].series.items():
-            by_variable.setdefault(name, []).append(s)
+            by_variable.setdefault(getattr(s, "climate_variable", "") or name, []).append(s)
     frames = []
     for variable in sorted(by_variable):
         series_list = by_variable[variable]

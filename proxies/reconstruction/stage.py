@@ -51,6 +51,9 @@ class GridSeries:
         ``"normal 1961-1990"``, ``"window"`` or ``"record"``.
     proxy : str
         Proxy column the variable was calibrated from.
+    climate_variable : str
+        The calibrated variable's own name (``variable`` gets a ``_<proxy>`` suffix when two
+        proxies of a core give the same variable); records are stacked by this name.
     """
 
     variable: str
@@ -62,6 +65,7 @@ class GridSeries:
     reference_window: tuple[float, float]
     reference_kind: str = "window"
     proxy: str = ""
+    climate_variable: str = ""
 
     @property
     def n_empty(self) -> int:
@@ -200,7 +204,7 @@ def reconstruct_core(core, chronology, calibration, settings: ReconstructionSett
         n_samples = np.quantile(counts, 0.5, axis=1, method="higher").astype(np.int64)
         series[label] = GridSeries(label, str(record.units), grid.copy(), grid_values,
                                    anomalies_from_reference(grid_values, reference), n_samples,
-                                   window, kind, str(record.proxy))
+                                   window, kind, str(record.proxy), str(record.variable))
         empty = int(np.sum(n_samples == 0))
         if empty:
             notes.append(f"{label}: {empty} of {grid.size} grid cells hold no sample "
