@@ -39,6 +39,7 @@ __all__ = [
     "parquet_bytes",
     "read_parquet",
     "atomic_copy",
+    "link_or_copy",
     "publish_folder",
     "staging_folder",
     "sha256_bytes",
@@ -142,8 +143,11 @@ def _temp_name(path: pathlib.Path) -> pathlib.Path:
     return path.with_name(f".{path.name}.{os.getpid()}-{uuid.uuid4().hex[:8]}.tmp")
 
 
-def atomic_write_bytes(path: str | os.PathLike[str], data: bytes) -> pathlib.Path:
+def atomic_write_bytes(path: str | os.PathLike[str], data: bytes, sync_folder: bool = True) -> pathlib.Path:
     """Write ``data`` to ``path`` atomically (temporary file in the same folder, fsync, rename).
+
+    ``sync_folder=False`` skips the fsync of the folder after the rename; use it for files
+    written into a staging folder that :func:`publish_folder` will sync as a whole.
 
     Raises
     ------
@@ -166,7 +170,8 @@ def atomic_write_bytes(path: str | os.PathLike[str], data: bytes) -> pathlib.Pat
         if isinstance(error, RunFolderError):
             raise
         raise _explain(error, target, "writing") from error
-    _fsync_dir(target.parent)
+    if sync_folder:
+        _fsync_dir(target.parent)
     return target
 
 
@@ -200,9 +205,10 @@ def parquet_bytes(table: pd.DataFrame) -> bytes:
     return buffer.getvalue()
 
 
-def atomic_write_parquet(path: str | os.PathLike[str], table: pd.DataFrame) -> pathlib.Path:
+def atomic_write_parquet(path: str | os.PathLike[str], table: pd.DataFrame,
+                         sync_folder: bool = True) -> pathlib.Path:
     """Write a DataFrame as deterministic Parquet, atomically."""
-    return atomic_write_bytes(path, parquet_bytes(table))
+    return atomic_write_bytes(path, parquet_bytes(table), sync_folder)
 
 
 def read_parquet(path: str | os.PathLike[str]) -> pd.DataFrame:
@@ -210,9 +216,20 @@ def read_parquet(path: str | os.PathLike[str]) -> pd.DataFrame:
     return pq.read_table(path).to_pandas()
 
 
-def atomic_copy(source: str | os.PathLike[str], target: str | os.PathLike[str]) -> pathlib.Path:
+def atomic_copy(source: str | os.PathLike[str], target: str | os.PathLike[str],
+                sync_folder: bool = True) -> pathlib.Path:
     """Copy a file atomically (temporary name in the target folder, fsync, rename)."""
-    return atomic_write_bytes(target, pathlib.Path(source).read_bytes())
+    return atomic_write_bytes(target, pathlib.Path(source).read_bytes(), sync_folder)
+
+
+def link_or_copy(source: str | os.PathLike[str], target: str | os.PathLike[str]) -> pathlib.Path:
+    """Hard-link a finished, read-only file into a staging folder (no bytes copied); copy it
+    atomically when a link is impossible (another file system, no permission)."""
+    try:
+        os.link(source, target)
+        return pathlib.Path(target)
+    except OSError:
+        return atomic_copy(source, target, sync_folder=False)
 
 
 @contextlib.contextmanager
@@ -238,6 +255,7 @@ def publish_folder(staged: pathlib.Path, target: str | os.PathLike[str]) -> path
     staged copy is discarded and the existing folder is kept.
     """
     final = pathlib.Path(target)
+    _fsync_dir(staged)
     try:
         os.rename(staged, final)
     except OSError as error:

@@ -165,10 +165,14 @@ def test_disk_full_is_a_clear_error_and_leaves_no_result(tmp_path, monkeypatch):
 
     config = write_archive(tmp_path, n_cores=2, ensemble=20, n_dates=4, n_samples=10)
 
-    def no_space(fd):
-        raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC))
+    real_replace = os.replace
 
-    monkeypatch.setattr(runfolder.os, "fsync", no_space)
+    def no_space_for_tables(source, target):
+        if str(target).endswith(".parquet"):
+            raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC))
+        return real_replace(source, target)
+
+    monkeypatch.setattr(runfolder.os, "replace", no_space_for_tables)
     with pytest.raises(RunFolderError, match="disk is full"):
         _run(config, tmp_path / "run", tmp_path / "cache")
     assert not (tmp_path / "run" / "manifest.json").exists()

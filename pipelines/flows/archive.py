@@ -22,7 +22,7 @@ from typing import Any
 
 from prefect import flow
 
-from pipelines.flows import tasks
+from pipelines.flows import stages, tasks
 from pipelines.flows.plan import RunPlan
 from pipelines.flows.store import WorkStore
 
@@ -86,6 +86,21 @@ class CoreTrack:
                 "error": self.error}
 
 
+class _Finished:
+    """A stage found finished in the work store (quacks like a completed future)."""
+
+    def __init__(self, value: dict):
+        self.value = value
+
+    def result(self, raise_on_failure: bool = False) -> dict:
+        return self.value
+
+
+_RUNNERS = {"ingest": stages.run_ingest, "training": stages.run_training,
+            "chronology": stages.run_chronology, "calibration": stages.run_calibration,
+            "reconstruction": stages.run_reconstruction, "events": stages.run_events}
+
+
 class _Driver:
     """Submits each core's next task when its previous one finishes."""
 
@@ -103,12 +118,23 @@ class _Driver:
 
     # -- submission ---------------------------------------------------------------------
     def _submit(self, track: CoreTrack | None, stage: str, task, **kwargs) -> None:
-        future = task.submit(**kwargs)
+        """Submit ``task``; a stage whose result is already in the work store is not
+        submitted at all (looked up here, in microseconds, instead of costing a task run)."""
         self.pending += 1
-        future.add_done_callback(lambda f, t=track, s=stage: self.done.put((t, s, f)))
         if track is not None:
             track.stage = stage
             self.observer.stage(track.label, stage)
+        runner = _RUNNERS.get(stage.split(":", 1)[0])
+        if runner is not None and not self.recompute:
+            arguments = {k: v for k, v in kwargs.items() if k != "label"}
+            if stage.startswith("training:"):
+                arguments["name"] = kwargs["label"]
+            found = stages.probe(runner, **arguments)
+            if found is not None:
+                self.done.put((track, stage, _Finished(found)))
+                return
+        future = task.submit(**kwargs)
+        future.add_done_callback(lambda f, t=track, s=stage: self.done.put((t, s, f)))
 
     def _common(self, track: CoreTrack) -> dict:
         return {"plan": self.plan, "label": track.name, "store": self.store, "recompute": self.recompute}
@@ -252,17 +278,18 @@ def archive_flow(plan: RunPlan, run_dir: str, cache_dir: str, recompute: bool = 
                        if t.status == "ok" and "reconstruction" in t.entries}
     stack = None
     if reconstructions:
-        started = time.perf_counter()
-        future = tasks.stack_task.submit(plan=plan, label="all-cores", reconstructions=reconstructions,
-                                         store=store, recompute=recompute)
-        result = future.result(raise_on_failure=False)
+        result = None if recompute else stages.probe(stages.run_stack, plan=plan, reconstructions=reconstructions,
+                                                     store=store, recompute=recompute)
+        if result is None:
+            future = tasks.stack_task.submit(plan=plan, label="all-cores", reconstructions=reconstructions,
+                                             store=store, recompute=recompute)
+            result = future.result(raise_on_failure=False)
         if isinstance(result, BaseException):
             notes.append(f"stack failed: {result}")
         elif "skipped" in result:
             notes.append(result["skipped"])
         else:
             stack = result
-        del started
     timings = [{"core_id": t.name, "stage": s, "seconds": t.seconds[s], "reused": t.cached.get(s, False)}
                for t in tracks for s in CORE_STAGES if s in t.seconds]
     return {"cores": [t.row() for t in tracks], "timings": timings, "training": driver.training,

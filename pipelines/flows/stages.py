@@ -11,6 +11,7 @@ Nothing large travels between tasks: only paths and hashes.
 from __future__ import annotations
 
 import contextlib
+import contextvars
 import os
 import pathlib
 import threading
@@ -28,12 +29,39 @@ from pipelines.runfolder import atomic_write_parquet, sha256_file
 from proxies.problems import InputError, Problem
 from proxies.seeding import rng_for
 
-__all__ = ["StageSkipped", "run_ingest", "run_training", "run_chronology", "run_calibration",
+__all__ = ["StageSkipped", "NotCached", "probe", "run_ingest", "run_training", "run_chronology", "run_calibration",
            "run_reconstruction", "run_events", "run_stack", "pin_blas_threads", "member_columns"]
 
 
 class StageSkipped(Exception):
     """A stage cannot run for this core and is skipped (with the reason as a note)."""
+
+
+class NotCached(Exception):
+    """Raised in probe mode when a stage has no finished entry in the work store."""
+
+
+#: when set (in the flow's driver thread), runners only look their entry up, never compute
+PROBING: contextvars.ContextVar[bool] = contextvars.ContextVar("downcore_probing", default=False)
+
+
+def probe(runner: Callable[..., dict], **kwargs: Any) -> dict | None:
+    """The finished entry ``runner(**kwargs)`` would return, without computing anything.
+
+    Returns ``None`` when the stage must run (no entry, or the lookup itself failed -- the
+    task will then report the failure), or ``{"skipped": reason}`` for a skipped stage.
+    """
+    token = PROBING.set(True)
+    try:
+        return runner(**kwargs)
+    except NotCached:
+        return None
+    except StageSkipped as skipped:
+        return {"skipped": str(skipped), "seconds": 0.0, "cached": True}
+    except Exception:  # noqa: BLE001 - the task reports real failures with their message
+        return None
+    finally:
+        PROBING.reset(token)
 
 
 # --- process set-up ------------------------------------------------------------------------
@@ -82,6 +110,11 @@ def _collect_warnings():
 
 # --- helpers -------------------------------------------------------------------------------
 
+def write_table(path: pathlib.Path, table: pd.DataFrame) -> pathlib.Path:
+    """Deterministic Parquet into a staging folder (synced once when published)."""
+    return atomic_write_parquet(path, table, sync_folder=False)
+
+
 def member_columns(n_members: int) -> list[str]:
     """Member column names m0000, m0001, ... (run-folder contract)."""
     return [f"m{m:04d}" for m in range(n_members)]
@@ -104,6 +137,8 @@ def _cached_or_build(store: WorkStore, stage: str, key: str, produce: Callable[[
     start = time.perf_counter()
     entry = None if recompute else store.lookup(stage, key)
     cached = entry is not None
+    if entry is None and PROBING.get():
+        raise NotCached(f"{stage} {key}")
     if entry is None:
         entry = store.build(stage, key, produce, replace=recompute)
     entry.update(extra)
@@ -157,8 +192,8 @@ def run_training(plan: RunPlan, name: str, store: WorkStore, recompute: bool = F
         with _collect_warnings() as caught:
             training, training_spec = _read_training(read_training_set, plan, name)
             fitted = fit_transfer_function(training, training_spec, rng_for(plan.run_seed, "calibration", f"training:{name}"))
-        atomic_write_parquet(staged / "cv.parquet", _table(getattr(fitted, "cv", None)))
-        atomic_write_parquet(staged / "performance.parquet", _table(getattr(fitted, "performance", None)))
+        write_table(staged / "cv.parquet", _table(getattr(fitted, "cv", None)))
+        write_table(staged / "performance.parquet", _table(getattr(fitted, "performance", None)))
         return {"files": {"result": save_object(staged, fitted), "cv": "cv.parquet",
                           "performance": "performance.parquet"},
                 "warnings": _unique(caught + list(getattr(fitted, "warnings", []) or []))}
@@ -222,9 +257,9 @@ def run_chronology(plan: RunPlan, ingest: dict, store: WorkStore, recompute: boo
         ensemble = np.asarray(result.ensemble, dtype=float)
         members = pd.DataFrame(ensemble, columns=member_columns(ensemble.shape[1]))
         members.insert(0, "depth_cm", np.asarray(result.depth_cm, dtype=float))
-        atomic_write_parquet(staged / "chronology.parquet", _table(result.summary))
-        atomic_write_parquet(staged / "age_ensemble.parquet", members)
-        atomic_write_parquet(staged / "dates.parquet", _table(result.dates))
+        write_table(staged / "chronology.parquet", _table(result.summary))
+        write_table(staged / "age_ensemble.parquet", members)
+        write_table(staged / "dates.parquet", _table(result.dates))
         return {"files": {"result": save_object(staged, result),
                           "chronology.parquet": "chronology.parquet",
                           "age_ensemble.parquet": "age_ensemble.parquet",
@@ -281,7 +316,7 @@ def run_calibration(plan: RunPlan, ingest: dict, chronology: dict, training: dic
                             ("calibrated_samples.parquet", result.samples),
                             ("calibration_diagnostics.parquet", getattr(result, "diagnostics", None))):
             if frame is not None:
-                atomic_write_parquet(staged / name, _table(frame))
+                write_table(staged / name, _table(frame))
                 files[name] = name
         notes = [] if result.records else ["no proxy could be calibrated with these settings"]
         return {"files": files, "n_records": len(result.records), "notes": notes,
@@ -308,11 +343,11 @@ def run_reconstruction(plan: RunPlan, ingest: dict, chronology: dict, calibratio
         with _collect_warnings() as caught:
             result = reconstruct_core(core, chron, cal, plan.settings["reconstruction"],
                                       rng_for(plan.run_seed, "reconstruction", core_id))
-        atomic_write_parquet(staged / "reconstruction.parquet", _table(result.table))
+        write_table(staged / "reconstruction.parquet", _table(result.table))
         files = {"result": save_object(staged, result), "reconstruction.parquet": "reconstruction.parquet"}
         ensemble = getattr(result, "ensemble", None)
         if ensemble is not None:
-            atomic_write_parquet(staged / "reconstruction_ensemble.parquet", _table(ensemble))
+            write_table(staged / "reconstruction_ensemble.parquet", _table(ensemble))
             files["reconstruction_ensemble.parquet"] = "reconstruction_ensemble.parquet"
         return {"files": files, "n_series": len(result.series),
                 "warnings": _unique(caught + list(getattr(result, "warnings", []) or []))}
@@ -336,8 +371,8 @@ def run_events(plan: RunPlan, reconstruction: dict, store: WorkStore, recompute:
         rec = load_object(reconstruction)
         with _collect_warnings() as caught:
             result = detect_core_events(rec, plan.settings["events"], rng_for(plan.run_seed, "events", core_id))
-        atomic_write_parquet(staged / "events.parquet", _table(result.events))
-        atomic_write_parquet(staged / "event_probability.parquet", _table(result.probability))
+        write_table(staged / "events.parquet", _table(result.events))
+        write_table(staged / "event_probability.parquet", _table(result.probability))
         return {"files": {"result": save_object(staged, result), "events.parquet": "events.parquet",
                           "event_probability.parquet": "event_probability.parquet"},
                 "warnings": _unique(caught + list(getattr(result, "warnings", []) or []))}
@@ -366,7 +401,7 @@ def run_stack(plan: RunPlan, reconstructions: dict[str, dict], store: WorkStore,
         with _collect_warnings() as caught:
             table = stack_records(results, plan.settings["reconstruction"],
                                   rng_for(plan.run_seed, "stack", STACK_STREAM))
-        atomic_write_parquet(staged / "stack.parquet", _table(table))
+        write_table(staged / "stack.parquet", _table(table))
         return {"files": {"stack.parquet": "stack.parquet"}, "warnings": _unique(caught)}
 
     return _cached_or_build(store, "stack", key, produce, {"core_id": None}, recompute)

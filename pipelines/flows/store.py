@@ -72,6 +72,8 @@ class WorkStore:
             info.setdefault("warnings", [])
             info.setdefault("notes", [])
             info["stage"], info["key"] = stage, key
+            for file in staged.iterdir():
+                file.chmod(0o444)  # finished results are hard-linked into run folders: never edit
             atomic_write_json(staged / ENTRY_FILE, info)
             publish_folder(staged, target)
         found = self.lookup(stage, key)
@@ -89,7 +91,7 @@ def _described(folder: pathlib.Path, info: dict[str, Any]) -> dict[str, Any]:
 
 def save_object(folder: pathlib.Path, obj: Any, name: str = RESULT_FILE) -> str:
     """Pickle a stage result into an entry folder (internal cache format, never an output)."""
-    atomic_write_bytes(folder / name, pickle.dumps(obj, protocol=5))
+    atomic_write_bytes(folder / name, pickle.dumps(obj, protocol=5), sync_folder=False)
     return name
 
 

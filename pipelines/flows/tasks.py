@@ -23,7 +23,7 @@ from prefect.cache_policies import NO_CACHE
 from pipelines.flows import stages
 from pipelines.flows.plan import RunPlan
 from pipelines.flows.store import WorkStore
-from pipelines.runfolder import atomic_copy, atomic_write_text, publish_folder, staging_folder
+from pipelines.runfolder import atomic_write_bytes, link_or_copy, publish_folder, staging_folder
 
 __all__ = ["StageFailed", "ingest_task", "training_task", "chronology_task", "calibration_task",
            "reconstruction_task", "events_task", "stack_task", "outputs_task"]
@@ -103,9 +103,9 @@ def publish_core_folder(run_dir: str, folder_name: str, entries: list[dict], log
         for entry in entries:
             for name, path in sorted(entry.get("paths", {}).items()):
                 if name.endswith(".parquet"):
-                    atomic_copy(path, staged / name)
+                    link_or_copy(path, staged / name)
                     written.append(name)
-        atomic_write_text(staged / "log.txt", log_text)
+        atomic_write_bytes(staged / "log.txt", log_text.encode("utf-8"), sync_folder=False)
         staged.chmod(0o755)
         publish_folder(staged, root / folder_name)
     return {"files": sorted(written), "seconds": round(time.perf_counter() - start, 4)}
