@@ -29,7 +29,7 @@ from proxies.chronology.interpolation import fit_interpolation
 from proxies.chronology.settings import ChronologySettings
 from proxies.problems import InputError, Problem
 
-__all__ = ["ChronologyResult", "build_chronology", "calibrate_core_dates", "format_ranges",
+__all__ = ["ChronologyResult", "build_chronology", "calibrate_core_dates", "date_density_table", "format_ranges",
            "mean_rate_from_dates", "CORE_TOP_LABEL"]
 
 #: label of the core-top pseudo-date added when ``core_top`` is on
@@ -61,6 +61,9 @@ class ChronologyResult:
         Model used.
     hyperparameters : pandas.DataFrame
         Accumulation model: mean_rate_yr_cm, shape, log_evidence, weight per grid point.
+    date_densities : pandas.DataFrame
+        ``date_densities.parquet``: label, age_cal_bp, density [1/yr] of each calibrated date
+        (before the age model), thinned for plotting (see :func:`date_density_table`).
     """
 
     depth_cm: np.ndarray
@@ -73,6 +76,7 @@ class ChronologyResult:
     model: str
     depth_scale: object = None
     hyperparameters: pd.DataFrame = field(default_factory=pd.DataFrame)
+    date_densities: pd.DataFrame = field(default_factory=pd.DataFrame)
 
     def age_at(self, depth_cm) -> np.ndarray:
         """Ensemble ages at composite depths [cm], shape (k, M) [cal BP].
@@ -305,7 +309,46 @@ def build_chronology(core, curves: dict[str, CalibrationCurve], settings: Chrono
         if np.isfinite(p) and p > 0.5:
             messages.append(f"date {label!r} is probably an outlier (posterior probability {p:.2f})")
     return ChronologyResult(out_depth, result_ensemble, summary, dates, messages, nodes, paths,
-                            settings.model, depth_scale, hyper)
+                            settings.model, depth_scale, hyper,
+                            date_density_table(table["label"].tolist(), calibrated))
+
+
+def date_density_table(labels: list[str], calibrated: CalibratedDates, max_points: int = 400,
+                       cutoff: float = 1e-4) -> pd.DataFrame:
+    """Calibrated densities of the dates as a long table for figures.
+
+    Parameters
+    ----------
+    labels : list of str
+        Date labels, one per row of ``calibrated``.
+    calibrated : CalibratedDates
+        Densities on the calibration grid.
+    max_points : int
+        At most this many points per date; denser rows are thinned by taking the maximum
+        mass in consecutive blocks, so narrow peaks survive.
+    cutoff : float
+        Cells below ``cutoff`` times the row's peak are dropped at both ends.
+
+    Returns
+    -------
+    pandas.DataFrame
+        Columns label, age_cal_bp [cal BP], density [1/yr] (mass per cell / step).
+    """
+    frames = []
+    for i, label in enumerate(labels):
+        ages, mass = calibrated.row(i)
+        keep = np.flatnonzero(mass >= cutoff * mass.max())
+        ages, mass = ages[keep[0]:keep[-1] + 1], mass[keep[0]:keep[-1] + 1]
+        block = max(1, int(math.ceil(ages.size / max_points)))
+        n = ages.size // block * block
+        if block > 1 and n:
+            ages = ages[:n].reshape(-1, block).mean(axis=1)
+            mass = mass[:n].reshape(-1, block).max(axis=1)
+        frames.append(pd.DataFrame({"label": label, "age_cal_bp": ages,
+                                    "density": mass / calibrated.step}))
+    if not frames:
+        return pd.DataFrame({"label": [], "age_cal_bp": [], "density": []})
+    return pd.concat(frames, ignore_index=True)
 
 
 def _output_depths(core, table: pd.DataFrame, settings: ChronologySettings) -> np.ndarray:
