@@ -134,16 +134,28 @@ def output_kind(relative_path: str) -> str:
     return "record"
 
 
-def hash_outputs(run_dir: str | os.PathLike[str]) -> dict[str, dict[str, str]]:
+def hash_outputs(run_dir: str | os.PathLike[str],
+                 known: Mapping[str, tuple[int, int, str]] | None = None) -> dict[str, dict[str, str]]:
     """``{relative path: {"sha256", "kind"}}`` for every file of a run folder except the
-    manifest itself, the in-progress marker and hidden (temporary) files."""
+    manifest itself, the in-progress marker and hidden (temporary) files.
+
+    ``known`` maps a relative path to ``(inode, size, sha256)`` of a file hard-linked from the
+    work store, whose hash was computed when it was written; it is used only when the file
+    is still that very inode with that size, otherwise the file is hashed.
+    """
     root = pathlib.Path(run_dir)
+    known = known or {}
     outputs: dict[str, dict[str, str]] = {}
     for file in _files_under(root):
         relative = file.relative_to(root).as_posix()
         if relative in (MANIFEST_NAME, IN_PROGRESS_MARKER):
             continue
-        outputs[relative] = {"sha256": sha256_file(file), "kind": output_kind(relative)}
+        digest = None
+        if relative in known:
+            info = file.stat()
+            inode, size, recorded = known[relative]
+            digest = recorded if (info.st_ino, info.st_size) == (inode, size) else None
+        outputs[relative] = {"sha256": digest or sha256_file(file), "kind": output_kind(relative)}
     return outputs
 
 
@@ -151,7 +163,8 @@ def build_manifest(*, config_path: str | os.PathLike[str], config_text: str,
                    resolved_config: Mapping[str, Any], inputs: list[dict[str, str]],
                    run_seed: int, streams: list[str], executor: Mapping[str, Any],
                    cores: list[Mapping[str, Any]], run_dir: str | os.PathLike[str],
-                   started_utc: str, seconds: float) -> dict[str, Any]:
+                   started_utc: str, seconds: float,
+                   known_hashes: Mapping[str, tuple[int, int, str]] | None = None) -> dict[str, Any]:
     """Assemble the manifest of a finished run (output hashes are computed here).
 
     Parameters
@@ -178,7 +191,7 @@ def build_manifest(*, config_path: str | os.PathLike[str], config_text: str,
         "versions": package_versions(),
         "executor": dict(executor),
         "cores": list(cores),
-        "outputs": hash_outputs(run_dir),
+        "outputs": hash_outputs(run_dir, known_hashes),
     }
 
 

@@ -134,7 +134,8 @@ def _version_changes(recorded: dict, current: dict) -> dict[str, tuple[str, str]
 
 def replay_run(manifest_path: str | os.PathLike[str], out_dir: str | os.PathLike[str], *,
                choice: Any = None, cache_dir: str | os.PathLike[str] | None = None,
-               progress: Any = None, rtol: float = RTOL, atol: float = ATOL) -> ReplayReport:
+               progress: Any = None, rtol: float = RTOL, atol: float = ATOL,
+               local_server: Any = None) -> ReplayReport:
     """Re-run the run recorded in ``manifest_path`` into ``out_dir`` and compare (see module
     docstring). ``cache_dir`` defaults to a new, empty work store that is removed afterwards."""
     from pipelines.flows.run import execute_run
@@ -155,7 +156,8 @@ def replay_run(manifest_path: str | os.PathLike[str], out_dir: str | os.PathLike
         temporary = pathlib.Path(tempfile.mkdtemp(prefix=".downcore-replay-cache-", dir=parent))
     try:
         outcome = execute_run(config, out_dir, choice=choice, cache_dir=cache_dir or temporary,
-                              progress=progress, report=bool(recorded.get("options", {}).get("report", True)))
+                              progress=progress, report=bool(recorded.get("options", {}).get("report", True)),
+                              local_server=local_server)
     finally:
         if temporary is not None:
             shutil.rmtree(temporary, ignore_errors=True)

@@ -101,3 +101,61 @@ def test_robust_sigma_from_observed_neighbours_ignores_interpolated_points():
     filled = fill_gaps(np.where(observed, x, np.nan))
     assert robust_sigma(filled)[0] < 0.9                      # interpolation smooths
     assert robust_sigma_observed(filled, observed)[0] == pytest.approx(1.0, rel=0.06)
+
+
+def test_ar1_sum_variance_matches_the_covariance_matrix():
+    """Var(sum of n unit AR(1) values) = 1' R 1 with R_ij = a^|i-j| (AR(1) autocorrelation,
+    Mudelsee 2002, Eq. 1): the closed form equals the explicit double sum."""
+    from proxies.events.scan import ar1_sum_variance
+
+    for a in (0.0, 0.3, 0.8):
+        for n in (1, 2, 7, 20):
+            lag = np.abs(np.subtract.outer(np.arange(n), np.arange(n)))
+            assert ar1_sum_variance(n, a) == pytest.approx(float(np.sum(a ** lag)), rel=1e-12)
+
+
+def test_excursion_scan_equals_a_brute_force_search_with_gaps():
+    """Independent loop over every block: standardised sum of observed points (robust scale
+    1.4826 MAD), best length per start and direction."""
+    from proxies.events.scan import ar1_sum_variance, excursion_scan, top_blocks
+
+    rng = np.random.default_rng(8)
+    x = rng.normal(0, 1, (60, 3))
+    x[20:25, 1] -= 3.0
+    observed = rng.random(x.shape) > 0.2
+    a = 0.3
+    profile = excursion_scan(x, observed, 8, a)
+    for m in range(3):
+        obs = x[observed[:, m], m]
+        scale = 1.4826 * np.median(np.abs(obs - np.median(obs)))
+        for s in range(0, 60, 7):
+            best_up, best_down = -np.inf, -np.inf
+            for length in range(2, 9):
+                block = slice(s, s + length)
+                if s + length > 60 or observed[block, m].sum() < 2:
+                    continue
+                n = observed[block, m].sum()
+                z = x[block, m][observed[block, m]].sum() / scale / np.sqrt(ar1_sum_variance(n, a))
+                best_up, best_down = max(best_up, z), max(best_down, -z)
+            assert profile.up[s, m] == pytest.approx(best_up) and profile.down[s, m] == pytest.approx(best_down)
+    member, start, length, sign, _ = top_blocks(profile, 3)
+    first = member == 1
+    assert sign[first][0] == -1 and abs(start[first][0] - 20) <= 1
+    for m in range(3):  # the kept blocks of a member never overlap
+        spans = sorted(zip(start[member == m], start[member == m] + length[member == m]))
+        assert all(b0 >= a1 for (_, a1), (b0, _) in zip(spans, spans[1:]))
+
+
+def test_local_null_grows_with_the_stretch_searched():
+    """The best block over more starts can only be larger: the local null is stochastically
+    increasing in its width, and a width of the whole series gives each surrogate's maximum."""
+    from proxies.events.scan import excursion_scan
+    from proxies.events.significance import local_null
+
+    rng = np.random.default_rng(9)
+    x = rng.normal(0, 1, (120, 50))
+    profile = excursion_scan(x, np.ones(x.shape, bool), 6)
+    q = [np.quantile(local_null(profile, w), 0.95) for w in (1, 5, 20, 120)]
+    assert q == sorted(q)
+    whole = local_null(profile, 120)
+    assert whole.size == 100 and whole.max() == pytest.approx(max(profile.up.max(), profile.down.max()))

@@ -199,3 +199,20 @@ def test_progress_reports_cores_done_and_stages(small_archive, tmp_path):
     execute_run(config, tmp_path / "run-quiet", cache_dir=root / "cache", report=False,
                 progress=RunProgress(quiet=True, stream=quiet))
     assert quiet.getvalue() == ""
+
+
+def test_cli_run_exit_codes(small_archive, tmp_path):
+    """3: run complete but a core failed; 2: --out not empty (message names the fix)."""
+    from click.testing import CliRunner
+
+    from pipelines.cli import main
+
+    root, config = small_archive
+    out = tmp_path / "cli-run"
+    args = ["run", str(config), "--out", str(out), "--cache-dir", str(root / "cache"), "--no-report",
+            "--workers", "2"]
+    result = CliRunner().invoke(main, args)
+    assert result.exit_code == 3, result.output
+    assert "SYN-003" in result.output and "failed" in result.output and str(out) in result.output
+    again = CliRunner().invoke(main, args)
+    assert again.exit_code == 2 and "not empty" in again.output

@@ -79,3 +79,26 @@ def test_matched_null_tau_removes_the_estimation_bias():
     tau_null, tau_raw = matched_null_tau(work, observed, 40, rng, n_series=200)
     assert tau_raw < 1.9
     assert tau_null == pytest.approx(2.0, rel=0.10)
+
+
+def test_leaving_the_event_out_keeps_the_persistence_estimate_honest():
+    """Simulation: AR(1) members (tau = 1 step, 20 % empty cells) with a 6-point cold event
+    of 2.5 sd. Estimated with the event in, the null persistence is inflated; with each
+    series' most prominent block left out (data and bias-correction surrogates alike) it is
+    within 12 % of the truth (measured about +25 % and +6 to +9 % over two seeds), and on
+    pure noise leaving the top block out changes little."""
+    from proxies.events.significance import matched_null_tau, prepare_series
+
+    rng = np.random.default_rng(7)
+    x = ar1_surrogates(np.arange(200.0), 1.0, 300, rng)
+    observed = rng.random(x.shape) > 0.2
+    noise_only = prepare_series(x, observed, 40)
+    x[100:106] -= 2.5
+    work = prepare_series(x, observed, 40)
+    with_event, _ = matched_null_tau(work, observed, 40, rng, n_series=200)
+    left_out, _ = matched_null_tau(work, observed, 40, rng, n_series=200, mask_points=12)
+    assert with_event > 1.18
+    assert left_out == pytest.approx(1.0, rel=0.12) and left_out < with_event - 0.1
+    plain, _ = matched_null_tau(noise_only, observed, 40, rng, n_series=200)
+    masked, _ = matched_null_tau(noise_only, observed, 40, rng, n_series=200, mask_points=12)
+    assert masked == pytest.approx(plain, rel=0.08)

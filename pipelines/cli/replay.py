@@ -32,6 +32,9 @@ def command(manifest, out, show_all, workers, dask_address, dask_local, cache_di
         from pipelines.cli.run import _silence_task_failures
 
         _silence_task_failures()
+    from pipelines.flows.localserver import LocalServer
+
+    server = LocalServer.start_if_needed()
     from pipelines.progress import RunProgress
     from pipelines.replay import replay_run
     from pipelines.runfolder import RunFolderError, atomic_write_text
@@ -40,10 +43,13 @@ def command(manifest, out, show_all, workers, dask_address, dask_local, cache_di
     del recompute  # a replay always recomputes (empty work store unless --cache-dir is given)
     try:
         report = replay_run(manifest, out, choice=make_choice(workers, dask_address, dask_local),
-                            cache_dir=cache_dir, progress=RunProgress(quiet=quiet))
+                            cache_dir=cache_dir, progress=RunProgress(quiet=quiet), local_server=server)
     except (ValueError, FileNotFoundError, InputError, RunFolderError) as error:
         click.echo(f"downcore replay: {error}", err=True)
         sys.exit(2)
+    finally:
+        if server is not None:
+            server.stop()
     for change in report.input_changes:
         click.echo(f"INPUT {change}", err=True)
     if report.replay_dir is None:

@@ -90,21 +90,28 @@ def execute(config: pathlib.Path, out: pathlib.Path, *, workers, dask_address, d
     applied = apply_environment_defaults()
     if "PREFECT_LOGGING_LEVEL" in applied:
         _silence_task_failures()
+    choice = make_choice(workers, dask_address, dask_local)
+    from pipelines.flows.localserver import LocalServer
+
+    server = LocalServer.start_if_needed()  # starts while the config is read and inputs hashed
     from pipelines.flows.run import execute_run
     from pipelines.progress import RunProgress
     from pipelines.runfolder import RunFolderError
     from proxies.problems import InputError
 
-    choice = make_choice(workers, dask_address, dask_local)
     try:
         outcome = execute_run(config, out, choice=choice, cache_dir=cache_dir, recompute=recompute,
-                              resume=resume, progress=RunProgress(quiet=quiet), report=report)
+                              resume=resume, progress=RunProgress(quiet=quiet), report=report,
+                              local_server=server)
     except InputError as error:
         click.echo(f"downcore: the input has problems:\n{error}", err=True)
         sys.exit(EXIT_INPUT)
     except RunFolderError as error:
         click.echo(f"downcore: {error.strerror or error}", err=True)
         sys.exit(EXIT_INPUT)
+    finally:
+        if server is not None:
+            server.stop()
     print_summary(outcome, quiet)
     return outcome
 

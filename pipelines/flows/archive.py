@@ -115,6 +115,7 @@ class _Driver:
         self.waiting_for_training: list[CoreTrack] = []
         self.ids: dict[str, str] = {}
         self.tracks: list[CoreTrack] = []
+        self.known_hashes: dict[str, tuple[int, int, str]] = {}
 
     # -- submission ---------------------------------------------------------------------
     def _submit(self, track: CoreTrack | None, stage: str, task, **kwargs) -> None:
@@ -211,6 +212,8 @@ class _Driver:
         if stage == "outputs":
             if isinstance(result, BaseException):
                 track.status, track.error = "failed", f"writing outputs: {result}"
+            else:
+                self.known_hashes.update(result.get("known_hashes", {}))
             self.observer.finished(track)
             return
         if isinstance(result, BaseException):
@@ -293,7 +296,7 @@ def archive_flow(plan: RunPlan, run_dir: str, cache_dir: str, recompute: bool = 
     timings = [{"core_id": t.name, "stage": s, "seconds": t.seconds[s], "reused": t.cached.get(s, False)}
                for t in tracks for s in CORE_STAGES if s in t.seconds]
     return {"cores": [t.row() for t in tracks], "timings": timings, "training": driver.training,
-            "stack": stack, "notes": notes}
+            "stack": stack, "notes": notes, "known_hashes": driver.known_hashes}
 
 
 @flow(name="downcore-core", validate_parameters=False, persist_result=False, log_prints=False)

@@ -124,7 +124,8 @@ def _streams(result: dict) -> list[str]:
 def execute_run(config_path: str | os.PathLike[str], out_dir: str | os.PathLike[str], *,
                 choice: ExecutorChoice | None = None, cache_dir: str | os.PathLike[str] | None = None,
                 recompute: bool = False, resume: bool = False, progress: Any = None,
-                report: bool = True, plan: RunPlan | None = None) -> RunOutcome:
+                report: bool = True, plan: RunPlan | None = None,
+                local_server: Any = None) -> RunOutcome:
     """Run a config into a new run folder; see the module docstring.
 
     Parameters
@@ -144,6 +145,8 @@ def execute_run(config_path: str | os.PathLike[str], out_dir: str | os.PathLike[
         Progress observer (see :mod:`pipelines.progress`).
     report : bool
         Write the HTML report and exports at the end.
+    local_server : pipelines.flows.localserver.LocalServer or None
+        A temporary Prefect server started earlier by the caller (used, not stopped, here).
 
     Raises
     ------
@@ -164,7 +167,8 @@ def execute_run(config_path: str | os.PathLike[str], out_dir: str | os.PathLike[
     runner = task_runner_for(choice, cache / "dask-scratch")
     observer_id = register_observer(progress) if progress is not None else None
     try:
-        with prefect_run_settings(choice):
+        api_url = local_server.wait_ready() if local_server is not None else None
+        with prefect_run_settings(choice, api_url=api_url):
             result = archive_flow.with_options(task_runner=runner)(
                 plan=plan, run_dir=str(run_dir), cache_dir=str(cache), recompute=recompute,
                 observer_id=observer_id)
@@ -182,7 +186,8 @@ def execute_run(config_path: str | os.PathLike[str], out_dir: str | os.PathLike[
                               resolved_config=resolved_config(plan), inputs=inputs,
                               run_seed=plan.run_seed, streams=_streams(result),
                               executor=choice.describe(), cores=result["cores"], run_dir=run_dir,
-                              started_utc=started_utc, seconds=seconds)
+                              started_utc=started_utc, seconds=seconds,
+                              known_hashes=result.get("known_hashes"))
     manifest["notes"] = notes
     manifest["cache_dir"] = str(cache)
     manifest["code_fingerprint"] = plan.fingerprint

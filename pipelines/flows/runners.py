@@ -101,15 +101,18 @@ def _shared_api_url() -> str | None:
 
 
 @contextlib.contextmanager
-def prefect_run_settings(choice: ExecutorChoice) -> Iterator[None]:
-    """Settings for one run: no flow heartbeat (it costs ~1 s per flow, measured), and for a
-    local Dask cluster a shared API URL exported to the worker processes."""
+def prefect_run_settings(choice: ExecutorChoice, api_url: str | None = None) -> Iterator[None]:
+    """Settings for one run: no flow heartbeat (it costs ~1 s per flow, measured), the API of
+    downcore's own temporary server when one was started (``api_url``), and for a local Dask
+    cluster a shared API URL exported to the worker processes."""
     from prefect.settings import PREFECT_API_URL, PREFECT_FLOWS_HEARTBEAT_FREQUENCY, temporary_settings
 
     updates: dict[Any, Any] = {PREFECT_FLOWS_HEARTBEAT_FREQUENCY: None}
+    if api_url:
+        updates[PREFECT_API_URL] = api_url
     exported = None
     if choice.dask_local:
-        url = _shared_api_url()
+        url = api_url or _shared_api_url()
         if url and not os.environ.get("PREFECT_API_URL"):
             os.environ["PREFECT_API_URL"] = exported = url
             updates[PREFECT_API_URL] = url

@@ -20,7 +20,7 @@ from dataclasses import dataclass
 from typing import Any, Callable
 
 from pipelines.runfolder import (atomic_write_bytes, atomic_write_json, publish_folder,
-                                 staging_folder)
+                                 sha256_file, staging_folder)
 
 __all__ = ["WorkStore", "ENTRY_FILE", "RESULT_FILE"]
 
@@ -72,8 +72,10 @@ class WorkStore:
             info.setdefault("warnings", [])
             info.setdefault("notes", [])
             info["stage"], info["key"] = stage, key
-            for file in staged.iterdir():
+            info["sha256"] = {}
+            for file in sorted(staged.iterdir()):
                 file.chmod(0o444)  # finished results are hard-linked into run folders: never edit
+                info["sha256"][file.name] = sha256_file(file)
             atomic_write_json(staged / ENTRY_FILE, info)
             publish_folder(staged, target)
         found = self.lookup(stage, key)

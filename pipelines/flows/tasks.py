@@ -94,21 +94,32 @@ def stack_task(plan: RunPlan, label: str, reconstructions: dict, store: WorkStor
 
 
 def publish_core_folder(run_dir: str, folder_name: str, entries: list[dict], log_text: str) -> dict:
-    """Copy a core's tables from the work store into ``run_dir/<folder_name>/`` and write its
-    log; the folder appears (one rename) only when complete."""
+    """Hard-link (or copy) a core's tables from the work store into ``run_dir/<folder_name>/``
+    and write its log; the folder appears (one rename) only when complete.
+
+    Returns the files written and, for linked files, ``(inode, size, sha256)`` so that the
+    manifest need not read them again.
+    """
     start = time.perf_counter()
     root = pathlib.Path(run_dir)
+    known: dict[str, tuple[int, int, str]] = {}
     with staging_folder(root, folder_name) as staged:
         written = []
         for entry in entries:
+            digests = entry.get("sha256", {})
             for name, path in sorted(entry.get("paths", {}).items()):
                 if name.endswith(".parquet"):
-                    link_or_copy(path, staged / name)
+                    target = link_or_copy(path, staged / name)
                     written.append(name)
+                    file_name = pathlib.Path(path).name
+                    if file_name in digests:
+                        info = target.stat()
+                        known[f"{folder_name}/{name}"] = (info.st_ino, info.st_size, digests[file_name])
         atomic_write_bytes(staged / "log.txt", log_text.encode("utf-8"), sync_folder=False)
         staged.chmod(0o755)
         publish_folder(staged, root / folder_name)
-    return {"files": sorted(written), "seconds": round(time.perf_counter() - start, 4)}
+    return {"files": sorted(written), "known_hashes": known,
+            "seconds": round(time.perf_counter() - start, 4)}
 
 
 @task(name="outputs", task_run_name="outputs[{label}]", **_OPTIONS)

@@ -41,18 +41,20 @@ class EventSettings:
         A departure followed by a return whose middle segment lasts at most this long is
         one event of kind ``excursion``; other change points are events of kind ``shift``
         [yr]. Default 600: centennial-scale abrupt events (a few hundred years); a longer
-        departure shows as two shifts. A shorter limit searches fewer candidates, so the
-        red-noise null is less severe.
+        departure shows as two shifts. Excursions are sought by a scan over every block of
+        two points up to this length (:mod:`proxies.events.scan`).
     alpha : float
-        Significance level against AR(1) red noise. Default 0.05.
+        Significance level against AR(1) red noise: of each member's whole-record search, of
+        the ensemble-level test of an event (on the ensemble-median series) and of the local
+        member tests behind an established event's probability. Default 0.05.
     n_surrogates : int
         AR(1) surrogate series of the calibrated null distribution. Default 200.
     cluster_gap_yr : float
         Member detections whose change times lie closer than this belong to one event [yr].
         Default 300.
     min_probability : float
-        Events detected (significantly) in a smaller share of members are not reported.
-        Default 0.05.
+        Events whose whole-record search found them (significantly) in a smaller share of the
+        members are not reported. Default 0.05.
     ramp_window_points : int
         Largest window (grid points) searched by the ramp fit around a change (half before,
         half after it); bounds how far onset and end can lie from the change. Default 24.

@@ -4,24 +4,54 @@ Per variable of a reconstruction, oldest first:
 
 1. each member's empty grid cells are filled by linear interpolation and its slow background
    (running median over ``background_yr``) is removed;
-2. change points in mean are found in every member by exact optimal partitioning with a
-   BIC-type penalty (Killick, Fearnhead & Eckley 2012), fitted to observed cells only;
-3. candidate shifts and excursions (:mod:`proxies.events.candidates`) are tested against AR(1)
-   red noise whose persistence is estimated from the members (Mudelsee 2002) and matched by
-   simulation (:mod:`proxies.events.significance`);
+2. shift candidates come from change points in mean found in every member by exact optimal
+   partitioning with a BIC-type penalty (Killick, Fearnhead & Eckley 2012), fitted to
+   observed cells only; excursion candidates from the scan statistic of every block of at
+   most ``max_excursion_yr`` (:mod:`proxies.events.scan`, :mod:`proxies.events.candidates`);
+3. both are tested against AR(1) red noise whose persistence is estimated from the members
+   with their most prominent excursion left out (Mudelsee 2002) and matched by simulation
+   (:mod:`proxies.events.significance`): a member's p-value is that of the largest statistic
+   in a whole red-noise series, so each member has a false event anywhere with probability
+   about ``alpha``;
 4. each significant candidate gets onset, end and amplitude from ramp fits (Mudelsee 2000) on
    the member's gridded values;
 5. member detections of the same kind and direction are grouped by their change times
-   (``cluster_gap_yr``) into events. An event's onset, end, duration and amplitude are
-   distributions over the members that detect it; its ``probability`` is the share of all
-   members in which it is detected and significant; its ``p_value`` is the median over all
-   members of the smallest p-value of a matching candidate (1 where none), and it is
-   ``significant`` when that median is below ``alpha`` (i.e. significant in at least half of
-   the members).
+   (``cluster_gap_yr``) into events; a group found by fewer than ``min_probability`` of the
+   members is not reported.
+
+Whether an event exists (``p_value``, ``significant``) is decided once, on the ensemble as a
+whole: the ensemble-median series (cells where at least half of the members have a value) is
+searched by the same detector against its own red-noise null (persistence estimated from it,
+surrogates treated alike), and the event's ``p_value`` is that series' whole-record,
+kind-adjusted p-value of its best candidate of the event's kind and direction inside the
+event's age range (change times of its members +- ``cluster_gap_yr / 2``); it is
+``significant`` when below ``alpha``. This is the standard single-series test applied to the
+ensemble's central estimate, so it holds its level whenever that series is AR(1) red noise
+-- in particular when the members are pure red noise, identical or not, or a red-noise
+climate plus independent member errors (simulated in ``tests/test_event_detection.py``). Why
+not the members: each member carries its own calibration error (on the demo cores about five
+times the error of the median), so a member-by-member whole-record test found the demo event
+in only 20-60 % of the members, and a rule built on member p-values (median p < alpha) could
+not be significant while a majority missed it.
+
+How sure the ensemble is of an established event (``probability``, ``n_members``, and the
+onset/end/duration/amplitude distributions) is then asked member by member *at the event's
+place*: a member shows a significant excursion when its best block starting in the event's
+age range exceeds the ``1 - alpha`` quantile of the best block over a stretch of that many
+starts in the members' red-noise surrogates (:func:`proxies.events.significance.local_null`).
+Testing the local hypotheses only after the global one has been rejected is hierarchical
+(gatekeeping) testing (e.g. Meinshausen 2008, Biometrika 95:265, doi:10.1093/biomet/asm092):
+the chance of a false *event* stays that of the ensemble test, while the probability no
+longer depends on how long the record is. For events that are not significant, and for
+shifts, the probability stays the share of members whose whole-record search found the event.
+``event_probability`` gives, at each grid age, the share of members inside (between ramp onset
+and end of) a reported event.
+
 """
 
 from __future__ import annotations
 
+import warnings
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -30,11 +60,13 @@ import pandas as pd
 from proxies.events.candidates import EXCURSION, KIND_NAMES, Candidates, detect_candidates
 from proxies.events.changepoints import bic_penalty
 from proxies.events.ramp import fit_ramps
+from proxies.events.scan import ScanProfile
 from proxies.events.settings import EventSettings
-from proxies.events.significance import matched_null_tau, monte_carlo_p_values, null_maxima, prepare_series
+from proxies.events.significance import (adjusted_p_values, local_null, local_p_values, matched_null_tau,
+                                         monte_carlo_p_values, null_maxima, prepare_series)
 from proxies.reconstruction.grid import fill_gaps
 
-__all__ = ["EventResult", "detect_core_events", "detect_series_events", "EVENT_COLUMNS"]
+__all__ = ["EventResult", "detect_core_events", "detect_series_events", "EVENT_COLUMNS", "ONSET_COLUMNS"]
 
 _SUMMARY = ("onset", "end", "duration", "amplitude")
 EVENT_COLUMNS = (["core_id", "event_id", "variable", "kind", "direction"]
@@ -48,7 +80,12 @@ class EventResult:
     """Output of :func:`detect_core_events`.
 
     ``events`` is ``events.parquet``, ``probability`` is ``event_probability.parquet``;
-    ``detections`` lists every significant member detection (diagnostics).
+    ``detections`` lists every significant member detection (diagnostics; ``test`` is
+    ``record`` for the whole-record search and ``local`` for the member tests at an
+    established event's place; ``event_id`` names the reported event it belongs to, empty if
+    none); ``onsets`` has one row per reported
+    event and member that detects it (``event_id, member, onset_cal_bp``), the member onsets
+    behind ``onset_median/q025/q975`` (proposed file ``<core>/event_onsets.parquet``).
     """
 
     core_id: str
@@ -56,6 +93,15 @@ class EventResult:
     probability: pd.DataFrame
     detections: pd.DataFrame
     warnings: list[str] = field(default_factory=list)
+    onsets: pd.DataFrame = field(default_factory=lambda: _empty_onsets())
+
+
+ONSET_COLUMNS = ["event_id", "member", "onset_cal_bp"]
+
+
+def _empty_onsets() -> pd.DataFrame:
+    return pd.DataFrame({"event_id": pd.Series(dtype=object), "member": pd.Series(dtype=np.int64),
+                         "onset_cal_bp": pd.Series(dtype=float)})
 
 
 def _ramp_windows(cp: np.ndarray, lo: np.ndarray, hi: np.ndarray, half: int):
@@ -119,33 +165,143 @@ def _quantiles(values: np.ndarray) -> tuple[float, float, float]:
     return float(q[0]), float(q[1]), float(q[2])
 
 
-def _events_from_detections(det: pd.DataFrame, cands: Candidates, p: np.ndarray,
-                            ages_fwd: np.ndarray, n_members: int, settings: EventSettings):
-    rows, spans = [], []
+def _member_event_p(kind: int, sign: float, young: float, old: float, cands: Candidates, p: np.ndarray,
+                    profile: ScanProfile, null: dict, ages_fwd: np.ndarray, n_members: int) -> np.ndarray:
+    """Each member's smallest p-value of this kind and direction with its change in
+    [young, old] cal BP (1 where it has none)."""
+    if kind == EXCURSION:
+        score, _ = profile.best(int(sign))
+        inside = (ages_fwd >= young) & (ages_fwd <= old)
+        best = score[inside].max(axis=0) if inside.any() else np.full(n_members, -np.inf)
+        return adjusted_p_values(best, EXCURSION, null)
+    change_age = ages_fwd[cands.first]
+    match = ((cands.kind == kind) & (cands.sign == sign) & (change_age >= young) & (change_age <= old))
+    member_p = np.ones(n_members)
+    np.minimum.at(member_p, cands.member[match], p[match])
+    return member_p
+
+
+@dataclass(frozen=True)
+class _Search:
+    """One searched ensemble (members, or the ensemble-median series): its candidates,
+    kind-adjusted p-values, scan profile and red-noise null."""
+
+    cands: Candidates
+    p: np.ndarray
+    profile: ScanProfile
+    null: dict
+    null_profile: ScanProfile
+    tau_steps: float
+
+
+def _search(x: np.ndarray, observed: np.ndarray, background: int, max_exc: int, settings: EventSettings,
+            rng: np.random.Generator) -> _Search:
+    """Prepare, estimate the null persistence, detect candidates and calibrate them."""
+    work = prepare_series(x, observed, background)
+    # Persistence from each series' own (unevenly spaced) non-empty cells, its most prominent
+    # excursion left out (Mudelsee 2002), bias-corrected by simulation so that the null
+    # matches the data's treatment.
+    tau_steps, _ = matched_null_tau(work, observed, background, rng, mask_points=max_exc)
+    persistence = float(np.exp(-1.0 / tau_steps)) if tau_steps > 0 else 0.0
+    penalty = bic_penalty(x.shape[0], "mean", settings.penalty_factor)
+    cands, profile = detect_candidates(work, max_exc, penalty, observed, persistence, return_profile=True)
+    null, null_profile = null_maxima(x.shape[0], tau_steps, settings.n_surrogates, max_exc, penalty, rng,
+                                     observed=observed, background_points=background, return_profile=True)
+    return _Search(cands, monte_carlo_p_values(cands, null), profile, null, null_profile, tau_steps)
+
+
+def _local_detections(sign: float, young: float, old: float, x: np.ndarray, ages_fwd: np.ndarray,
+                      members: _Search, max_exc: int, settings: EventSettings) -> pd.DataFrame:
+    """Members whose best excursion block starting in [young, old] cal BP stands out against
+    the red-noise null of the best block in a stretch of that many starts (local test)."""
+    score, length = members.profile.best(int(sign))
+    starts = np.flatnonzero((ages_fwd >= young) & (ages_fwd <= old))
+    if starts.size == 0:
+        return _member_detections(x, ages_fwd, members.cands.subset(np.zeros(len(members.cands), bool)),
+                                  np.zeros(0), settings)
+    cols = np.arange(score.shape[1])
+    k = np.argmax(score[starts], axis=0)
+    first = starts[k]
+    z = score[first, cols]
+    p = local_p_values(z, local_null(members.null_profile, starts.size))
+    keep = np.isfinite(z) & (p < settings.alpha)
+    first, stop = first[keep], first[keep] + length[first[keep], cols[keep]]
+    n_t = x.shape[0]
+    local = Candidates(cols[keep], np.full(keep.sum(), EXCURSION, dtype=np.int64), first, stop, z[keep],
+                       np.full(keep.sum(), float(sign)), np.maximum(first - max_exc, 0), stop - 1,
+                       np.minimum(stop - 1 + max_exc, n_t - 1))
+    return _member_detections(x, ages_fwd, local, p[keep], settings)
+
+
+def _event_p_value(kind: int, sign: float, young: float, old: float, central: _Search | None,
+                   ages_fwd: np.ndarray) -> float:
+    """Ensemble-level p-value: the ensemble-median series' best candidate of this kind and
+    direction changing in [young, old] cal BP (1 without a median series)."""
+    if central is None:
+        return 1.0
+    return float(_member_event_p(kind, sign, young, old, central.cands, central.p, central.profile,
+                                 central.null, ages_fwd, 1)[0])
+
+
+def _event_row(kind: int, sign: float, showing: pd.DataFrame, p_value: float, n_members: int,
+               settings: EventSettings) -> dict:
+    row = {"kind": KIND_NAMES[int(kind)], "direction": "positive" if sign > 0 else "negative"}
+    for name in _SUMMARY:
+        row[f"{name}_median"], row[f"{name}_q025"], row[f"{name}_q975"] = _quantiles(showing[name].to_numpy())
+    n_showing = int(showing["member"].nunique())
+    row.update(probability=n_showing / n_members, p_value=p_value, significant=bool(p_value < settings.alpha),
+               n_members=n_showing)
+    return row
+
+
+def _events_from_detections(det: pd.DataFrame, x: np.ndarray, ages_fwd: np.ndarray, members: _Search,
+                            central: _Search | None, max_exc: int, settings: EventSettings):
+    """Events: groups of member detections, plus significant excursions of the
+    ensemble-median series that no group covers; each tested on the ensemble-median series;
+    members showing an established excursion counted by the local test."""
+    n_members = x.shape[1]
+    rows, spans, local_frames, ranges = [], [], [], []
+    det["event"] = -1
+    det["test"] = "record"
+
+    def add(kind, sign, young, old, record, p_value):
+        showing = record
+        if int(kind) == EXCURSION and p_value < settings.alpha:
+            local = _local_detections(float(sign), young, old, x, ages_fwd, members, max_exc, settings)
+            if len(local):
+                showing = local.assign(event=len(rows), test="local")
+                local_frames.append(showing)
+        if showing is None or len(showing) == 0:
+            return
+        if showing is record:
+            det.loc[record.index, "event"] = len(rows)
+        rows.append(_event_row(kind, sign, showing, p_value, n_members, settings))
+        spans.append(showing[["member", "onset", "end"]].to_numpy())
+        ranges.append((int(kind), float(sign), young, old))
+
     for (kind, sign), group in det.groupby(["kind", "sign"], sort=True):
         labels = _clusters(group["change_age"].to_numpy(), settings.cluster_gap_yr)
         for label in np.unique(labels):
-            members = group[labels == label]
-            best = members.sort_values("statistic", ascending=False).drop_duplicates("member")
-            probability = best["member"].nunique() / n_members
-            if probability < settings.min_probability:
+            cluster = group[labels == label]
+            best = cluster.sort_values("statistic", ascending=False).drop_duplicates("member")
+            if best["member"].nunique() / n_members < settings.min_probability:
                 continue
-            young = members["change_age"].min() - settings.cluster_gap_yr / 2
-            old = members["change_age"].max() + settings.cluster_gap_yr / 2
-            change_age = ages_fwd[cands.first]
-            match = ((cands.kind == kind) & (cands.sign == sign)
-                     & (change_age >= young) & (change_age <= old))
-            member_p = np.ones(n_members)
-            np.minimum.at(member_p, cands.member[match], p[match])
-            row = {"kind": KIND_NAMES[int(kind)], "direction": "positive" if sign > 0 else "negative"}
-            for name in _SUMMARY:
-                row[f"{name}_median"], row[f"{name}_q025"], row[f"{name}_q975"] = _quantiles(best[name].to_numpy())
-            p_value = float(np.median(member_p))
-            row.update(probability=probability, p_value=p_value,
-                       significant=bool(p_value < settings.alpha), n_members=int(best["member"].nunique()))
-            rows.append(row)
-            spans.append(best[["member", "onset", "end"]].to_numpy())
-    return rows, spans
+            young = cluster["change_age"].min() - settings.cluster_gap_yr / 2
+            old = cluster["change_age"].max() + settings.cluster_gap_yr / 2
+            add(kind, sign, young, old, best, _event_p_value(int(kind), float(sign), young, old, central, ages_fwd))
+    if central is not None:
+        # Significant excursions of the ensemble-median series that too few members found in
+        # their whole-record search: established events all the same.
+        found = (central.cands.kind == EXCURSION) & (central.p < settings.alpha)
+        for first, sign, p_value in zip(central.cands.first[found], central.cands.sign[found], central.p[found]):
+            age = ages_fwd[first]
+            if any(k == EXCURSION and g == sign and lo <= age <= hi for k, g, lo, hi in ranges):
+                continue
+            add(EXCURSION, float(sign), age - settings.cluster_gap_yr / 2, age + settings.cluster_gap_yr / 2,
+                None, float(p_value))
+    if local_frames:
+        det = pd.concat([det] + local_frames, ignore_index=True)
+    return rows, spans, det
 
 
 def _probability_through_time(ages: np.ndarray, spans: list[np.ndarray], n_members: int) -> np.ndarray:
@@ -181,7 +337,9 @@ def detect_series_events(age_cal_bp: np.ndarray, values: np.ndarray, settings: E
     probability : ndarray (T,)
         Share of members inside a reported event at each grid age.
     detections : DataFrame
-        Significant member detections.
+        Significant member detections; ``test`` is ``record`` (whole-record search) or
+        ``local`` (member test at an established event's place); ``event`` is the row of
+        ``events`` a detection belongs to (its member's detection of that event), -1 if none.
     tau_yr : float
         AR(1) persistence time of the null [yr].
     """
@@ -192,19 +350,21 @@ def detect_series_events(age_cal_bp: np.ndarray, values: np.ndarray, settings: E
     x = fill_gaps(values)[::-1]
     step = float(np.abs(np.diff(age_cal_bp)).mean())
     background = int(round(settings.background_yr / step)) if settings.background_yr > 0 else 0
-    work = prepare_series(x, observed, background)
-    # Persistence from each member's own (unevenly spaced) non-empty cells (Mudelsee 2002),
-    # bias-corrected by simulation so that the null matches the data's treatment.
-    tau_steps, _ = matched_null_tau(work, observed, background, rng)
-    tau_yr = tau_steps * step
-    max_exc = max(int(np.floor(settings.max_excursion_yr / step)), 1)
-    penalty = bic_penalty(x.shape[0], "mean", settings.penalty_factor)
-    cands = detect_candidates(work, max_exc, penalty, observed)
-    null = null_maxima(x.shape[0], tau_steps, settings.n_surrogates, max_exc, penalty, rng,
-                       observed=observed, background_points=background)
-    p = monte_carlo_p_values(cands, null)
-    det = _member_detections(x, ages_fwd, cands, p, settings)
-    rows, spans = _events_from_detections(det, cands, p, ages_fwd, n_members, settings)
+    max_exc = max(int(np.floor(settings.max_excursion_yr / step)), 2)
+    members = _search(x, observed, background, max_exc, settings, rng)
+    tau_yr = members.tau_steps * step
+    # The ensemble-median series: cells where at least half of the members have a value.
+    share = observed.mean(axis=1)
+    central = None
+    if np.sum(share >= 0.5) >= 3:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", RuntimeWarning)  # all-NaN cells stay NaN
+            med = np.nanmedian(np.where(observed, x, np.nan), axis=1)
+        med_observed = (share >= 0.5)[:, None]
+        central = _search(fill_gaps(np.where(med_observed, med[:, None], np.nan)), med_observed,
+                          background, max_exc, settings, rng)
+    det = _member_detections(x, ages_fwd, members.cands, members.p, settings)
+    rows, spans, det = _events_from_detections(det, x, ages_fwd, members, central, max_exc, settings)
     events = pd.DataFrame(rows)
     probability = _probability_through_time(age_cal_bp, spans, n_members)
     return events, probability, det, tau_yr
@@ -224,12 +384,14 @@ def detect_core_events(reconstruction, settings: EventSettings, rng: np.random.G
     Returns
     -------
     EventResult
-        ``events`` (columns ``EVENT_COLUMNS``, oldest event first per variable) and
-        ``probability`` (``age_cal_bp, variable, probability``).
+        ``events`` (columns ``EVENT_COLUMNS``, oldest event first per variable),
+        ``probability`` (``age_cal_bp, variable, probability``) and ``onsets``
+        (``event_id, member, onset_cal_bp``: member ``m`` is column ``m`` of the variable's
+        ensemble among members with any value).
     """
     core_id = str(getattr(reconstruction, "core_id", ""))
     notes: list[str] = []
-    event_frames, prob_frames, det_frames = [], [], []
+    event_frames, prob_frames, det_frames, onset_frames = [], [], [], []
     names = sorted(reconstruction.series)
     if settings.variables is not None:
         names = [n for n in names if n in settings.variables]
@@ -246,15 +408,23 @@ def detect_core_events(reconstruction, settings: EventSettings, rng: np.random.G
         events, probability, det, tau_yr = detect_series_events(s.age_cal_bp[span], values, settings, rng)
         prob_frames.append(pd.DataFrame({"age_cal_bp": s.age_cal_bp[span], "variable": name,
                                          "probability": probability}))
+        det.insert(0, "variable", name)
+        det["event_id"] = ""
         if len(events):
+            events["_row"] = np.arange(len(events))
             events = events.sort_values("onset_median", ascending=False, ignore_index=True)
             events.insert(0, "variable", name)
             events.insert(0, "event_id", [f"{name}-E{k + 1:02d}" for k in range(len(events))])
             events.insert(0, "core_id", core_id)
             events["tau_yr"] = tau_yr
             event_frames.append(events)
-        det.insert(0, "variable", name)
-        det_frames.append(det)
+            ids = dict(zip(events["_row"], events["event_id"]))
+            det["event_id"] = [ids.get(int(r), "") for r in det["event"]]
+            taken = det[det["event_id"] != ""]
+            onset_frames.append(pd.DataFrame({"event_id": taken["event_id"].to_numpy(dtype=object),
+                                              "member": taken["member"].to_numpy(dtype=np.int64),
+                                              "onset_cal_bp": taken["onset"].to_numpy(dtype=float)}))
+        det_frames.append(det.drop(columns="event"))
     events = (pd.concat(event_frames, ignore_index=True)[EVENT_COLUMNS] if event_frames
               else pd.DataFrame({c: pd.Series(dtype=object if c in ("core_id", "event_id", "variable", "kind", "direction")
                                               else float) for c in EVENT_COLUMNS}))
@@ -262,4 +432,6 @@ def detect_core_events(reconstruction, settings: EventSettings, rng: np.random.G
                    else pd.DataFrame({"age_cal_bp": pd.Series(dtype=float), "variable": pd.Series(dtype=object),
                                       "probability": pd.Series(dtype=float)}))
     detections = pd.concat(det_frames, ignore_index=True) if det_frames else pd.DataFrame()
-    return EventResult(core_id, events, probability, detections, notes)
+    onsets = (pd.concat(onset_frames, ignore_index=True).sort_values(["event_id", "member"], ignore_index=True)
+              if onset_frames else _empty_onsets())
+    return EventResult(core_id, events, probability, detections, notes, onsets)

@@ -1,0 +1,101 @@
+"""A temporary local Prefect server started early, so its start-up overlaps downcore's own.
+
+Prefect's embedded local mode starts a temporary server (a uvicorn subprocess serving
+``prefect.server.api.server:create_app`` on 127.0.0.1, SQLite under ``PREFECT_HOME``) the first
+time a flow needs the API, and only then: a run waits ~4-8 s for it (measured, see
+../shared/PREFECT.md). downcore starts the very same server process at the top of the
+command, while it reads the config and hashes the inputs, and points Prefect at it; the
+server stops when the run ends. Nothing changes when the user has set ``PREFECT_API_URL``
+(their own server is used) or disabled the temporary server.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import os
+import socket
+import subprocess
+import sys
+import time
+import urllib.error
+import urllib.request
+
+__all__ = ["LocalServer"]
+
+
+def _free_port() -> int:
+    with contextlib.closing(socket.socket(socket.AF_INET, socket.SOCK_STREAM)) as sock:
+        sock.bind(("127.0.0.1", 0))
+        return int(sock.getsockname()[1])
+
+
+class LocalServer:
+    """A temporary Prefect API server subprocess (see the module docstring)."""
+
+    def __init__(self) -> None:
+        self.port = 0
+        self.process: subprocess.Popen | None = None
+        self.url: str | None = None
+
+    @classmethod
+    def start_if_needed(cls) -> "LocalServer | None":
+        """Start a server unless an API URL is configured or temporary servers are disabled."""
+        import prefect
+        from prefect.settings import PREFECT_API_URL, PREFECT_SERVER_EPHEMERAL_ENABLED
+
+        if PREFECT_API_URL.value() or not PREFECT_SERVER_EPHEMERAL_ENABLED.value():
+            return None
+        server = cls()
+        server._spawn(os.path.dirname(os.path.dirname(prefect.__file__)))
+        return server
+
+    def _spawn(self, app_dir: str) -> None:
+        self.port = _free_port()
+        env = {**os.environ, "PREFECT_UI_ENABLED": "0", "PREFECT__SERVER_EPHEMERAL": "1",
+               "PREFECT__SERVER_FINAL": "1"}
+        self._app_dir = app_dir
+        self.process = subprocess.Popen(
+            [sys.executable, "-m", "uvicorn", "--app-dir", app_dir, "--factory",
+             "prefect.server.api.server:create_app", "--host", "127.0.0.1", "--port", str(self.port),
+             "--log-level", "error", "--lifespan", "on"],
+            env=env, stdout=subprocess.DEVNULL)
+
+    def wait_ready(self, timeout_s: float | None = None) -> str:
+        """Block until the server answers its health check; return the API URL."""
+        if self.url:
+            return self.url
+        timeout_s = timeout_s or float(os.environ.get("PREFECT_SERVER_EPHEMERAL_STARTUP_TIMEOUT_SECONDS", 120))
+        deadline = time.monotonic() + timeout_s
+        attempts = 0
+        while time.monotonic() < deadline:
+            assert self.process is not None
+            if self.process.poll() is not None:  # port taken meanwhile, or a crash: try again
+                attempts += 1
+                if attempts > 3:
+                    raise RuntimeError(f"the temporary Prefect server exited with code "
+                                       f"{self.process.returncode}; set PREFECT_API_URL to a running "
+                                       "Prefect server, or check PREFECT_HOME")
+                self._spawn(self._app_dir)
+                continue
+            try:
+                with urllib.request.urlopen(f"http://127.0.0.1:{self.port}/api/health", timeout=2) as reply:
+                    if reply.status == 200:
+                        self.url = f"http://127.0.0.1:{self.port}/api"
+                        return self.url
+            except (urllib.error.URLError, ConnectionError, OSError):
+                pass
+            time.sleep(0.1)
+        self.stop()
+        raise RuntimeError(f"the temporary Prefect server did not start within {timeout_s:.0f} s "
+                           "(raise PREFECT_SERVER_EPHEMERAL_STARTUP_TIMEOUT_SECONDS on a busy machine)")
+
+    def stop(self) -> None:
+        """Stop the server (terminate, then kill after 10 s)."""
+        if self.process is not None and self.process.poll() is None:
+            self.process.terminate()
+            try:
+                self.process.wait(timeout=10)
+            except subprocess.TimeoutExpired:
+                self.process.kill()
+                self.process.wait(timeout=10)
+        self.process = None
