@@ -44,7 +44,8 @@ class Candidates:
     """Candidate events of a batch of series, flattened (arrays of shape (K,)).
 
     ``first``/``second`` are the indices of the departure and return change points (equal for
-    shifts); ``sign`` is the direction of the departure (+1 up, -1 down); ``window_*`` are index windows (inclusive) for the ramp fits: the departure
+    shifts); ``sign`` is the direction of the departure (+1 up, -1 down); ``window_*`` are
+    index windows (inclusive) for the ramp fits: the departure
     ramp spans the segment before and the changed segment, the return ramp the changed
     segment and the one after.
     """

@@ -23,11 +23,12 @@ block lengths against each other; it need not be exact for the test to hold its 
 
 References
 ----------
+(from memory; check before quoting)
 Levin, B., Kline, J. (1985). The cusum test of homogeneity with an application in
-spontaneous abortion epidemiology. Statistics in Medicine 4, 469-488. doi:10.1002/sim.4780040408
+spontaneous abortion epidemiology. Statistics in Medicine 4, 469-488.
 Siegmund, D., Venkatraman, E. S. (1995). Using the generalized likelihood ratio statistic for
-sequential detection of a change-point. Ann. Stat. 23, 255-271. doi:10.1214/aos/1176324466
-Mudelsee, M. (2014). Climate Time Series Analysis, 2nd ed. Springer. doi:10.1007/978-3-319-04450-7
+sequential detection of a change-point. Ann. Stat. 23, 255-271.
+Mudelsee, M. (2014). Climate Time Series Analysis, 2nd ed. Springer.
 """
 
 from __future__ import annotations

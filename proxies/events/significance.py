@@ -14,7 +14,16 @@ detector on ``n_surrogates`` AR(1) surrogates once per ensemble (persistence = m
 members). A member's candidate then has the Monte Carlo p-value
 ``p = (1 + #{null >= z}) / (1 + n_surrogates)`` (Davison & Hinkley 1997, Sect. 4.2; from memory),
 adjusted over the two kinds by min-p (Westfall & Young 1993), which controls the chance of a
-false event anywhere in a member's series at about ``alpha``.
+false event anywhere in a member's series at about ``alpha``. The same functions test the
+ensemble-median series (one series, its own persistence) for the event-level decision in
+:mod:`proxies.events.stage`. :func:`local_null` gives the null of the best excursion block
+within a stretch of given width (the member tests at an established event's place).
+
+Simulated false-alarm rates (this code, 150 ensembles of 60 members x 200 points, 20 % empty
+cells, no event, ``n_surrogates = 99``): share of ensembles with any *significant* event
+0.027 (identical red-noise members), 0.020 (red-noise climate + equal independent member
+errors), 0.013 (climate + 0.3 sd errors), 0.020 (independent members); share of members
+with a whole-record detection 1.5-9 % (``tests/test_event_detection.py``).
 
 References
 ----------
@@ -33,7 +42,8 @@ from proxies.events.persistence import ar1_surrogates, ar1_tau_uneven_members
 from proxies.events.scan import ScanProfile, excursion_scan, top_blocks
 from proxies.reconstruction.grid import fill_gaps
 
-__all__ = ["prepare_series", "top_block_window", "mask_top_block", "matched_null_tau", "null_maxima", "local_null", "local_p_values", "adjusted_p_values",
+__all__ = ["prepare_series", "top_block_window", "mask_top_block", "matched_null_tau", "null_maxima",
+           "local_null", "local_p_values", "adjusted_p_values",
            "monte_carlo_p_values"]
 
 

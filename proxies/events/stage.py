@@ -40,7 +40,7 @@ place*: a member shows a significant excursion when its best block starting in t
 age range exceeds the ``1 - alpha`` quantile of the best block over a stretch of that many
 starts in the members' red-noise surrogates (:func:`proxies.events.significance.local_null`).
 Testing the local hypotheses only after the global one has been rejected is hierarchical
-(gatekeeping) testing (e.g. Meinshausen 2008, Biometrika 95:265, doi:10.1093/biomet/asm092):
+(gatekeeping) testing (e.g. Meinshausen 2008, Biometrika 95:265; from memory):
 the chance of a false *event* stays that of the ensemble test, while the probability no
 longer depends on how long the record is. For events that are not significant, and for
 shifts, the probability stays the share of members whose whole-record search found the event.
