@@ -15,6 +15,9 @@ output with the new one:
 ``different``, ``missing``, ``new``
     A real difference; the new run lacks the output; the new run has an output the record
     lacks.
+``same content``
+    netCDF exports whose variables, coordinates and values are equal (xarray ``equals``) but
+    whose bytes differ (their global attributes name the run folder).
 ``not compared``
     Logs, timings and report files (they hold clock times).
 
@@ -113,7 +116,22 @@ def _verdict(path: str, kind: str, recorded_sha: str, new: dict[str, Any], recor
         agree, detail = compare_tables(read_parquet(recorded_root / path), read_parquet(new_root / path),
                                        rtol, atol)
         return OutputVerdict(path, kind, "within tolerance" if agree else "different", detail)
+    if path.endswith(".nc") and (recorded_root / path).is_file():
+        return _netcdf_verdict(path, kind, recorded_root / path, new_root / path)
     return OutputVerdict(path, kind, "different", "bytes differ")
+
+
+def _netcdf_verdict(path: str, kind: str, recorded: pathlib.Path, new: pathlib.Path) -> OutputVerdict:
+    """netCDF files carry the run folder's name in their global attributes (and HDF5 object
+    headers), so their bytes differ between runs: compare their content instead."""
+    import xarray as xr
+
+    with xr.open_dataset(recorded) as a, xr.open_dataset(new) as b:
+        if not a.equals(b):
+            return OutputVerdict(path, kind, "different", "variables, coordinates or values differ")
+        changed = sorted(k for k in set(a.attrs) | set(b.attrs) if a.attrs.get(k) != b.attrs.get(k))
+    detail = "same variables and values" + (f"; global attributes differ: {', '.join(changed)}" if changed else "")
+    return OutputVerdict(path, kind, "same content", detail)
 
 
 def compare_outputs(recorded: dict, recorded_root: pathlib.Path, new: dict, new_root: pathlib.Path,

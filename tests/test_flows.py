@@ -216,3 +216,10 @@ def test_cli_run_exit_codes(small_archive, tmp_path):
     assert "SYN-003" in result.output and "failed" in result.output and str(out) in result.output
     again = CliRunner().invoke(main, args)
     assert again.exit_code == 2 and "not empty" in again.output
+
+
+def test_recompute_replaces_stored_results_with_the_same_bytes(small_archive, first_run):
+    root, config = small_archive
+    again = _run(config, root / "runs" / "recomputed", root / "cache", recompute=True)
+    assert not again.timings["reused"].any()
+    assert _parquet_bytes(again.run_dir) == _parquet_bytes(first_run.run_dir)

@@ -13,10 +13,10 @@ random stream is ``rng_for(run_seed, stage, core_id)``, and tables are written i
 
 from __future__ import annotations
 
+import collections
 import datetime as _dt
 import pathlib
 import queue
-import time
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -104,8 +104,11 @@ _RUNNERS = {"ingest": stages.run_ingest, "training": stages.run_training,
 class _Driver:
     """Submits each core's next task when its previous one finishes."""
 
-    def __init__(self, plan: RunPlan, run_dir: str, store: WorkStore, recompute: bool, observer: Any):
+    def __init__(self, plan: RunPlan, run_dir: str, store: WorkStore, recompute: bool, observer: Any,
+                 inline_stages: tuple[str, ...] = ()):
         self.plan, self.run_dir, self.store, self.recompute = plan, run_dir, store, recompute
+        self.inline_stages = frozenset(inline_stages)
+        self.inline: collections.deque = collections.deque()
         self.observer = observer
         self.done: queue.Queue = queue.Queue()
         self.pending = 0
@@ -134,6 +137,9 @@ class _Driver:
             if found is not None:
                 self.done.put((track, stage, _Finished(found)))
                 return
+        if stage in self.inline_stages:
+            self.inline.append((track, stage, task, kwargs))
+            return
         future = task.submit(**kwargs)
         future.add_done_callback(lambda f, t=track, s=stage: self.done.put((t, s, f)))
 
@@ -246,10 +252,18 @@ class _Driver:
                   + (" (reused from the cache)" if result.get("cached") else ""))
         self._next(track, stage)
 
+    def _run_one_inline(self) -> None:
+        track, stage, task, kwargs = self.inline.popleft()
+        state = task(**kwargs, return_state=True)
+        self.done.put((track, stage, _Finished(state.result(raise_on_failure=False))))
+
     def run(self) -> list[CoreTrack]:
         self.observer.started(len(self.plan.core_folders))
         self.start()
         while self.pending:
+            if self.inline and self.done.empty():
+                self._run_one_inline()  # only when no finished work waits to be dispatched
+                continue
             track, stage, future = self.done.get()
             self.pending -= 1
             result = future.result(raise_on_failure=False)
@@ -262,8 +276,13 @@ class _Driver:
 
 @flow(name="downcore-archive", validate_parameters=False, persist_result=False, log_prints=False)
 def archive_flow(plan: RunPlan, run_dir: str, cache_dir: str, recompute: bool = False,
-                 observer_id: str | None = None) -> dict:
+                 observer_id: str | None = None, inline_stages: tuple[str, ...] = ()) -> dict:
     """Run every core of ``plan`` into ``run_dir`` (see the module docstring).
+
+    ``inline_stages`` run as task runs in the flow's own process instead of being submitted
+    to the task runner. On Dask, where a submitted task costs ~60-80 ms (measured, see
+    ../shared/PREFECT.md), the light stages (ingest ~0.05 s, calibration ~0.1 s, outputs:
+    hard links) are run inline so that the workers spend their time on the heavy ones.
 
     Returns
     -------
@@ -274,7 +293,7 @@ def archive_flow(plan: RunPlan, run_dir: str, cache_dir: str, recompute: bool = 
     """
     observer = _OBSERVERS.get(observer_id or "", _Silent())
     store = WorkStore(cache_dir)
-    driver = _Driver(plan, run_dir, store, recompute, observer)
+    driver = _Driver(plan, run_dir, store, recompute, observer, tuple(inline_stages))
     tracks = driver.run()
     notes = [f"training set {n}: {m}" for n, m in sorted(driver.training_failed.items())]
     reconstructions = {t.name: t.entries["reconstruction"] for t in tracks

@@ -12,7 +12,6 @@ from __future__ import annotations
 
 import contextlib
 import contextvars
-import os
 import pathlib
 import threading
 import time
@@ -26,7 +25,7 @@ from pipelines.flows.keys import content_key
 from pipelines.flows.plan import RunPlan
 from pipelines.flows.store import WorkStore, load_object, save_object
 from pipelines.runfolder import atomic_write_parquet, sha256_file
-from proxies.problems import InputError, Problem
+from proxies.problems import InputError
 from proxies.seeding import rng_for
 
 __all__ = ["StageSkipped", "NotCached", "probe", "run_ingest", "run_training", "run_chronology", "run_calibration",
@@ -407,16 +406,8 @@ def run_stack(plan: RunPlan, reconstructions: dict[str, dict], store: WorkStore,
     return _cached_or_build(store, "stack", key, produce, {"core_id": None}, recompute)
 
 
-def environment_fingerprint() -> dict[str, str]:
-    """BLAS pinning as seen by this process (for the manifest)."""
-    return {name: os.environ.get(name, "") for name in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS",
-                                                         "MKL_NUM_THREADS")}
-
-
 def problem_text(error: BaseException) -> str:
     """One readable paragraph for a failed stage."""
-    if isinstance(error, InputError):
-        return str(error)
-    if isinstance(error, Problem):  # pragma: no cover - defensive
+    if isinstance(error, (InputError, OSError)) and str(error):
         return str(error)
     return f"{type(error).__name__}: {error}"

@@ -101,7 +101,3 @@ def load_object(entry: dict[str, Any], name: str = "result") -> Any:
     """Load the pickled result of a finished entry."""
     with open(entry["paths"][name], "rb") as handle:
         return pickle.load(handle)
-
-
-def path_exists(path: str) -> bool:
-    return os.path.isfile(path)
