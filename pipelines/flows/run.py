@@ -22,7 +22,7 @@ import pandas as pd
 from pipelines.flows.plan import RunPlan, build_plan
 from pipelines.flows.runners import ExecutorChoice, prefect_run_settings, task_runner_for
 from pipelines.manifest import build_manifest, collect_input_files, hash_inputs, write_manifest
-from pipelines.runfolder import (IN_PROGRESS_MARKER, atomic_copy, atomic_write_parquet,
+from pipelines.runfolder import (IN_PROGRESS_MARKER, atomic_copy, atomic_write_json, atomic_write_parquet,
                                  atomic_write_text, create_run_folder)
 
 __all__ = ["RunOutcome", "execute_run", "default_cache_dir", "resolved_config"]
@@ -179,19 +179,26 @@ def execute_run(config_path: str | os.PathLike[str], out_dir: str | os.PathLike[
             progress.close()
     notes = list(result["notes"])
     _write_run_tables(run_dir, result)
+
+    def manifest_now() -> dict:
+        manifest = build_manifest(config_path=plan.config_path, config_text=plan.config_text,
+                                  resolved_config=resolved_config(plan), inputs=inputs,
+                                  run_seed=plan.run_seed, streams=_streams(result),
+                                  executor=choice.describe(), cores=result["cores"], run_dir=run_dir,
+                                  started_utc=started_utc, seconds=time.perf_counter() - started,
+                                  known_hashes=result.get("known_hashes"))
+        manifest["notes"] = notes
+        manifest["cache_dir"] = str(cache)
+        manifest["code_fingerprint"] = plan.fingerprint
+        manifest["options"] = {"report": bool(report), "recompute": bool(recompute), "resume": bool(resume)}
+        return manifest
+
     if report:
+        # the report shows the run's facts: give it a provisional manifest in the marker
+        atomic_write_json(run_dir / IN_PROGRESS_MARKER, manifest_now())
         _write_report(run_dir, notes)
-    seconds = time.perf_counter() - started
-    manifest = build_manifest(config_path=plan.config_path, config_text=plan.config_text,
-                              resolved_config=resolved_config(plan), inputs=inputs,
-                              run_seed=plan.run_seed, streams=_streams(result),
-                              executor=choice.describe(), cores=result["cores"], run_dir=run_dir,
-                              started_utc=started_utc, seconds=seconds,
-                              known_hashes=result.get("known_hashes"))
-    manifest["notes"] = notes
-    manifest["cache_dir"] = str(cache)
-    manifest["code_fingerprint"] = plan.fingerprint
-    manifest["options"] = {"report": bool(report), "recompute": bool(recompute), "resume": bool(resume)}
+    manifest = manifest_now()
+    seconds = manifest["seconds"]
     write_manifest(run_dir, manifest)
     (run_dir / IN_PROGRESS_MARKER).unlink(missing_ok=True)
     return RunOutcome(run_dir=run_dir, summary=pd.DataFrame(result["cores"]),

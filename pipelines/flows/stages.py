@@ -259,10 +259,12 @@ def run_chronology(plan: RunPlan, ingest: dict, store: WorkStore, recompute: boo
         write_table(staged / "chronology.parquet", _table(result.summary))
         write_table(staged / "age_ensemble.parquet", members)
         write_table(staged / "dates.parquet", _table(result.dates))
+        write_table(staged / "date_densities.parquet", _table(getattr(result, "date_densities", None)))
         return {"files": {"result": save_object(staged, result),
                           "chronology.parquet": "chronology.parquet",
                           "age_ensemble.parquet": "age_ensemble.parquet",
-                          "dates.parquet": "dates.parquet"},
+                          "dates.parquet": "dates.parquet",
+                          "date_densities.parquet": "date_densities.parquet"},
                 "warnings": _unique(caught + list(result.warnings or []))}
 
     return _cached_or_build(store, "chronology", key, produce, {"core_id": core_id}, recompute)
@@ -372,8 +374,10 @@ def run_events(plan: RunPlan, reconstruction: dict, store: WorkStore, recompute:
             result = detect_core_events(rec, plan.settings["events"], rng_for(plan.run_seed, "events", core_id))
         write_table(staged / "events.parquet", _table(result.events))
         write_table(staged / "event_probability.parquet", _table(result.probability))
+        write_table(staged / "event_onsets.parquet", _table(getattr(result, "onsets", None)))
         return {"files": {"result": save_object(staged, result), "events.parquet": "events.parquet",
-                          "event_probability.parquet": "event_probability.parquet"},
+                          "event_probability.parquet": "event_probability.parquet",
+                          "event_onsets.parquet": "event_onsets.parquet"},
                 "warnings": _unique(caught + list(getattr(result, "warnings", []) or []))}
 
     return _cached_or_build(store, "events", key, produce, {"core_id": core_id}, recompute)

@@ -186,18 +186,37 @@ def _core_from_summary(row: pd.Series) -> CoreData:
     )
 
 
+def _core_seconds(path: pathlib.Path) -> dict[str, float]:
+    """Seconds spent per core, summed over its stages, from the run's ``timings.csv``.
+
+    Timings live outside ``summary.parquet`` so that the summary stays byte-identical
+    between runs; a missing or unreadable file gives no timings.
+    """
+    if not path.is_file():
+        return {}
+    try:
+        timings = pd.read_csv(path)
+        return {str(k): float(v) for k, v in timings.groupby("core_id")["seconds"].sum().items()}
+    except (OSError, ValueError, KeyError, pd.errors.ParserError):
+        return {}
+
+
 def _read_manifest(folder: pathlib.Path, notes: list[str]) -> dict[str, Any]:
+    """The run's manifest, or -- while the run is still writing its report -- the
+    provisional manifest the run keeps in its in-progress marker (same fields; the final
+    manifest adds the hashes of the report itself)."""
     path = folder / "manifest.json"
     if not path.is_file():
-        # a run writes its report before its manifest (which hashes the report): only a
-        # folder that is not being written is missing something
-        if not (folder / IN_PROGRESS_MARKER).exists():
+        marker = folder / IN_PROGRESS_MARKER
+        if not marker.exists():
             notes.append("manifest.json is missing (an unfinished run?)")
-        return {}
+            return {}
+        path = marker
     try:
         data = json.loads(path.read_text(encoding="utf-8"))
     except ValueError as error:
-        notes.append(f"manifest.json is not valid JSON ({error})")
+        if path.name == "manifest.json":
+            notes.append(f"manifest.json is not valid JSON ({error})")
         return {}
     return data if isinstance(data, dict) else {}
 
@@ -246,6 +265,9 @@ def read_run(run_dir: str | pathlib.Path) -> RunData:
         for _, row in summary.iterrows():
             core = _core_from_summary(row)
             cores.setdefault(core.core_id, core)
+    for core_id, seconds in _core_seconds(folder / "timings.csv").items():
+        if core_id in cores and cores[core_id].seconds is None:
+            cores[core_id].seconds = seconds
     for sub in sorted(p for p in folder.iterdir() if p.is_dir()):
         if sub.name in NOT_CORE_FOLDERS or sub.name.startswith("."):
             continue
