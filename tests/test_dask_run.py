@@ -33,7 +33,7 @@ def test_dask_cluster_run_gives_the_same_bytes_as_threads(tmp_path):
         remote = execute_run(config, tmp_path / "dask-run", cache_dir=tmp_path / "cache-dask",
                              choice=ExecutorChoice(dask_address=cluster.scheduler_address), report=False)
     assert list(remote.summary["status"]) == list(local.summary["status"]) == ["ok", "ok", "ok", "failed"]
-    assert not remote.timings["reused"].any(), "the Dask run must compute, not reuse the cache"
+    assert not remote.timings["reused"].any(), f"the Dask run must compute, not reuse the cache:\n{remote.timings}"
     local_bytes, remote_bytes = _parquet(local.run_dir), _parquet(remote.run_dir)
     assert set(local_bytes) == set(remote_bytes) and len(local_bytes) >= 30
     differing = [name for name in local_bytes if local_bytes[name] != remote_bytes[name]]

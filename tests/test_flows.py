@@ -20,10 +20,10 @@ from pipelines.runfolder import RunFolderError, read_parquet
 
 pytestmark = pytest.mark.usefixtures("prefect_harness")
 
-CORE_FILES = {"chronology.parquet", "age_ensemble.parquet", "dates.parquet", "calibration.parquet",
+CORE_FILES = {"chronology.parquet", "age_ensemble.parquet", "dates.parquet", "date_densities.parquet", "calibration.parquet",
               "calibrated_samples.parquet", "calibration_diagnostics.parquet",
               "reconstruction.parquet", "reconstruction_ensemble.parquet", "events.parquet",
-              "event_probability.parquet", "log.txt"}
+              "event_probability.parquet", "event_onsets.parquet", "log.txt"}
 
 
 def _parquet_bytes(run: pathlib.Path) -> dict[str, bytes]:

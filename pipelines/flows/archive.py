@@ -105,9 +105,10 @@ class _Driver:
     """Submits each core's next task when its previous one finishes."""
 
     def __init__(self, plan: RunPlan, run_dir: str, store: WorkStore, recompute: bool, observer: Any,
-                 inline_stages: tuple[str, ...] = ()):
+                 inline_stages: tuple[str, ...] = (), chain: bool = False):
         self.plan, self.run_dir, self.store, self.recompute = plan, run_dir, store, recompute
         self.inline_stages = frozenset(inline_stages)
+        self.chain = chain
         self.inline: collections.deque = collections.deque()
         self.observer = observer
         self.done: queue.Queue = queue.Queue()
@@ -159,7 +160,13 @@ class _Driver:
 
     def _next(self, track: CoreTrack, finished: str) -> None:
         e = track.entries
-        if finished == "ingest":
+        if finished == "ingest" and self.chain:
+            if self.training_left:
+                self.waiting_for_training.append(track)
+                track.say("waiting for the training sets")
+            else:
+                self._submit_chain(track)
+        elif finished == "ingest":
             self._submit(track, "chronology", tasks.chronology_task, ingest=e["ingest"], **self._common(track))
         elif finished == "chronology":
             if self.training_left:
@@ -176,10 +183,42 @@ class _Driver:
         else:
             self._publish(track)
 
-    def _calibrate(self, track: CoreTrack) -> None:
+    def _note_failed_training(self, track: CoreTrack) -> None:
         if self.training_failed:
             note = "; ".join(f"training set {n} failed: {m}" for n, m in sorted(self.training_failed.items()))
             track.notes.append(f"calibration without the failed training sets ({note})")
+
+    def _submit_chain(self, track: CoreTrack) -> None:
+        """Submit all science stages of a core as one task; a core whose chronology is
+        already in the work store goes stage by stage instead (each looked up, no task)."""
+        e = track.entries
+        if not self.recompute and stages.probe(stages.run_chronology, plan=self.plan, ingest=e["ingest"],
+                                               store=self.store, recompute=False) is not None:
+            self._submit(track, "chronology", tasks.chronology_task, ingest=e["ingest"], **self._common(track))
+            return
+        self._note_failed_training(track)
+        self.pending += 1
+        track.stage = "chronology"
+        self.observer.stage(track.label, "chronology")
+        future = tasks.core_chain_task.submit(ingest=e["ingest"], training=dict(sorted(self.training.items())),
+                                              **self._common(track))
+        future.add_done_callback(lambda f, t=track: self.done.put((t, "chain", f)))
+
+    def _on_chain(self, track: CoreTrack, results: Any) -> None:
+        """Record each stage of a chained task as if it had run alone; the last one decides
+        what happens next (publish the core)."""
+        if isinstance(results, BaseException):
+            self._on_core(track, "chronology", results)
+            return
+        for index, (stage, result) in enumerate(results):
+            outcome = tasks.StageFailed(result["failed"]) if "failed" in result else result
+            if index == len(results) - 1:
+                self._on_core(track, stage, outcome)
+            else:
+                self._record(track, stage, outcome)
+
+    def _calibrate(self, track: CoreTrack) -> None:
+        self._note_failed_training(track)
         e = track.entries
         self._submit(track, "calibration", tasks.calibration_task, ingest=e["ingest"],
                      chronology=e["chronology"], training=dict(sorted(self.training.items())),
@@ -212,7 +251,10 @@ class _Driver:
         if not self.training_left:
             waiting, self.waiting_for_training = self.waiting_for_training, []
             for track in waiting:
-                self._calibrate(track)
+                if self.chain:
+                    self._submit_chain(track)
+                else:
+                    self._calibrate(track)
 
     def _on_core(self, track: CoreTrack, stage: str, result: Any) -> None:
         if stage == "outputs":
@@ -222,17 +264,23 @@ class _Driver:
                 self.known_hashes.update(result.get("known_hashes", {}))
             self.observer.finished(track)
             return
+        if self._record(track, stage, result):
+            self._next(track, stage)
+
+    def _record(self, track: CoreTrack, stage: str, result: Any) -> bool:
+        """Record a finished stage of a core; False when the core stops here (failed,
+        skipped or a duplicate id: then it has been published)."""
         if isinstance(result, BaseException):
             track.status, track.error = "failed", f"{stage}: {result}"
             track.say(f"{stage} FAILED: {result}")
             self._publish(track)
-            return
+            return False
         track.seconds[stage] = float(result.get("seconds", 0.0))
         if "skipped" in result:
             track.notes.append(result["skipped"])
             track.say(result["skipped"])
             self._publish(track)
-            return
+            return False
         if stage == "ingest":
             core_id = result["core_id"]
             if core_id in self.ids:
@@ -240,7 +288,7 @@ class _Driver:
                 track.error = (f"ingest: core id {core_id!r} is also used by {self.ids[core_id]} -- "
                                "give every core its own id")
                 self._publish(track)
-                return
+                return False
             self.ids[core_id] = track.folder
             track.core_id = core_id
         track.entries[stage] = result
@@ -250,7 +298,7 @@ class _Driver:
         track.notes += [f"{stage}: {n}" for n in result.get("notes", [])]
         track.say(f"{stage} done in {result.get('seconds', 0.0):.2f} s"
                   + (" (reused from the cache)" if result.get("cached") else ""))
-        self._next(track, stage)
+        return True
 
     def _run_one_inline(self) -> None:
         track, stage, task, kwargs = self.inline.popleft()
@@ -269,6 +317,8 @@ class _Driver:
             result = future.result(raise_on_failure=False)
             if track is None:
                 self._on_training(stage.split(":", 1)[1], result)
+            elif stage == "chain":
+                self._on_chain(track, result)
             else:
                 self._on_core(track, stage, result)
         return self.tracks
@@ -276,13 +326,16 @@ class _Driver:
 
 @flow(name="downcore-archive", validate_parameters=False, persist_result=False, log_prints=False)
 def archive_flow(plan: RunPlan, run_dir: str, cache_dir: str, recompute: bool = False,
-                 observer_id: str | None = None, inline_stages: tuple[str, ...] = ()) -> dict:
+                 observer_id: str | None = None, inline_stages: tuple[str, ...] = (),
+                 chain: bool = False) -> dict:
     """Run every core of ``plan`` into ``run_dir`` (see the module docstring).
 
     ``inline_stages`` run as task runs in the flow's own process instead of being submitted
     to the task runner. On Dask, where a submitted task costs ~60-80 ms (measured, see
     ../shared/PREFECT.md), the light stages (ingest ~0.05 s, calibration ~0.1 s, outputs:
-    hard links) are run inline so that the workers spend their time on the heavy ones.
+    hard links) are run inline so that the workers spend their time on the heavy ones, and
+    with ``chain`` the science stages of a core go to a worker as one task (each stage still
+    cached on its own).
 
     Returns
     -------
@@ -293,7 +346,7 @@ def archive_flow(plan: RunPlan, run_dir: str, cache_dir: str, recompute: bool = 
     """
     observer = _OBSERVERS.get(observer_id or "", _Silent())
     store = WorkStore(cache_dir)
-    driver = _Driver(plan, run_dir, store, recompute, observer, tuple(inline_stages))
+    driver = _Driver(plan, run_dir, store, recompute, observer, tuple(inline_stages), chain)
     tracks = driver.run()
     notes = [f"training set {n}: {m}" for n, m in sorted(driver.training_failed.items())]
     reconstructions = {t.name: t.entries["reconstruction"] for t in tracks

@@ -171,7 +171,8 @@ def execute_run(config_path: str | os.PathLike[str], out_dir: str | os.PathLike[
         with prefect_run_settings(choice, api_url=api_url):
             result = archive_flow.with_options(task_runner=runner)(
                 plan=plan, run_dir=str(run_dir), cache_dir=str(cache), recompute=recompute,
-                observer_id=observer_id, inline_stages=choice.inline_stages())
+                observer_id=observer_id, inline_stages=choice.inline_stages(),
+                chain=choice.chain_core_stages())
     finally:
         if observer_id:
             unregister_observer(observer_id)

@@ -63,6 +63,11 @@ class ExecutorChoice:
         more than ingest, calibration or publishing a core folder take (threads: none)."""
         return ("ingest", "calibration", "outputs") if (self.dask_address or self.dask_local) else ()
 
+    def chain_core_stages(self) -> bool:
+        """On Dask, a core's science stages go to a worker as one task (fewer task runs: the
+        orchestration of each costs CPU that the workers need)."""
+        return bool(self.dask_address or self.dask_local)
+
     def describe(self) -> dict[str, Any]:
         if self.dask_address:
             return {"runner": "dask", "address": self.dask_address}

@@ -26,7 +26,11 @@ from pipelines.flows.store import WorkStore
 from pipelines.runfolder import atomic_write_bytes, link_or_copy, publish_folder, staging_folder
 
 __all__ = ["StageFailed", "ingest_task", "training_task", "chronology_task", "calibration_task",
-           "reconstruction_task", "events_task", "stack_task", "outputs_task"]
+           "reconstruction_task", "events_task", "core_chain_task", "CHAIN_STAGES", "stack_task",
+           "outputs_task"]
+
+#: the stages a chained task runs, in order
+CHAIN_STAGES = ("chronology", "calibration", "reconstruction", "events")
 
 _OPTIONS: dict[str, Any] = {"cache_policy": NO_CACHE, "persist_result": False, "retries": 0,
                             "log_prints": False}
@@ -84,6 +88,50 @@ def events_task(plan: RunPlan, label: str, reconstruction: dict, store: WorkStor
                 recompute: bool = False) -> dict:
     """Detect abrupt events in the reconstruction."""
     return _guarded(stages.run_events, plan, reconstruction, store, recompute)
+
+
+def run_core_chain(plan: RunPlan, ingest: dict, training: dict, store: WorkStore,
+                   recompute: bool = False) -> list[tuple[str, dict]]:
+    """Run chronology -> calibration -> reconstruction -> events of one core in one go.
+
+    Each stage still goes through its own runner, so it is cached under its own content key
+    exactly as when submitted alone (and gives the same bytes). The chain stops at the
+    first skipped or failed stage.
+
+    Returns
+    -------
+    list of (stage, result)
+        One entry per stage run; a failed stage's result is ``{"failed": message}``.
+    """
+    entries: dict[str, dict] = {"ingest": ingest}
+    calls = {
+        "chronology": lambda: stages.run_chronology(plan, ingest, store, recompute),
+        "calibration": lambda: stages.run_calibration(plan, ingest, entries["chronology"], training,
+                                                      store, recompute),
+        "reconstruction": lambda: stages.run_reconstruction(plan, ingest, entries["chronology"],
+                                                            entries["calibration"], store, recompute),
+        "events": lambda: stages.run_events(plan, entries["reconstruction"], store, recompute),
+    }
+    done: list[tuple[str, dict]] = []
+    for stage in CHAIN_STAGES:
+        try:
+            result = _guarded(calls[stage])
+        except StageFailed as failed:
+            done.append((stage, {"failed": str(failed)}))
+            break
+        done.append((stage, result))
+        if "skipped" in result:
+            break
+        entries[stage] = result
+    return done
+
+
+@task(name="core-chain", task_run_name="core-chain[{label}]", **_OPTIONS)
+def core_chain_task(plan: RunPlan, label: str, ingest: dict, training: dict, store: WorkStore,
+                    recompute: bool = False) -> list[tuple[str, dict]]:
+    """All science stages of one core as one task (used on Dask, where each submitted task
+    costs ~60-80 ms of orchestration that competes with the workers for the CPUs)."""
+    return run_core_chain(plan, ingest, training, store, recompute)
 
 
 @task(name="stack", task_run_name="stack[{label}]", **_OPTIONS)
