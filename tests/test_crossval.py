@@ -128,3 +128,10 @@ def test_performance_table_and_component_rule():
     assert row["average_bias"] == pytest.approx(3.0 * np.mean(observed >= 9.0))
     assert row["rmsep"] == pytest.approx(np.sqrt(np.mean((predicted - observed) ** 2)))
     assert row["r2"] == pytest.approx(np.corrcoef(observed, predicted)[0, 1] ** 2)
+
+
+def test_settings_name_every_validation_scheme():
+    """The settings list the schemes without importing crossval (and scikit-learn)."""
+    from proxies.calibration import crossval, settings
+
+    assert settings.SCHEMES == crossval.SCHEMES

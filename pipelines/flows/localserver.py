@@ -49,16 +49,27 @@ class LocalServer:
         server._spawn(os.path.dirname(os.path.dirname(prefect.__file__)))
         return server
 
+    def _log_path(self) -> str:
+        """Where the server's own messages go (its shutdown prints harmless tracebacks when
+        events are still being flushed; they belong in a file, not on the user's screen)."""
+        from prefect.settings import PREFECT_HOME
+
+        folder = str(PREFECT_HOME.value())
+        os.makedirs(folder, exist_ok=True)
+        return os.path.join(folder, "downcore-local-server.log")
+
     def _spawn(self, app_dir: str) -> None:
         self.port = _free_port()
         env = {**os.environ, "PREFECT_UI_ENABLED": "0", "PREFECT__SERVER_EPHEMERAL": "1",
                "PREFECT__SERVER_FINAL": "1"}
         self._app_dir = app_dir
+        if getattr(self, "_log", None) is None:
+            self._log = open(self._log_path(), "ab")  # noqa: SIM115 - closed in stop()
         self.process = subprocess.Popen(
             [sys.executable, "-m", "uvicorn", "--app-dir", app_dir, "--factory",
              "prefect.server.api.server:create_app", "--host", "127.0.0.1", "--port", str(self.port),
              "--log-level", "error", "--lifespan", "on"],
-            env=env, stdout=subprocess.DEVNULL)
+            env=env, stdout=subprocess.DEVNULL, stderr=self._log)
 
     def wait_ready(self, timeout_s: float | None = None) -> str:
         """Block until the server answers its health check; return the API URL."""
@@ -73,8 +84,8 @@ class LocalServer:
                 attempts += 1
                 if attempts > 3:
                     raise RuntimeError(f"the temporary Prefect server exited with code "
-                                       f"{self.process.returncode}; set PREFECT_API_URL to a running "
-                                       "Prefect server, or check PREFECT_HOME")
+                                       f"{self.process.returncode} (its messages: {self._log_path()}); "
+                                       "set PREFECT_API_URL to a running Prefect server, or check PREFECT_HOME")
                 self._spawn(self._app_dir)
                 continue
             try:
@@ -99,3 +110,6 @@ class LocalServer:
                 self.process.kill()
                 self.process.wait(timeout=10)
         self.process = None
+        if getattr(self, "_log", None) is not None:
+            self._log.close()
+            self._log = None

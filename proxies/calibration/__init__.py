@@ -10,18 +10,29 @@
 - :mod:`.stage` -- :func:`fit_transfer_function` and :func:`calibrate_core`.
 """
 
-from .data import InstrumentalSeries, TrainingSet
-from .equations import PUBLISHED_EQUATIONS, Coefficient, PublishedEquation, published_equation
-from .mat import MAT
-from .settings import CalibrationSettings, InstrumentalSpec, ProxyCalibration, TrainingSpec
-from .stage import (CalibratedRecord, CalibrationResult, FittedTransfer, calibrate_core,
-                    fit_transfer_function)
-from .wa import WA
-from .wapls import WAPLS
+from proxies._lazy import lazy_exports
 
-__all__ = [
-    "WA", "WAPLS", "MAT", "TrainingSet", "InstrumentalSeries", "CalibrationSettings",
-    "ProxyCalibration", "TrainingSpec", "InstrumentalSpec", "FittedTransfer",
-    "CalibratedRecord", "CalibrationResult", "fit_transfer_function", "calibrate_core",
-    "PUBLISHED_EQUATIONS", "PublishedEquation", "Coefficient", "published_equation",
-]
+#: public name -> module it lives in (imported on first use)
+_EXPORTS = {
+    "CalibratedRecord": ".stage",
+    "CalibrationResult": ".stage",
+    "CalibrationSettings": ".settings",
+    "Coefficient": ".equations",
+    "FittedTransfer": ".stage",
+    "InstrumentalSeries": ".data",
+    "InstrumentalSpec": ".settings",
+    "MAT": ".mat",
+    "PUBLISHED_EQUATIONS": ".equations",
+    "ProxyCalibration": ".settings",
+    "PublishedEquation": ".equations",
+    "TrainingSet": ".data",
+    "TrainingSpec": ".settings",
+    "WA": ".wa",
+    "WAPLS": ".wapls",
+    "calibrate_core": ".stage",
+    "fit_transfer_function": ".stage",
+    "published_equation": ".equations",
+}
+
+__all__ = sorted(_EXPORTS)
+__getattr__, __dir__ = lazy_exports(__name__, _EXPORTS)

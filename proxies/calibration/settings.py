@@ -17,8 +17,11 @@ from typing import Any, Mapping
 from proxies.problems import InputError, Problem
 
 from .assemblage import TRANSFORMS
-from .crossval import SCHEMES
 from .equations import PUBLISHED_EQUATIONS
+
+#: validation schemes of :mod:`proxies.calibration.crossval` (named here so that reading
+#: settings does not import scikit-learn; a test checks that the two lists agree)
+SCHEMES = ("loo", "kfold", "bootstrap", "hblock")
 
 __all__ = ["ProxyCalibration", "CalibrationSettings", "TrainingSpec", "InstrumentalSpec",
            "METHODS", "COUNTS_KEY"]

@@ -9,28 +9,23 @@
 - :mod:`~proxies.chronology.stage` -- :func:`build_chronology`, the pipeline's seam.
 """
 
-from proxies.chronology.calibrate import (
-    CalibratedDates,
-    CurveRangeError,
-    calibrate_calendar,
-    calibrate_radiocarbon,
-    hpd_ranges,
-)
-from proxies.chronology.curves import CalibrationCurve, curve_from_table, mix_curves, parse_curve_text
-from proxies.chronology.settings import ChronologySettings
-from proxies.chronology.stage import ChronologyResult, build_chronology
+from proxies._lazy import lazy_exports
 
-__all__ = [
-    "CalibratedDates",
-    "CalibrationCurve",
-    "ChronologyResult",
-    "ChronologySettings",
-    "CurveRangeError",
-    "build_chronology",
-    "calibrate_calendar",
-    "calibrate_radiocarbon",
-    "curve_from_table",
-    "hpd_ranges",
-    "mix_curves",
-    "parse_curve_text",
-]
+#: public name -> module it lives in (imported on first use)
+_EXPORTS = {
+    "CalibratedDates": ".calibrate",
+    "CalibrationCurve": ".curves",
+    "ChronologyResult": ".stage",
+    "ChronologySettings": ".settings",
+    "CurveRangeError": ".calibrate",
+    "build_chronology": ".stage",
+    "calibrate_calendar": ".calibrate",
+    "calibrate_radiocarbon": ".calibrate",
+    "curve_from_table": ".curves",
+    "hpd_ranges": ".calibrate",
+    "mix_curves": ".curves",
+    "parse_curve_text": ".curves",
+}
+
+__all__ = sorted(_EXPORTS)
+__getattr__, __dir__ = lazy_exports(__name__, _EXPORTS)

@@ -9,7 +9,16 @@
 - :mod:`~proxies.events.stage` -- :func:`detect_core_events`, the stage function.
 """
 
-from proxies.events.settings import EventSettings
-from proxies.events.stage import EVENT_COLUMNS, EventResult, detect_core_events, detect_series_events
+from proxies._lazy import lazy_exports
 
-__all__ = ["EventSettings", "EventResult", "detect_core_events", "detect_series_events", "EVENT_COLUMNS"]
+#: public name -> module it lives in (imported on first use)
+_EXPORTS = {
+    "EVENT_COLUMNS": ".stage",
+    "EventResult": ".stage",
+    "EventSettings": ".settings",
+    "detect_core_events": ".stage",
+    "detect_series_events": ".stage",
+}
+
+__all__ = sorted(_EXPORTS)
+__getattr__, __dir__ = lazy_exports(__name__, _EXPORTS)

@@ -7,10 +7,17 @@
 - :mod:`~proxies.reconstruction.stage` -- :func:`reconstruct_core`, the stage function.
 """
 
-from proxies.reconstruction.settings import ReconstructionSettings
-from proxies.reconstruction.stack import stack_records
-from proxies.reconstruction.stage import (GridSeries, ReconstructionResult, member_column_names,
-                                          reconstruct_core)
+from proxies._lazy import lazy_exports
 
-__all__ = ["ReconstructionSettings", "GridSeries", "ReconstructionResult", "reconstruct_core",
-           "stack_records", "member_column_names"]
+#: public name -> module it lives in (imported on first use)
+_EXPORTS = {
+    "GridSeries": ".stage",
+    "ReconstructionResult": ".stage",
+    "ReconstructionSettings": ".settings",
+    "member_column_names": ".stage",
+    "reconstruct_core": ".stage",
+    "stack_records": ".stack",
+}
+
+__all__ = sorted(_EXPORTS)
+__getattr__, __dir__ = lazy_exports(__name__, _EXPORTS)
