@@ -28,6 +28,11 @@ from pipelines.flows.store import WorkStore
 
 __all__ = ["archive_flow", "core_flow", "CoreTrack", "register_observer", "unregister_observer"]
 
+#: on Dask, up to this many cores' science stages go to a worker as one task: each task
+#: run costs orchestration CPU in the flow process and the Prefect server (~0.1-0.2 s,
+#: measured) that on a small machine competes with the workers
+CHAIN_BATCH_CORES = 4
+
 #: per-core stage order after ingest (outputs follow the last stage reached)
 CORE_STAGES = ("ingest", "chronology", "calibration", "reconstruction", "events")
 
@@ -109,6 +114,7 @@ class _Driver:
         self.plan, self.run_dir, self.store, self.recompute = plan, run_dir, store, recompute
         self.inline_stages = frozenset(inline_stages)
         self.chain = chain
+        self.ready: list[CoreTrack] = []  # cores queued for a chained task
         self.inline: collections.deque = collections.deque()
         self.observer = observer
         self.done: queue.Queue = queue.Queue()
@@ -189,7 +195,7 @@ class _Driver:
             track.notes.append(f"calibration without the failed training sets ({note})")
 
     def _submit_chain(self, track: CoreTrack) -> None:
-        """Submit all science stages of a core as one task; a core whose chronology is
+        """Queue all science stages of a core for a chained task; a core whose chronology is
         already in the work store goes stage by stage instead (each looked up, no task)."""
         e = track.entries
         if not self.recompute and stages.probe(stages.run_chronology, plan=self.plan, ingest=e["ingest"],
@@ -197,25 +203,36 @@ class _Driver:
             self._submit(track, "chronology", tasks.chronology_task, ingest=e["ingest"], **self._common(track))
             return
         self._note_failed_training(track)
-        self.pending += 1
         track.stage = "chronology"
         self.observer.stage(track.label, "chronology")
-        future = tasks.core_chain_task.submit(ingest=e["ingest"], training=dict(sorted(self.training.items())),
-                                              **self._common(track))
-        future.add_done_callback(lambda f, t=track: self.done.put((t, "chain", f)))
+        self.ready.append(track)
+        if len(self.ready) >= CHAIN_BATCH_CORES:
+            self._flush_chains()
 
-    def _on_chain(self, track: CoreTrack, results: Any) -> None:
-        """Record each stage of a chained task as if it had run alone; the last one decides
-        what happens next (publish the core)."""
-        if isinstance(results, BaseException):
-            self._on_core(track, "chronology", results)
-            return
-        for index, (stage, result) in enumerate(results):
-            outcome = tasks.StageFailed(result["failed"]) if "failed" in result else result
-            if index == len(results) - 1:
-                self._on_core(track, stage, outcome)
-            else:
-                self._record(track, stage, outcome)
+    def _flush_chains(self) -> None:
+        """Submit the queued cores as one task (see :data:`CHAIN_BATCH_CORES`)."""
+        batch, self.ready = self.ready, []
+        self.pending += 1
+        label = batch[0].name if len(batch) == 1 else f"{batch[0].name}..{batch[-1].name}"
+        future = tasks.core_chain_task.submit(
+            plan=self.plan, label=label, ingests=[t.entries["ingest"] for t in batch],
+            training=dict(sorted(self.training.items())), store=self.store, recompute=self.recompute)
+        future.add_done_callback(lambda f, b=tuple(batch): self.done.put((b, "chain", f)))
+
+    def _on_chains(self, batch: tuple[CoreTrack, ...], results: Any) -> None:
+        """Record each stage of each chained core as if it had run alone; a core's last
+        stage decides what happens next (publish the core)."""
+        for position, track in enumerate(batch):
+            if isinstance(results, BaseException):
+                self._on_core(track, "chronology", results)
+                continue
+            chain = results[position]
+            for index, (stage, result) in enumerate(chain):
+                outcome = tasks.StageFailed(result["failed"]) if "failed" in result else result
+                if index == len(chain) - 1:
+                    self._on_core(track, stage, outcome)
+                else:
+                    self._record(track, stage, outcome)
 
     def _calibrate(self, track: CoreTrack) -> None:
         self._note_failed_training(track)
@@ -308,9 +325,12 @@ class _Driver:
     def run(self) -> list[CoreTrack]:
         self.observer.started(len(self.plan.core_folders))
         self.start()
-        while self.pending:
+        while self.pending or self.ready:
             if self.inline and self.done.empty():
                 self._run_one_inline()  # only when no finished work waits to be dispatched
+                continue
+            if self.ready and (self.done.empty() or not self.pending):
+                self._flush_chains()  # nothing else to do: send what is queued
                 continue
             track, stage, future = self.done.get()
             self.pending -= 1
@@ -318,7 +338,7 @@ class _Driver:
             if track is None:
                 self._on_training(stage.split(":", 1)[1], result)
             elif stage == "chain":
-                self._on_chain(track, result)
+                self._on_chains(track, result)
             else:
                 self._on_core(track, stage, result)
         return self.tracks

@@ -127,11 +127,11 @@ def run_core_chain(plan: RunPlan, ingest: dict, training: dict, store: WorkStore
 
 
 @task(name="core-chain", task_run_name="core-chain[{label}]", **_OPTIONS)
-def core_chain_task(plan: RunPlan, label: str, ingest: dict, training: dict, store: WorkStore,
-                    recompute: bool = False) -> list[tuple[str, dict]]:
-    """All science stages of one core as one task (used on Dask, where each submitted task
-    costs ~60-80 ms of orchestration that competes with the workers for the CPUs)."""
-    return run_core_chain(plan, ingest, training, store, recompute)
+def core_chain_task(plan: RunPlan, label: str, ingests: list[dict], training: dict, store: WorkStore,
+                    recompute: bool = False) -> list[list[tuple[str, dict]]]:
+    """All science stages of a few cores as one task (used on Dask, where each task run's
+    orchestration costs CPU that the workers need); one chain per core, failures isolated."""
+    return [run_core_chain(plan, ingest, training, store, recompute) for ingest in ingests]
 
 
 @task(name="stack", task_run_name="stack[{label}]", **_OPTIONS)

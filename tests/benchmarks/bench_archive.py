@@ -6,8 +6,11 @@
 - ``rerun_fraction``: the same run again into a new folder with the same work store (nothing
   changed), wall time divided by the first run's;
 - ``peak_memory_gib``: the largest resident set of any run process (``getrusage``, children);
-- ``two_worker_speedup``: wall time of a local Dask cluster with 1 worker over 2 workers
-  (each with an empty work store) on ``--speedup-cores`` of the cores.
+- ``two_worker_speedup``: wall time of ``downcore run --dask-address`` on an existing Dask
+  cluster with 1 worker over the same on a cluster with 2 workers (each with an empty work
+  store), on ``--speedup-cores`` cores (default: the whole archive). As the README recommends
+  for clusters, the workers and the runs share one Prefect server (started here, outside the
+  timings); otherwise every worker starts a temporary server of its own (~10 s each).
 
 Every run is a separate ``downcore run`` process, so each pays Prefect's start-up (~5-20 s on
 a loaded machine), as a user would. Timings on a shared machine are inflated by the other
@@ -17,17 +20,22 @@ processes' load; the JSON line records the load average before and after.
 from __future__ import annotations
 
 import argparse
+import contextlib
 import json
 import os
 import pathlib
 import resource
+import signal
+import socket
 import subprocess
 import sys
 import tempfile
 import time
+import urllib.request
 
 sys.path.insert(0, str(pathlib.Path(__file__).resolve().parents[1]))
 from archive_factory import FULL_CHAIN, write_archive  # noqa: E402
+from pipelines.flows.runners import ENV_DEFAULTS  # noqa: E402
 
 
 def _downcore(args: list[str], env: dict[str, str]) -> float:
@@ -40,11 +48,58 @@ def _downcore(args: list[str], env: dict[str, str]) -> float:
     return seconds
 
 
+@contextlib.contextmanager
+def _prefect_server(env: dict[str, str], home: pathlib.Path):
+    """A Prefect server on 127.0.0.1 for the cluster runs; yields its API URL."""
+    with socket.socket() as sock:
+        sock.bind(("127.0.0.1", 0))
+        port = sock.getsockname()[1]
+    server_env = {**env, "PREFECT_HOME": str(home)}
+    server_env.pop("PREFECT_API_URL", None)
+    process = subprocess.Popen([sys.executable, "-m", "prefect", "server", "start", "--host", "127.0.0.1",
+                                "--port", str(port)], env=server_env, stdout=subprocess.DEVNULL,
+                               stderr=subprocess.DEVNULL, start_new_session=True)
+    url = f"http://127.0.0.1:{port}/api"
+    try:
+        deadline = time.monotonic() + 120
+        while True:
+            try:
+                with urllib.request.urlopen(f"{url}/health", timeout=2):
+                    break
+            except OSError:
+                if time.monotonic() > deadline or process.poll() is not None:
+                    raise SystemExit("the benchmark's Prefect server did not start")
+                time.sleep(0.5)
+        yield url
+    finally:
+        os.killpg(process.pid, signal.SIGTERM)
+        process.wait(timeout=30)
+
+
+def _on_dask_cluster(workers: int, config: pathlib.Path, root: pathlib.Path, env: dict[str, str]) -> float:
+    """Wall time of one run on a fresh local cluster of ``workers`` single-threaded processes,
+    reached by its address as a lab's existing cluster would be."""
+    from distributed import LocalCluster
+
+    saved = dict(os.environ)
+    os.environ.update(env)  # inherited by the worker processes
+    try:
+        with LocalCluster(n_workers=workers, threads_per_worker=1, processes=True, dashboard_address=":0",
+                          local_directory=str(root / f"dask-scratch-{workers}")) as cluster:
+            return _downcore(["run", str(config), "--out", str(root / "runs" / f"dask{workers}"),
+                              "--cache-dir", str(root / f"cache-dask{workers}"),
+                              "--dask-address", cluster.scheduler_address], env)
+    finally:
+        os.environ.clear()
+        os.environ.update(saved)
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--cores", type=int, default=100)
     parser.add_argument("--ensemble", type=int, default=500)
-    parser.add_argument("--speedup-cores", type=int, default=40)
+    parser.add_argument("--speedup-cores", type=int, default=None,
+                        help="cores of the Dask speedup runs (default: --cores)")
     parser.add_argument("--workdir", type=pathlib.Path, default=None)
     options = parser.parse_args()
 
@@ -64,19 +119,21 @@ def main() -> None:
     again = _downcore(["run", str(config), "--out", str(root / "runs" / "again"), "--cache-dir", str(cache),
                        "--workers", "2"], env)
 
-    subset = write_archive(root / "subset", n_cores=options.speedup_cores, ensemble=options.ensemble,
-                           extra_config=FULL_CHAIN)
-    one = _downcore(["run", str(subset), "--out", str(root / "runs" / "dask1"), "--cache-dir",
-                     str(root / "cache-dask1"), "--dask-local", "--workers", "1"], env)
-    two = _downcore(["run", str(subset), "--out", str(root / "runs" / "dask2"), "--cache-dir",
-                     str(root / "cache-dask2"), "--dask-local", "--workers", "2"], env)
+    speedup_cores = options.speedup_cores or options.cores
+    subset = config if speedup_cores == options.cores else write_archive(
+        root / "subset", n_cores=speedup_cores, ensemble=options.ensemble, extra_config=FULL_CHAIN)
+    with _prefect_server(env, root / "server-home") as api_url:
+        # the workers get the quiet defaults downcore gives its own process (a user's values win)
+        cluster_env = {**ENV_DEFAULTS, **env, "PREFECT_API_URL": api_url}
+        one = _on_dask_cluster(1, subset, root, cluster_env)
+        two = _on_dask_cluster(2, subset, root, cluster_env)
     peak_kib = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss
     print(json.dumps({
         "first_run_seconds": round(first, 2),
         "rerun_fraction": round(again / first, 4),
         "peak_memory_gib": round(peak_kib / 1024 ** 2, 3),
         "two_worker_speedup": round(one / two, 3),
-        "cores": options.cores, "ensemble": options.ensemble, "speedup_cores": options.speedup_cores,
+        "cores": options.cores, "ensemble": options.ensemble, "speedup_cores": speedup_cores,
         "rerun_seconds": round(again, 2), "dask_1_worker_seconds": round(one, 2),
         "dask_2_workers_seconds": round(two, 2), "cpu_count": os.cpu_count(),
         "load_average_before": round(load_before, 2), "load_average_after": round(os.getloadavg()[0], 2),
