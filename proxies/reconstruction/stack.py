@@ -89,8 +89,9 @@ def _on_grid(series, grid, values):
 
 
 def _overlap(series_list) -> tuple[float, float]:
-    young = max(float(s.age_cal_bp[np.isfinite(np.nanmedian(s.values, axis=1))].min()) for s in series_list)
-    old = min(float(s.age_cal_bp[np.isfinite(np.nanmedian(s.values, axis=1))].max()) for s in series_list)
+    # a time step counts when any member has a value there (its median is then finite)
+    young = max(float(s.age_cal_bp[np.isfinite(s.values).any(axis=1)].min()) for s in series_list)
+    old = min(float(s.age_cal_bp[np.isfinite(s.values).any(axis=1)].max()) for s in series_list)
     if young > old:
         raise ValueError("the records to stack do not overlap in time; state a stack window "
                          "([reconstruction] stack_young_cal_bp / stack_old_cal_bp)")
