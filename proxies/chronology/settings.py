@@ -2,9 +2,10 @@
 
 from __future__ import annotations
 
-from dataclasses import dataclass, fields
+from dataclasses import dataclass
 
-from proxies.problems import InputError, Problem
+from proxies.problems import Problem
+from proxies.settings_checks import settings_from_mapping
 
 __all__ = ["ChronologySettings", "MODELS", "JOINS"]
 
@@ -113,23 +114,7 @@ class ChronologySettings:
         proxies.problems.InputError
             Naming every unknown key, wrong type or out-of-range value (``column`` = key).
         """
-        mapping = dict(mapping or {})
-        known = {f.name for f in fields(cls)}
-        problems: list[Problem] = []
-        values: dict = {}
-        for key, value in mapping.items():
-            if key not in known:
-                problems.append(Problem(where, f"unknown key '{key}'",
-                                        f"use one of: {', '.join(sorted(known))}", column=key))
-                continue
-            checked = _check(key, value, where)
-            if isinstance(checked, Problem):
-                problems.append(checked)
-            else:
-                values[key] = checked
-        if problems:
-            raise InputError(problems)
-        return cls(**values)
+        return settings_from_mapping(cls, mapping, where, lambda key, value: _check(key, value, where))
 
 
 def _is_number(value) -> bool:

@@ -2,9 +2,10 @@
 
 from __future__ import annotations
 
-from dataclasses import dataclass, fields
+from dataclasses import dataclass
 
-from proxies.problems import InputError, Problem
+from proxies.problems import Problem
+from proxies.settings_checks import settings_from_mapping
 
 __all__ = ["EventSettings"]
 
@@ -82,41 +83,29 @@ class EventSettings:
         proxies.problems.InputError
             Naming every unknown key, wrong type or out-of-range value (``column`` = key).
         """
-        mapping = dict(mapping or {})
-        known = {f.name for f in fields(cls)}
-        problems: list[Problem] = []
-        values: dict = {}
-        for key, value in mapping.items():
-            if key not in known:
-                problems.append(Problem(where, f"unknown key '{key}'",
-                                        f"use one of: {', '.join(sorted(known))}", column=key))
-                continue
-            if key == "enabled":
-                if not isinstance(value, bool):
-                    problems.append(Problem(where, f"'{key}' must be true or false, got {value!r}",
-                                            "write true or false", column=key))
-                    continue
-            elif key == "variables":
-                if not (isinstance(value, list) and all(isinstance(v, str) for v in value)):
-                    problems.append(Problem(where, "'variables' must be a list of variable names",
-                                            'e.g. variables = ["temperature"]', column=key))
-                    continue
-                value = tuple(value)
-            else:
-                kind, lower, upper, example = _LIMITS[key]
-                ok_type = (isinstance(value, int) if kind is int else isinstance(value, (int, float)))
-                if isinstance(value, bool) or not ok_type:
-                    problems.append(Problem(where, f"'{key}' must be a{'n integer' if kind is int else ' number'}, "
-                                            f"got {value!r}", f"e.g. {key} = {example}", column=key))
-                    continue
-                value = kind(value)
-                low_ok = value >= 0 if lower is None else value > lower
-                if not low_ok or (upper is not None and value > upper):
-                    bound = (">= 0" if lower is None else f"> {lower}") + (f" and <= {upper}" if upper is not None else "")
-                    problems.append(Problem(where, f"'{key}' = {value} is out of range; it must be {bound}",
-                                            f"e.g. {key} = {example}", column=key))
-                    continue
-            values[key] = value
-        if problems:
-            raise InputError(problems)
-        return cls(**values)
+        return settings_from_mapping(cls, mapping, where, lambda key, value: _check(key, value, where))
+
+
+def _check(key: str, value, where: str):
+    """The value of one ``[events]`` key, converted, or the :class:`Problem` with it."""
+    if key == "enabled":
+        if not isinstance(value, bool):
+            return Problem(where, f"'{key}' must be true or false, got {value!r}", "write true or false", column=key)
+        return value
+    if key == "variables":
+        if not (isinstance(value, list) and all(isinstance(v, str) for v in value)):
+            return Problem(where, "'variables' must be a list of variable names",
+                           'e.g. variables = ["temperature"]', column=key)
+        return tuple(value)
+    kind, lower, upper, example = _LIMITS[key]
+    ok_type = (isinstance(value, int) if kind is int else isinstance(value, (int, float)))
+    if isinstance(value, bool) or not ok_type:
+        return Problem(where, f"'{key}' must be a{'n integer' if kind is int else ' number'}, got {value!r}",
+                       f"e.g. {key} = {example}", column=key)
+    value = kind(value)
+    low_ok = value >= 0 if lower is None else value > lower
+    if not low_ok or (upper is not None and value > upper):
+        bound = (">= 0" if lower is None else f"> {lower}") + (f" and <= {upper}" if upper is not None else "")
+        return Problem(where, f"'{key}' = {value} is out of range; it must be {bound}",
+                       f"e.g. {key} = {example}", column=key)
+    return value

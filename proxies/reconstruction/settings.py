@@ -2,9 +2,10 @@
 
 from __future__ import annotations
 
-from dataclasses import dataclass, fields
+from dataclasses import dataclass
 
-from proxies.problems import InputError, Problem
+from proxies.problems import Problem
+from proxies.settings_checks import settings_from_mapping
 
 __all__ = ["ReconstructionSettings", "WMO_NORMAL_PERIODS"]
 
@@ -86,54 +87,50 @@ class ReconstructionSettings:
         proxies.problems.InputError
             Naming every unknown key, wrong type or out-of-range value (``column`` = key).
         """
-        mapping = dict(mapping or {})
-        known = {f.name for f in fields(cls)}
-        problems: list[Problem] = []
-        values: dict = {}
-        for key, value in mapping.items():
-            if key not in known:
-                problems.append(Problem(where, f"unknown key '{key}'",
-                                        f"use one of: {', '.join(sorted(known))}", column=key))
-                continue
-            values[key] = value
-        numbers_optional = ("grid_young_cal_bp", "grid_old_cal_bp", "reference_young_cal_bp",
-                            "reference_old_cal_bp", "stack_young_cal_bp", "stack_old_cal_bp")
-        for key in ("grid_step_yr", "min_member_share", *numbers_optional):
-            if key in values:
-                value = values[key]
-                if isinstance(value, bool) or not isinstance(value, (int, float)):
-                    problems.append(Problem(where, f"'{key}' must be a number, got {value!r}",
-                                            "write a plain number, e.g. 50", column=key))
-                    del values[key]
-                else:
-                    values[key] = float(value)
-        choices = {"binning": _BINNING, "reference": _REFERENCE,
-                   "normal_period": tuple(WMO_NORMAL_PERIODS), "stack_method": _STACK_METHODS}
-        for key, allowed in choices.items():
-            if key in values and values[key] not in allowed:
-                problems.append(Problem(where, f"'{key}' = {values[key]!r} is not allowed",
-                                        f"use one of: {', '.join(allowed)}", column=key))
-                del values[key]
-        if "grid_step_yr" in values and not values["grid_step_yr"] > 0:
-            problems.append(Problem(where, "'grid_step_yr' must be > 0",
-                                    "give the grid spacing in years, e.g. 50", column="grid_step_yr"))
-        if "min_member_share" in values and not 0 < values["min_member_share"] <= 1:
-            problems.append(Problem(where, "'min_member_share' must be in (0, 1]",
-                                    "e.g. 0.5", column="min_member_share"))
-        for prefix in ("grid", "reference", "stack"):
-            young, old = values.get(f"{prefix}_young_cal_bp"), values.get(f"{prefix}_old_cal_bp")
-            if (young is None) != (old is None):
-                missing = f"{prefix}_old_cal_bp" if old is None else f"{prefix}_young_cal_bp"
-                problems.append(Problem(where, f"'{prefix}_young_cal_bp' and '{prefix}_old_cal_bp' "
-                                        "must be given together", f"add '{missing}'", column=missing))
-            elif young is not None and not young < old:
-                problems.append(Problem(where, f"'{prefix}_young_cal_bp' ({young}) must be younger "
-                                        f"(smaller) than '{prefix}_old_cal_bp' ({old})",
-                                        "swap the two values", column=f"{prefix}_young_cal_bp"))
-        if values.get("reference") == "window" and values.get("reference_young_cal_bp") is None:
-            problems.append(Problem(where, "reference = 'window' needs a reference window",
-                                    "add reference_young_cal_bp and reference_old_cal_bp",
-                                    column="reference"))
-        if problems:
-            raise InputError(problems)
-        return cls(**values)
+        return settings_from_mapping(cls, mapping, where, lambda key, value: _check(key, value, where),
+                                     lambda values: _cross_check(values, where))
+
+
+_OPTIONAL_NUMBERS = ("grid_young_cal_bp", "grid_old_cal_bp", "reference_young_cal_bp",
+                     "reference_old_cal_bp", "stack_young_cal_bp", "stack_old_cal_bp")
+
+
+def _check(key: str, value, where: str):
+    """The value of one ``[reconstruction]`` key, converted, or the :class:`Problem` with it."""
+    choices = {"binning": _BINNING, "reference": _REFERENCE,
+               "normal_period": tuple(WMO_NORMAL_PERIODS), "stack_method": _STACK_METHODS}
+    if key in choices:
+        if value not in choices[key]:
+            return Problem(where, f"'{key}' = {value!r} is not allowed",
+                           f"use one of: {', '.join(choices[key])}", column=key)
+        return value
+    if key not in ("grid_step_yr", "min_member_share", *_OPTIONAL_NUMBERS):
+        return value
+    if isinstance(value, bool) or not isinstance(value, (int, float)):
+        return Problem(where, f"'{key}' must be a number, got {value!r}", "write a plain number, e.g. 50",
+                       column=key)
+    value = float(value)
+    if key == "grid_step_yr" and not value > 0:
+        return Problem(where, "'grid_step_yr' must be > 0", "give the grid spacing in years, e.g. 50", column=key)
+    if key == "min_member_share" and not 0 < value <= 1:
+        return Problem(where, "'min_member_share' must be in (0, 1]", "e.g. 0.5", column=key)
+    return value
+
+
+def _cross_check(values: dict, where: str) -> list[Problem]:
+    """Problems that involve two keys: windows given by halves or upside down."""
+    problems = []
+    for prefix in ("grid", "reference", "stack"):
+        young, old = values.get(f"{prefix}_young_cal_bp"), values.get(f"{prefix}_old_cal_bp")
+        if (young is None) != (old is None):
+            missing = f"{prefix}_old_cal_bp" if old is None else f"{prefix}_young_cal_bp"
+            problems.append(Problem(where, f"'{prefix}_young_cal_bp' and '{prefix}_old_cal_bp' "
+                                    "must be given together", f"add '{missing}'", column=missing))
+        elif young is not None and not young < old:
+            problems.append(Problem(where, f"'{prefix}_young_cal_bp' ({young}) must be younger "
+                                    f"(smaller) than '{prefix}_old_cal_bp' ({old})",
+                                    "swap the two values", column=f"{prefix}_young_cal_bp"))
+    if values.get("reference") == "window" and values.get("reference_young_cal_bp") is None:
+        problems.append(Problem(where, "reference = 'window' needs a reference window",
+                                "add reference_young_cal_bp and reference_old_cal_bp", column="reference"))
+    return problems
