@@ -283,3 +283,21 @@ def test_hpd_ranges_from_column_pair():
 ])
 def test_warning_cells(cell, expected):
     assert _warning_list(cell) == expected
+
+
+def test_a_core_shows_only_the_training_sets_its_calibration_used():
+    """A core calibrated by equations (empty diagnostics table) shows no training-set figure;
+    a core whose skill table names the training set shows that one."""
+    import pandas as pd
+
+    from pipelines.report.figures_calibration import training_sets_of
+    from pipelines.report.rundata import CoreData, TrainingData
+
+    training = [TrainingData("midges", None, None), TrainingData("diatoms", None, None)]
+    marine = CoreData(core_id="M-1", status="ok", tables={
+        "calibration": pd.DataFrame({"proxy": ["uk37"], "method": ["equation"], "detail": ["uk37_mueller1998"]}),
+        "calibration_diagnostics": pd.DataFrame({"depth_cm": pd.Series([], dtype=float)})})
+    lake = CoreData(core_id="L-1", status="ok", tables={
+        "calibration": pd.DataFrame({"proxy": ["counts"], "method": ["transfer"], "detail": ["midges"]})})
+    assert training_sets_of(marine, training) == []
+    assert [t.name for t in training_sets_of(lake, training)] == ["midges"]

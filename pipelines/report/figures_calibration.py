@@ -88,7 +88,8 @@ def training_sets_of(core: CoreData, training: list[TrainingData]) -> list[Train
                  for v in table[c].tolist() if v is not None}
         text = " ".join(cells)
         used = [t for t in training if t.name in cells or f"'{t.name}'" in text]
-    if not used and core.table("calibration_diagnostics") is not None:
+    diagnostics = core.table("calibration_diagnostics")
+    if not used and diagnostics is not None and len(diagnostics):
         used = list(training)
     return used
 
