@@ -119,3 +119,25 @@ def test_demo_run_config_is_clean():
     """The demo run config, its stage sections (each stage's Settings) and its cores check clean."""
     result = run_check(DEMO_CORES.parent / "run.toml")
     assert result.exit_code == 0, result.output
+
+
+def test_a_scenario_folder_glob_checks_its_cores_and_configs_and_skips_the_rest():
+    """``downcore check demo_cores/*`` (issue 2): core folders below a folder are found, run
+    configs are checked with their cores, other files and folders are listed as skipped."""
+    paths = sorted(str(p) for p in DEMO_CORES.parent.iterdir())
+    result = CliRunner().invoke(main, ["check", *paths])
+    assert result.exit_code == 0, result.output
+    assert "skip " in result.output and "make_demo.py" in result.output
+    assert "run config" in result.output and "ULLA-1" in result.output
+
+
+def test_a_folder_of_core_folders_reports_its_broken_core(tmp_path):
+    shutil.copytree(GOOD, tmp_path / "cores" / "good")
+    broken = next(p for p in BROKEN if (p / "core.toml").is_file()
+                  and "check" not in tomllib.loads((p / "expected.toml").read_text()))
+    shutil.copytree(broken, tmp_path / "cores" / "bad")
+    (tmp_path / "notes.txt").write_text("not a core")
+    result = CliRunner().invoke(main, ["check", str(tmp_path / "cores"), str(tmp_path / "notes.txt")])
+    assert result.exit_code == 1
+    assert "skip " in result.output and "notes.txt" in result.output
+    assert "FAIL" in result.output and "2 cores checked, 1 clean" in result.output

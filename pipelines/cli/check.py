@@ -1,7 +1,10 @@
 """``downcore check PATH...``: validate core folders and run configs without running anything.
 
-Each PATH is a core folder (or its ``core.toml``) or a run config ``.toml`` (then the config
-and every core it lists are checked, including the dates' curve names against ``[curves]``).
+Each PATH is a core folder (or its ``core.toml``), a run config ``.toml`` (then the config
+and every core it lists are checked, including the dates' curve names against ``[curves]``),
+or a folder holding core folders (each core folder below it is checked). Other files and
+folders without cores are listed as skipped, so ``downcore check demo_cores/*`` checks the
+demo's cores and configs; a call with nothing to check at all is a usage error.
 Prints one line per problem grouped per core, the number of rejected table rows and a
 summary. Exit code 0 when everything is clean, 1 when any problem was found, 2 for usage
 errors. Nothing is written.
@@ -69,13 +72,43 @@ def _check_config(path: Path) -> list[_Group]:
     return groups
 
 
-def _check_path(path: Path) -> list[_Group]:
+def _targets(paths: tuple[Path, ...]) -> tuple[list[Path], list[Path], list[Path]]:
+    """Split PATHs into run configs, core folders (each once, in order) and skipped paths."""
+    configs, cores, skipped = [], [], []
+    for path in paths:
+        if path.is_dir() and (path / "core.toml").is_file():
+            found = [path]
+        elif path.is_dir():
+            found = sorted(toml.parent for toml in path.rglob("core.toml"))
+        elif path.name == "core.toml":
+            found = [path.parent]
+        elif path.suffix.lower() == ".toml":
+            configs.append(path)
+            continue
+        else:
+            found = []
+        if not found:
+            skipped.append(path)
+        cores.extend(folder for folder in found if folder.resolve() not in {c.resolve() for c in cores})
+    return configs, cores, skipped
+
+
+def _covered_by(configs: list[Path]) -> set[Path]:
+    """Core folders that the run configs list (they are checked with their config)."""
+    from pipelines.config import load_run_config
+
+    covered: set[Path] = set()
+    for config in configs:
+        try:
+            covered.update(folder.resolve() for folder in load_run_config(config).core_folders)
+        except (InputError, OSError, tomllib.TOMLDecodeError, UnicodeDecodeError):
+            continue  # its own check reports why
+    return covered
+
+
+def _check_path(path: Path, is_config: bool) -> list[_Group]:
     try:
-        if path.is_dir():
-            return [_check_core(path)]
-        if path.name == "core.toml":
-            return [_check_core(path.parent)]
-        return _check_config(path)
+        return _check_config(path) if is_config else [_check_core(path)]
     except InputError as error:
         return [_Group(title=str(path), problems=error.problems)]
     except (OSError, tomllib.TOMLDecodeError, UnicodeDecodeError) as error:
@@ -104,14 +137,21 @@ def _print_group(console: Console, group: _Group) -> None:
 @click.command("check")
 @click.argument("paths", nargs=-1, required=True, type=click.Path(exists=True, path_type=Path))
 def command(paths: tuple[Path, ...]) -> None:
-    """Check core folders and run configs (PATH: a core folder or a run config .toml)."""
-    for path in paths:
-        if not path.is_dir() and path.suffix.lower() != ".toml":
-            raise click.BadParameter(
-                f"{path} is neither a core folder nor a .toml run config", param_hint="PATH"
-            )
+    """Check core folders and run configs (PATH: a core folder, a run config .toml, or a
+    folder holding core folders)."""
+    configs, cores, skipped = _targets(paths)
+    if not configs and not cores:
+        raise click.BadParameter(
+            f"{', '.join(map(str, paths))}: neither a core folder, a folder of core folders, "
+            "nor a .toml run config", param_hint="PATH")
+    covered = _covered_by(configs)
+    cores = [core for core in cores if core.resolve() not in covered]
     console = Console(soft_wrap=True, highlight=False)
-    groups = [group for path in paths for group in _check_path(path)]
+    for path in skipped:
+        console.print(Text(f"skip {path}: not a core folder or run config, and no core folder inside",
+                           style="dim"))
+    groups = [group for path in configs for group in _check_path(path, is_config=True)]
+    groups += [group for path in cores for group in _check_path(path, is_config=False)]
     for group in groups:
         _print_group(console, group)
     cores = [g for g in groups if g.is_core]
