@@ -13,6 +13,8 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
+from proxies.calibration import CalibratedRecord
+
 
 def truth_with_cold_event(age_cal_bp, onset=9400.0, end=9150.0, amplitude=-2.8,
                           ramp_yr=40.0, trend_per_kyr=-0.15, base=12.0):
@@ -51,16 +53,6 @@ class FakeChronology:
         return self.top_cal_bp + np.asarray(depth_cm, dtype=float) * 20.0
 
 
-@dataclass
-class FakeRecord:
-    proxy: str
-    variable: str
-    units: str
-    method: str
-    reference: str
-    depth_cm: np.ndarray
-    values: np.ndarray
-
 
 @dataclass
 class FakeCalibration:
@@ -89,6 +81,6 @@ def make_synthetic_core(rng, n_members=200, spacing_cm=1.0, max_depth_cm=600.0,
     true_values = truth(true_age)
     observed = true_values + noise_sd * rng.standard_normal(depth.size)
     values = observed[:, None] + noise_sd * rng.standard_normal((depth.size, n_members))
-    record = FakeRecord("mgca_mmol_mol", "temperature", "degC", "test", "synthetic", depth, values)
+    record = CalibratedRecord("mgca_mmol_mol", "temperature", "degC", "test", "synthetic", depth, values)
     core = FakeCore(core_id, pd.DataFrame({"depth_cm": depth}))
     return core, chron, FakeCalibration([record]), true_age, true_values

@@ -7,7 +7,8 @@ import pandas as pd
 import pytest
 
 from proxies.reconstruction import ReconstructionSettings, reconstruct_core
-from synthetic_cores import FakeCalibration, FakeRecord, make_synthetic_core
+from proxies.calibration import CalibratedRecord
+from synthetic_cores import FakeCalibration, make_synthetic_core
 
 REQUIRED = ["age_cal_bp", "variable", "value_median", "value_q025", "value_q975",
             "anomaly_median", "anomaly_q025", "anomaly_q975", "n_samples"]
@@ -38,7 +39,7 @@ def test_member_m_pairs_values_with_age_path_m(synthetic):
     core, chron, cal, _, _ = synthetic
     record = cal.records[0]
     ages = chron.age_at(record.depth_cm)
-    spy = FakeRecord("age_probe", "age_probe", "yr", "test", "none", record.depth_cm, ages.copy())
+    spy = CalibratedRecord("age_probe", "age_probe", "yr", "test", "none", record.depth_cm, ages.copy())
     result = reconstruct_core(core, chron, FakeCalibration([spy]), ReconstructionSettings(grid_step_yr=100.0),
                               np.random.default_rng(0))
     s = result.series["age_probe"]
@@ -83,7 +84,7 @@ def test_same_inputs_same_table_and_two_records_of_one_variable(synthetic):
     b = reconstruct_core(core, chron, cal, ReconstructionSettings(), np.random.default_rng(99)).table
     pd.testing.assert_frame_equal(a, b)
     rec = cal.records[0]
-    twin = FakeRecord("uk37", rec.variable, rec.units, "test", "synthetic", rec.depth_cm, rec.values + 1.0)
+    twin = CalibratedRecord("uk37", rec.variable, rec.units, "test", "synthetic", rec.depth_cm, rec.values + 1.0)
     both = reconstruct_core(core, chron, FakeCalibration([rec, twin]), ReconstructionSettings(),
                             np.random.default_rng(0))
     assert set(both.series) == {"temperature", "temperature_uk37"}
@@ -93,7 +94,7 @@ def test_same_inputs_same_table_and_two_records_of_one_variable(synthetic):
 def test_mismatched_member_counts_are_refused(synthetic):
     core, chron, cal, _, _ = synthetic
     rec = cal.records[0]
-    bad = FakeRecord(rec.proxy, rec.variable, rec.units, "test", "x", rec.depth_cm, rec.values[:, :10])
+    bad = CalibratedRecord(rec.proxy, rec.variable, rec.units, "test", "x", rec.depth_cm, rec.values[:, :10])
     with pytest.raises(ValueError, match="members"):
         reconstruct_core(core, chron, FakeCalibration([bad]), ReconstructionSettings(), np.random.default_rng(0))
     empty = reconstruct_core(core, chron, FakeCalibration([]), ReconstructionSettings(), np.random.default_rng(0))
