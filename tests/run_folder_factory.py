@@ -64,7 +64,7 @@ def _write_core(run: pathlib.Path, core_id: str, rng: np.random.Generator, membe
         "age_q975": np.quantile(ens, 0.975, axis=1),
         "age_mean": ens.mean(axis=1),
         "age_sd": ens.std(axis=1, ddof=1),
-        "acc_rate_yr_cm": np.gradient(med, depth),
+        "deposition_time_yr_cm": np.gradient(med, depth),
     })
     atomic_write_parquet(folder / "chronology.parquet", chron)
     members_df = pd.DataFrame({f"m{m:04d}": ens[:, m] for m in range(members)})
@@ -215,7 +215,7 @@ def make_run_folder(run: pathlib.Path, seed: int = 7, members: int = 40,
     atomic_write_parquet(run / "training" / "meadows_cv.parquet", cv)
     perf = pd.DataFrame({"component": [1, 2], "rmsep": [1.21, 1.18], "r2": [0.62, 0.64],
                          "max_bias": [1.9, 1.7]})
-    atomic_write_parquet(run / "training" / "meadows_performance.parquet", perf)
+    atomic_write_parquet(run / "training" / "meadows_skill.parquet", perf)
 
     manifest = {
         "format": "downcore-manifest/1",

@@ -251,13 +251,13 @@ def test_stage_outputs_and_reproducibility(model):
     np.testing.assert_array_equal(a.ensemble, b.ensemble)
     assert a.ensemble.shape == (a.depth_cm.size, 300)
     np.testing.assert_array_equal(a.depth_cm, np.arange(0.0, 241.0, 1.0))
-    for column in ("depth_cm", "age_median", "age_q025", "age_q975", "age_mean", "age_sd", "acc_rate_yr_cm"):
+    for column in ("depth_cm", "age_median", "age_q025", "age_q975", "age_mean", "age_sd", "deposition_time_yr_cm"):
         assert column in a.summary
     assert np.all(np.diff(a.ensemble, axis=0) >= -1e-9)
     truth = -68 + 10.0 * a.depth_cm
     inside = (truth >= a.summary["age_q025"]) & (truth <= a.summary["age_q975"])
     assert inside.mean() > 0.85
-    assert np.median(a.summary["acc_rate_yr_cm"]) == pytest.approx(10.0, rel=0.15)
+    assert np.median(a.summary["deposition_time_yr_cm"]) == pytest.approx(10.0, rel=0.15)
     dates = a.dates
     assert dates["label"].iloc[0] == "core top" and dates["age"].iloc[0] == -68.0
     assert dates["error"].iloc[0] == 5.0  # settings default: core.toml gives no top_age_error

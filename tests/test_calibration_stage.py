@@ -168,14 +168,14 @@ def training_and_fossil():
 
 @pytest.mark.parametrize("validation", ["loo", "kfold", "bootstrap", "hblock"])
 def test_fit_transfer_function_tables(training_and_fossil, validation):
-    """Each validation scheme yields a performance table per component with one chosen row
+    """Each validation scheme yields a skill table per number of components with one chosen row
     and a cv table of observed vs predicted."""
     training, _, _ = training_and_fossil
     spec = TrainingSpec.from_mapping("lakes", {
         "file": "x.csv", "target": "t", "validation": validation, "bootstrap_cycles": 50,
         "hblock_km": 50.0, "latitude_column": "lat", "longitude_column": "lon"}, "run.toml")
     fitted = fit_transfer_function(training, spec, np.random.default_rng(2))
-    perf = fitted.performance
+    perf = fitted.skill
     assert list(perf["n_components"]) == [1, 2, 3] and perf["chosen"].sum() == 1
     assert fitted.n_components == int(perf.loc[perf["chosen"], "n_components"].iloc[0])
     assert set(fitted.cv.columns) >= {"observed", "predicted", "n_components", "residual",

@@ -1,4 +1,4 @@
-"""Cross-validation schemes, performance tables and the choice of WA-PLS components."""
+"""Cross-validation schemes, skill tables and the choice of WA-PLS components."""
 
 from __future__ import annotations
 
@@ -10,8 +10,8 @@ from calibration_simulation import gaussian_response_training, simulate_species
 from proxies.calibration import MAT, WA, WAPLS
 from proxies.calibration.crossval import (bootstrap_predictions, choose_n_components,
                                           great_circle_km, hblock_predictions,
-                                          kfold_predictions, loo_predictions, maximum_bias,
-                                          performance_table)
+                                          kfold_predictions, loo_predictions, largest_segment_bias,
+                                          skill_by_components)
 
 NOISE_SD = 1.5
 
@@ -113,7 +113,7 @@ def test_hblock_is_pessimistic_on_spatially_structured_data():
         assert np.sqrt(np.mean((hb - y) ** 2)) > np.sqrt(np.mean((loo - y) ** 2))
 
 
-def test_performance_table_and_component_rule():
+def test_skill_table_and_component_rule():
     """Birks (1998): keep a component only if it cuts RMSEP by >= 5 %; maximum bias is the
     largest mean residual over 10 equal segments of the gradient."""
     perf = pd.DataFrame({"rmsep": [2.0, 1.80, 1.75, 1.5]})
@@ -122,12 +122,12 @@ def test_performance_table_and_component_rule():
     observed = np.linspace(0, 10, 101)
     predicted = observed.copy()
     predicted[observed >= 9.0] += 3.0              # only the top segment is biased
-    assert maximum_bias(observed, predicted) == pytest.approx(3.0)
-    table = performance_table(observed, predicted[:, None], predicted[:, None])
+    assert largest_segment_bias(observed, predicted) == pytest.approx(3.0)
+    table = skill_by_components(observed, predicted[:, None], predicted[:, None])
     row = table.iloc[0]
-    assert row["average_bias"] == pytest.approx(3.0 * np.mean(observed >= 9.0))
+    assert row["mean_bias_cv"] == pytest.approx(3.0 * np.mean(observed >= 9.0))
     assert row["rmsep"] == pytest.approx(np.sqrt(np.mean((predicted - observed) ** 2)))
-    assert row["r2"] == pytest.approx(np.corrcoef(observed, predicted)[0, 1] ** 2)
+    assert row["r2_apparent"] == pytest.approx(np.corrcoef(observed, predicted)[0, 1] ** 2)
 
 
 def test_settings_name_every_validation_scheme():

@@ -10,7 +10,7 @@ import numpy as np
 import pytest
 
 from pipelines.curvefiles import read_curve_file
-from proxies.chronology.curves import CalibrationCurve, curve_from_table, mix_curves, parse_curve_text
+from proxies.chronology.curves import CalibrationCurve, curve_from_table, blend_curves, parse_curve_text
 from proxies.problems import InputError
 
 TEXT = """# a small invented curve
@@ -105,11 +105,11 @@ def test_mixture_of_two_curves():
     cal = np.arange(0.0, 1001.0, 10.0)
     first = CalibrationCurve("a", cal, cal * 0.9 + 50, np.full(cal.size, 20.0))
     second = CalibrationCurve("m", cal, cal * 0.9 + 450, np.full(cal.size, 40.0))
-    mix = mix_curves(first, second, 0.25, step=5.0)
+    mix = blend_curves(first, second, 0.25, step=5.0)
     mu, sigma = mix.at([500.0])
     assert mu[0] == pytest.approx(0.75 * 500 + 0.25 * 900)
     assert sigma[0] == pytest.approx(np.hypot(0.75 * 20, 0.25 * 40))
     assert mix.step == 5.0
-    np.testing.assert_allclose(mix_curves(first, second, 0.0).at(cal)[0], first.c14_age)
+    np.testing.assert_allclose(blend_curves(first, second, 0.0).at(cal)[0], first.c14_age)
     with pytest.raises(ValueError, match=r"\[0, 1\]"):
-        mix_curves(first, second, 1.5)
+        blend_curves(first, second, 1.5)

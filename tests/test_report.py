@@ -16,7 +16,7 @@ from scipy import stats
 
 from pipelines.report import style, write_run_report
 from pipelines.report.figures_calibration import analogue_figure, cv_statistics
-from pipelines.report.figures_chronology import (OUTLIER_LINE, accumulation_figure,
+from pipelines.report.figures_chronology import (OUTLIER_LINE, deposition_time_figure,
                                                  age_depth_figure, outlier_figure)
 from pipelines.report.figures_events import event_figure
 from pipelines.report.figures_reconstruction import band_pairs, reconstruction_figure
@@ -162,15 +162,17 @@ def test_age_depth_figure_draws_the_chronology_and_every_density(run_dir):
     assert ax.get_ylim()[0] > ax.get_ylim()[1]
 
 
-def test_accumulation_rate_is_the_ensemble_median_of_age_differences(run_dir):
-    """Median line = median over members of diff(age)/diff(depth), computed here directly."""
+def test_deposition_time_is_the_ensemble_median_of_age_differences(run_dir):
+    """Median line = median over members of diff(age)/diff(depth), computed here directly,
+    drawn against depth on the vertical axis."""
     core = _core(run_dir, "TARN-2")
     ens = core.table("age_ensemble")
     members = ens.filter(regex=r"^m\d+$").to_numpy(float)
     expected = np.median(np.diff(members, axis=0) / np.diff(ens["depth_cm"].to_numpy())[:, None], axis=1)
-    fig = accumulation_figure(core)
+    fig = deposition_time_figure(core)
     line = next(ln for ln in fig.axes[0].lines if ln.get_label() == "median of members")
-    np.testing.assert_allclose(line.get_ydata(), expected, rtol=1e-12)
+    np.testing.assert_allclose(line.get_xdata(), expected, rtol=1e-12)
+    assert fig.axes[0].get_xscale() == "log" and fig.axes[0].get_ylim()[0] > fig.axes[0].get_ylim()[1]
 
 
 def test_outlier_figure_bars_are_the_probabilities(run_dir):

@@ -89,7 +89,7 @@ def _write_run_tables(run_dir: pathlib.Path, result: dict) -> None:
     timings = pd.DataFrame(result["timings"], columns=["core_id", "stage", "seconds", "reused"])
     atomic_write_text(run_dir / "timings.csv", timings.to_csv(index=False))
     for name, entry in sorted(result["training"].items()):
-        for part in ("cv", "performance"):
+        for part in ("cv", "skill"):
             if part in entry.get("paths", {}):
                 atomic_copy(entry["paths"][part], run_dir / "training" / f"{name}_{part}.parquet")
     if result.get("stack"):

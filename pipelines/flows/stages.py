@@ -192,9 +192,9 @@ def run_training(plan: RunPlan, name: str, store: WorkStore, recompute: bool = F
             training, training_spec = _read_training(read_training_set, plan, name)
             fitted = fit_transfer_function(training, training_spec, rng_for(plan.run_seed, "calibration", f"training:{name}"))
         write_table(staged / "cv.parquet", _table(getattr(fitted, "cv", None)))
-        write_table(staged / "performance.parquet", _table(getattr(fitted, "performance", None)))
+        write_table(staged / "skill.parquet", _table(getattr(fitted, "skill", None)))
         return {"files": {"result": save_object(staged, fitted), "cv": "cv.parquet",
-                          "performance": "performance.parquet"},
+                          "skill": "skill.parquet"},
                 "warnings": _unique(caught + list(getattr(fitted, "warnings", []) or []))}
 
     return _cached_or_build(store, "training", key, produce, {"name": name}, recompute)

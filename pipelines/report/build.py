@@ -16,7 +16,7 @@ from pipelines.report import html as H
 from pipelines.report import style
 from pipelines.report.figures_calibration import (analogue_figure, cv_scatter_figure,
                                                   cv_statistics, training_sets_of)
-from pipelines.report.figures_chronology import (accumulation_figure, age_depth_figure,
+from pipelines.report.figures_chronology import (age_depth_figure, deposition_time_figure,
                                                  outlier_figure)
 from pipelines.report.figures_events import event_figure, event_variables
 from pipelines.report.figures_reconstruction import reconstruction_figure, stack_figure
@@ -132,7 +132,7 @@ def _chronology_part(core: CoreData, figs: _Figures) -> str:
                  "members; each date is drawn as its calibrated probability density above its "
                  "depth (or as its 95 % HPD range when densities were not stored). Hatched "
                  "dashed dates are more likely outliers than not; dotted dates were excluded."),
-        figs.add(lambda: accumulation_figure(core), f"{cid}_accumulation", "Accumulation rate",
+        figs.add(lambda: deposition_time_figure(core), f"{cid}_deposition_time", "Deposition time",
                  "Years per centimetre between neighbouring depths, over the age ensemble "
                  "(median and 68 %/95 % ranges); the dashed line is the slope of the median "
                  "age."),
@@ -159,8 +159,8 @@ def _calibration_part(core: CoreData, run: RunData, figs: _Figures) -> str:
         if training.cv is not None:
             stats = cv_statistics(training.cv)
             body += H.key_value_html([(k, v) for k, v in stats.items()])
-        if training.performance is not None and len(training.performance):
-            body += H.table_html(training.performance)
+        if training.skill is not None and len(training.skill):
+            body += H.table_html(training.skill)
     body += figs.add(lambda: analogue_figure(core), f"{cid}_analogues",
                      "Analogue quality through time",
                      "Diagnostics of each fossil sample against the training set, at the "

@@ -1,4 +1,4 @@
-"""Chronology figures: the age-depth model, the accumulation rate and the date outliers.
+"""Chronology figures: the age-depth model, the deposition time and the date outliers.
 
 Each function takes the tables of one core (as read by :mod:`pipelines.report.rundata`) and
 returns a Matplotlib figure, or ``None`` when the tables it needs are absent.
@@ -14,7 +14,7 @@ from matplotlib.patches import Patch
 from pipelines.report import style
 from pipelines.report.rundata import CoreData, hpd_ranges_of, median_column, member_columns
 
-__all__ = ["age_depth_figure", "accumulation_figure", "outlier_figure", "OUTLIER_LINE",
+__all__ = ["age_depth_figure", "deposition_time_figure", "outlier_figure", "OUTLIER_LINE",
            "ensemble_matrix"]
 
 #: outlier probability above which a date is drawn as "more likely an outlier than not"
@@ -179,31 +179,42 @@ def _rate_ensemble(core: CoreData) -> tuple[np.ndarray, np.ndarray] | None:
     return mid, rate
 
 
-def accumulation_figure(core: CoreData):
-    """Accumulation rate [yr/cm] against depth: ensemble median with 68 % and 95 % ranges
-    (from ``age_ensemble.parquet``), else the chronology's ``acc_rate_yr_cm``."""
+def deposition_time_figure(core: CoreData):
+    """Deposition time [yr/cm] down the core, drawn like a core log: depth downwards on the
+    vertical axis, deposition time on a logarithmic horizontal axis (so that a slow interval or
+    a hiatus does not flatten the rest), ensemble median with 68 % and 95 % ranges (from
+    ``age_ensemble.parquet``), else the chronology's ``deposition_time_yr_cm``."""
     chron = core.table("chronology")
     from_ens = _rate_ensemble(core)
-    if from_ens is None and (chron is None or "acc_rate_yr_cm" not in chron.columns):
+    if from_ens is None and (chron is None or "deposition_time_yr_cm" not in chron.columns):
         return None
-    fig, ax = style.new_figure(7.2, 2.8)
+    fig, ax = style.new_figure(4.8, 4.6)
+    shown = []
     if from_ens is not None:
         mid, rate = from_ens
-        q = np.nanquantile(rate, [0.025, 0.16, 0.5, 0.84, 0.975], axis=1)
-        ax.fill_between(mid, q[0], q[4], step="mid", color=style.BAND_LIGHT, linewidth=0,
-                        label="95 % range")
-        ax.fill_between(mid, q[1], q[3], step="mid", color=style.BAND_DARK, linewidth=0,
-                        label="68 % range")
-        ax.step(mid, q[2], where="mid", color=style.INK, label="median of members")
-    if chron is not None and "acc_rate_yr_cm" in chron.columns:
+        q = np.nanquantile(np.where(rate > 0, rate, np.nan), [0.025, 0.16, 0.5, 0.84, 0.975], axis=1)
+        ax.fill_betweenx(mid, q[0], q[4], step="mid", color=style.BAND_LIGHT, linewidth=0,
+                         label="95 % range")
+        ax.fill_betweenx(mid, q[1], q[3], step="mid", color=style.BAND_DARK, linewidth=0,
+                         label="68 % range")
+        ax.plot(q[2], mid, color=style.INK, label="median of members")
+        shown.append(q[2])
+    if chron is not None and "deposition_time_yr_cm" in chron.columns:
         chron = chron.sort_values("depth_cm")
-        ax.plot(chron["depth_cm"], chron["acc_rate_yr_cm"], color=style.CLAY, linestyle="--",
+        ax.plot(chron["deposition_time_yr_cm"], chron["depth_cm"], color=style.CLAY, linestyle="--",
                 linewidth=1.0, label="slope of the median age")
-    ax.set_xlabel("depth [cm]")
-    ax.set_ylabel("accumulation [yr/cm]")
-    ax.set_ylim(bottom=0)
-    ax.set_title(f"{core.core_id}: accumulation rate")
-    ax.legend(loc="upper left", ncol=2)
+        shown.append(chron["deposition_time_yr_cm"].to_numpy(dtype=float))
+    values = np.concatenate([np.asarray(v, dtype=float).ravel() for v in shown])
+    values = values[np.isfinite(values) & (values > 0)]
+    if values.size:
+        low, high = np.quantile(values, [0.02, 0.98])
+        ax.set_xscale("log")
+        ax.set_xlim(max(low / 2.0, 1e-3), high * 2.0)
+    ax.invert_yaxis()
+    ax.set_ylabel("depth [cm]")
+    ax.set_xlabel("deposition time [yr/cm, log scale]")
+    ax.set_title(f"{core.core_id}: deposition time")
+    ax.legend(loc="lower left", fontsize=7)
     return fig
 
 

@@ -69,11 +69,11 @@ _QUANTILE = re.compile(r"^q(\d{3})$")
 
 @dataclass
 class TrainingData:
-    """A training set's cross-validation table and performance table (either may be None)."""
+    """A training set's cross-validation table and skill table (either may be None)."""
 
     name: str
     cv: pd.DataFrame | None
-    performance: pd.DataFrame | None
+    skill: pd.DataFrame | None
 
 
 @dataclass
@@ -226,11 +226,11 @@ def _read_training(folder: pathlib.Path, notes: list[str]) -> list[TrainingData]
     if not training_dir.is_dir():
         return []
     names = sorted({p.name[: -len("_cv.parquet")] for p in training_dir.glob("*_cv.parquet")}
-                   | {p.name[: -len("_performance.parquet")]
-                      for p in training_dir.glob("*_performance.parquet")})
+                   | {p.name[: -len("_skill.parquet")]
+                      for p in training_dir.glob("*_skill.parquet")})
     return [TrainingData(name,
                          _load(training_dir / f"{name}_cv.parquet", CV_COLUMNS, notes),
-                         _load(training_dir / f"{name}_performance.parquet", (), notes))
+                         _load(training_dir / f"{name}_skill.parquet", (), notes))
             for name in names]
 
 

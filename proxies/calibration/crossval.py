@@ -1,7 +1,7 @@
-"""Cross-validation of transfer functions and their performance tables.
+"""Cross-validation of transfer functions and their skill per number of components.
 
 Every scheme returns out-of-sample predictions of shape (n_samples, A) where A is the number
-of components (WA-PLS) or 1 (WA, MAT), so one pass gives the performance of every component.
+of components (WA-PLS) or 1 (WA, MAT), so one pass gives the skill of every component.
 """
 
 from __future__ import annotations
@@ -18,8 +18,8 @@ from .wapls import WAPLS
 
 __all__ = [
     "component_predictions", "loo_predictions", "kfold_predictions", "hblock_predictions",
-    "bootstrap_predictions", "BootstrapResult", "great_circle_km", "performance_table",
-    "choose_n_components", "maximum_bias", "SCHEMES",
+    "bootstrap_predictions", "BootstrapResult", "great_circle_km", "skill_by_components",
+    "choose_n_components", "largest_segment_bias", "SCHEMES",
 ]
 
 SCHEMES = ("loo", "kfold", "bootstrap", "hblock")
@@ -182,7 +182,7 @@ def bootstrap_predictions(estimator, X, y, n_cycles, rng, X_new=None):
     return BootstrapResult(mean, s1, s2, rmsep, new_mean, new_err)
 
 
-def maximum_bias(observed, predicted, n_segments=10) -> float:
+def largest_segment_bias(observed, predicted, n_segments=10) -> float:
     """Largest mean residual (predicted - observed) over equal-width segments of the
     observed gradient, signed (Birks 1998, common practice: 10 segments)."""
     o = np.asarray(observed, dtype=float)
@@ -197,8 +197,8 @@ def maximum_bias(observed, predicted, n_segments=10) -> float:
     return float(means[int(np.argmax(np.abs(means)))])
 
 
-def performance_table(observed, apparent, predicted, rmsep=None, n_segments=10):
-    """Apparent and cross-validated performance per number of components.
+def skill_by_components(observed, apparent, predicted, rmsep=None, n_segments=10):
+    """Apparent and cross-validated skill per number of components, side by side.
 
     Parameters
     ----------
@@ -214,9 +214,11 @@ def performance_table(observed, apparent, predicted, rmsep=None, n_segments=10):
     Returns
     -------
     pandas.DataFrame
-        ``n_components, rmse, r2, rmsep, r2_cv, average_bias, maximum_bias,
-        rmsep_change_percent`` (residuals are predicted - observed; change relative to one
-        component fewer).
+        ``n_components``, then each statistic apparent beside cross-validated:
+        ``rmse_apparent, rmsep, r2_apparent, r2_cv``, the cross-validated biases
+        ``mean_bias_cv, segment_bias_cv`` (residuals are predicted - observed; the segment
+        bias is the largest mean residual over ``n_segments`` equal ranges of the observed
+        values) and ``rmsep_vs_fewer_percent`` (change of RMSEP against one component fewer).
     """
     o = np.asarray(observed, dtype=float)
     rows = []
@@ -226,19 +228,19 @@ def performance_table(observed, apparent, predicted, rmsep=None, n_segments=10):
         this_rmsep = float(np.sqrt(np.mean(resid ** 2))) if rmsep is None else float(rmsep[a])
         rows.append({
             "n_components": a + 1,
-            "rmse": float(np.sqrt(np.mean((apparent[:, a] - o) ** 2))),
-            "r2": r_squared(o, apparent[:, a]),
+            "rmse_apparent": float(np.sqrt(np.mean((apparent[:, a] - o) ** 2))),
             "rmsep": this_rmsep,
+            "r2_apparent": r_squared(o, apparent[:, a]),
             "r2_cv": r_squared(o[ok], predicted[ok, a]),
-            "average_bias": float(resid.mean()),
-            "maximum_bias": maximum_bias(o, predicted[:, a], n_segments),
+            "mean_bias_cv": float(resid.mean()),
+            "segment_bias_cv": largest_segment_bias(o, predicted[:, a], n_segments),
         })
     table = pd.DataFrame(rows)
-    table["rmsep_change_percent"] = 100.0 * table["rmsep"].pct_change()
+    table["rmsep_vs_fewer_percent"] = 100.0 * table["rmsep"].pct_change()
     return table
 
 
-def choose_n_components(performance: pd.DataFrame, min_improvement=0.05) -> int:
+def choose_n_components(skill: pd.DataFrame, min_improvement=0.05) -> int:
     """Smallest number of components after which one more does not cut RMSEP by at least
     ``min_improvement`` (a fraction; 5 % after Birks 1998).
 
@@ -247,7 +249,7 @@ def choose_n_components(performance: pd.DataFrame, min_improvement=0.05) -> int:
     Birks, H. J. B. (1998). Numerical tools in palaeolimnology - progress, potentialities,
     and problems. J. Paleolimnol. 20, 307-332. doi:10.1023/A:1008038808690
     """
-    rmsep = performance["rmsep"].to_numpy()
+    rmsep = skill["rmsep"].to_numpy()
     chosen = 1
     for a in range(1, rmsep.size):
         if rmsep[a] <= (1.0 - min_improvement) * rmsep[chosen - 1]:

@@ -18,7 +18,7 @@ from proxies.problems import InputError, Problem
 from .assemblage import counts_to_percentages, rare_taxa_mask, transform_abundances
 from .crossval import (bootstrap_predictions, choose_n_components, component_predictions,
                        hblock_predictions, kfold_predictions, loo_predictions,
-                       performance_table)
+                       skill_by_components)
 from .data import InstrumentalSeries, TrainingSet
 from .diagnostics import (analogue_quality, analogue_thresholds, missing_taxa,
                           nearest_analogue_distance)
@@ -58,8 +58,8 @@ class FittedTransfer:
     n_components : int
         Chosen by :func:`~proxies.calibration.crossval.choose_n_components` for WA-PLS, 1
         otherwise.
-    performance : pandas.DataFrame
-        Per component (``training/<name>_performance.parquet``).
+    skill : pandas.DataFrame
+        Per number of components (``training/<name>_skill.parquet``).
     cv : pandas.DataFrame
         ``id, observed, predicted, residual, n_components`` cross-validated with the chosen
         number of components, plus ``predicted_c1 ...`` for every component of WA-PLS
@@ -76,7 +76,7 @@ class FittedTransfer:
     spec: TrainingSpec
     model: Any
     n_components: int
-    performance: pd.DataFrame
+    skill: pd.DataFrame
     cv: pd.DataFrame
     taxa: tuple[str, ...]
     target_name: str
@@ -211,13 +211,13 @@ def fit_transfer_function(training: TrainingSet, spec: TrainingSpec,
     full = spec.estimator().fit(x, y)
     apparent = component_predictions(full, x)
     predicted, rmsep = _cross_validate(spec, training, x, y, rng)
-    performance = performance_table(y, apparent, predicted, rmsep)
-    n_components = choose_n_components(performance, spec.min_improvement) \
+    skill = skill_by_components(y, apparent, predicted, rmsep)
+    n_components = choose_n_components(skill, spec.min_improvement) \
         if spec.model == "wapls" else 1
-    performance.insert(0, "training", training.name)
-    performance.insert(1, "model", spec.model)
-    performance.insert(2, "validation", spec.validation)
-    performance["chosen"] = performance["n_components"] == n_components
+    skill.insert(0, "training", training.name)
+    skill.insert(1, "model", spec.model)
+    skill.insert(2, "validation", spec.validation)
+    skill["chosen"] = skill["n_components"] == n_components
     model = spec.estimator(n_components).fit(x, y)
     cv = pd.DataFrame({"id": training.ids.astype(str), "observed": y,
                        "predicted": predicted[:, n_components - 1]})
@@ -228,10 +228,10 @@ def fit_transfer_function(training: TrainingSet, spec: TrainingSpec,
             cv[f"predicted_c{a + 1}"] = predicted[:, a]
     return FittedTransfer(
         name=training.name, spec=spec, model=model, n_components=n_components,
-        performance=performance, cv=cv, taxa=taxa,
+        skill=skill, cv=cv, taxa=taxa,
         target_name=spec.target_name or training.target_name, units=spec.units or training.units,
         thresholds=analogue_thresholds(percent, spec.analogue_percentiles),
-        rmsep=float(performance.loc[performance["chosen"], "rmsep"].iloc[0]),
+        rmsep=float(skill.loc[skill["chosen"], "rmsep"].iloc[0]),
         training_x=x, training_y=y, training_percent=percent)
 
 
@@ -296,7 +296,7 @@ def _transfer_record(core, proxy: ProxyCalibration, fitted: FittedTransfer, ense
     if np.any(empty):
         warnings.append(f"{int(empty.sum())} count samples hold none of the training taxa; "
                         "no reconstruction for them")
-    perf = fitted.performance.loc[fitted.performance["chosen"]].iloc[0]
+    perf = fitted.skill.loc[fitted.skill["chosen"]].iloc[0]
     skill = [{
         "period": "cross_validation", "status": "ok", "n_calibration": len(fitted.training_y),
         "r2": perf["r2_cv"], "rmse": perf["rmsep"], "calibration_error": fitted.rmsep,

@@ -23,7 +23,7 @@ _EXPORTS = {
     "calibrate_radiocarbon": ".calibrate",
     "curve_from_table": ".curves",
     "hpd_ranges": ".calibrate",
-    "mix_curves": ".curves",
+    "blend_curves": ".curves",
     "parse_curve_text": ".curves",
 }
 

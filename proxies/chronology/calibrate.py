@@ -42,9 +42,8 @@ __all__ = [
     "hpd_ranges",
 ]
 
-#: Student-t defaults of Christen & Perez (2009), from memory
-T_SHAPE_A = 3.0
-T_SHAPE_B = 4.0
+#: (a, b) of the Student-t likelihood, Christen & Perez (2009) (values from memory)
+ERROR_MULTIPLIER_PRIOR = (3.0, 4.0)
 
 
 class CurveRangeError(ValueError):
@@ -257,15 +256,17 @@ def _gather_rows(step: float, start: np.ndarray, blocks: list, row_width: np.nda
     return CalibratedDates(step, np.asarray(start, dtype=int), offsets, values)
 
 
-def _likelihood(residual, total_var, student_t: bool, t_a: float, t_b: float):
+def _likelihood(residual, total_var, student_t: bool, prior: tuple[float, float]):
     if student_t:
-        return (t_b + 0.5 * residual**2 / total_var) ** (-(t_a + 0.5)) / np.sqrt(total_var)
+        a, b = prior
+        return (b + 0.5 * residual**2 / total_var) ** (-(a + 0.5)) / np.sqrt(total_var)
     return np.exp(-0.5 * residual**2 / total_var) / np.sqrt(total_var)
 
 
 def calibrate_radiocarbon(ages, errors, curve: CalibrationCurve, reservoir_offset=0.0,
-                          reservoir_error=0.0, student_t: bool = False, t_a: float = T_SHAPE_A,
-                          t_b: float = T_SHAPE_B, labels=None) -> CalibratedDates:
+                          reservoir_error=0.0, student_t: bool = False,
+                          error_multiplier_prior: tuple[float, float] = ERROR_MULTIPLIER_PRIOR,
+                          labels=None) -> CalibratedDates:
     """Calibrate radiocarbon ages on a regular curve, all at once.
 
     Parameters
@@ -281,8 +282,9 @@ def calibrate_radiocarbon(ages, errors, curve: CalibrationCurve, reservoir_offse
         R - dR, sigma^2 + e^2).
     student_t : bool
         Use the Student-t likelihood of Christen & Perez (2009) instead of the normal.
-    t_a, t_b : float
-        Its parameters a and b.
+    error_multiplier_prior : (float, float)
+        Its parameters (a, b): the shape and rate of the gamma prior on the precision
+        multiplier of each date, integrated out (Christen & Perez 2009, their a and b).
     labels : sequence of str, optional
         Names used in error messages.
 
@@ -337,7 +339,7 @@ def calibrate_radiocarbon(ages, errors, curve: CalibrationCurve, reservoir_offse
         cells = np.arange(width)[None, :]
         idx = np.minimum(first[block, None] + cells, mu.size - 1)
         total_var = sigma[block, None] ** 2 + sc[idx] ** 2
-        dens = _likelihood(r[block, None] - mu[idx], total_var, student_t, t_a, t_b)
+        dens = _likelihood(r[block, None] - mu[idx], total_var, student_t, error_multiplier_prior)
         dens[cells >= widths[block, None]] = 0.0
         dens /= dens.sum(axis=1, keepdims=True)
         flat.append((block, dens))

@@ -24,7 +24,7 @@ import numpy as np
 
 from proxies.problems import InputError, Problem
 
-__all__ = ["CalibrationCurve", "curve_from_table", "parse_curve_text", "mix_curves"]
+__all__ = ["CalibrationCurve", "curve_from_table", "parse_curve_text", "blend_curves"]
 
 _SEPARATOR = re.compile(r"[,;\s]+")
 _FIX_LAYOUT = (
@@ -213,8 +213,8 @@ def parse_curve_text(text: str, name: str, source: str = "<curve>") -> Calibrati
     return curve_from_table(name, np.array(rows))
 
 
-def mix_curves(first: CalibrationCurve, second: CalibrationCurve, proportion_second: float,
-               name: str | None = None, step: float = 1.0) -> CalibrationCurve:
+def blend_curves(base: CalibrationCurve, admixture: CalibrationCurve, admixture_share: float,
+                 name: str | None = None, step: float = 1.0) -> CalibrationCurve:
     """Mixture of two curves for a sample with two carbon sources (common practice).
 
     ``mu = (1 - p) mu_1 + p mu_2``; ``sigma = sqrt((1 - p)^2 sigma_1^2 + p^2 sigma_2^2)``
@@ -223,11 +223,14 @@ def mix_curves(first: CalibrationCurve, second: CalibrationCurve, proportion_sec
 
     Parameters
     ----------
-    first, second : CalibrationCurve
-    proportion_second : float
-        Fraction p of carbon from ``second``, in [0, 1].
+    base, admixture : CalibrationCurve
+        The curve of the main carbon source and of the admixed one (e.g. a marine curve for a
+        lake with a marine carbon share).
+    admixture_share : float
+        Fraction p of carbon from ``admixture``, in [0, 1].
     """
-    p = float(proportion_second)
+    first, second = base, admixture
+    p = float(admixture_share)
     if not 0.0 <= p <= 1.0:
         raise ValueError(f"mixture proportion must be in [0, 1], got {p}")
     lo = max(first.cal_range[0], second.cal_range[0])

@@ -49,7 +49,7 @@ class ChronologyResult:
         Age of each member at each output depth [cal BP].
     summary : pandas.DataFrame
         ``chronology.parquet``: depth_cm, event_free_depth_cm, age_median, age_q025,
-        age_q975, age_mean, age_sd, acc_rate_yr_cm.
+        age_q975, age_mean, age_sd, deposition_time_yr_cm.
     dates : pandas.DataFrame
         ``dates.parquet``: each date's inputs with its calibration and outlier probability.
     warnings : list of str
@@ -186,7 +186,7 @@ def calibrate_core_dates(core, curves: dict[str, CalibrationCurve], settings: Ch
             part = calibrate_radiocarbon(
                 table["age"].to_numpy(float)[rows], table["error"].to_numpy(float)[rows], curve,
                 table["reservoir_offset"].to_numpy(float)[rows], table["reservoir_error"].to_numpy(float)[rows],
-                student_t=settings.student_t, t_a=settings.t_a, t_b=settings.t_b,
+                student_t=settings.student_t, error_multiplier_prior=settings.error_multiplier_prior,
                 labels=table["label"].astype(str).to_numpy()[rows])
         except CurveRangeError as error:
             for j in error.index:
@@ -432,7 +432,7 @@ def _summary(depth_cm, free, ensemble) -> pd.DataFrame:
     return pd.DataFrame({
         "depth_cm": depth_cm, "event_free_depth_cm": free, "age_median": median, "age_q025": q025,
         "age_q975": q975, "age_mean": ensemble.mean(axis=1), "age_sd": ensemble.std(axis=1, ddof=1)
-        if ensemble.shape[1] > 1 else np.zeros(depth_cm.size), "acc_rate_yr_cm": rate})
+        if ensemble.shape[1] > 1 else np.zeros(depth_cm.size), "deposition_time_yr_cm": rate})
 
 
 def _dates_table(table, calibrated: CalibratedDates, medians, outlier, model_ages) -> pd.DataFrame:

@@ -5,7 +5,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 from proxies.problems import Problem
-from proxies.settings_checks import settings_from_mapping
+from proxies.settings_spec import setting, settings_from_mapping
 
 __all__ = ["ReconstructionSettings", "WMO_NORMAL_PERIODS"]
 
@@ -19,50 +19,41 @@ _STACK_METHODS = ("anomaly", "zscore")
 
 @dataclass(frozen=True)
 class ReconstructionSettings:
-    """How calibrated ensembles are put on a time grid, referenced and stacked.
+    """How calibrated ensembles are put on a time grid, referenced and stacked (one attribute
+    per key).
 
-    Attributes
-    ----------
-    grid_step_yr : float
-        Spacing of the regular time grid [yr]. Grid points are multiples of the step, so that
-        the grids of all cores of a run line up. Default 50.
-    grid_young_cal_bp, grid_old_cal_bp : float or None
-        Grid range [cal BP]; ``None`` (default) takes it from the median ages of the samples.
-    binning : {"bin", "interpolate"}
-        ``"bin"`` (default): mean of the samples whose age (per member) falls in the grid
-        cell; cells without a sample stay empty. ``"interpolate"``: linear interpolation of
-        each member at the grid points inside the member's age range (no extrapolation).
-    reference : {"auto", "normal", "window", "record"}
-        Reference for anomalies. ``"normal"``: the WMO standard normal ``normal_period``;
-        ``"window"``: the window ``reference_young_cal_bp``..``reference_old_cal_bp``;
-        ``"record"``: the whole grid range; ``"auto"`` (default): the normal when the record
-        covers it, else the window when one is given, else the whole record.
-    normal_period : {"1961-1990", "1991-2020"}
-        WMO climatological standard normal used by ``"normal"``/``"auto"``. Default 1961-1990.
-    reference_young_cal_bp, reference_old_cal_bp : float or None
-        A user-stated reference window [cal BP].
-    min_member_share : float
-        A grid point gets quantiles only when at least this share of members has a value
-        there. Default 0.5.
-    stack_method : {"anomaly", "zscore"}
-        Regional composite of departures from the stack-window mean (``"anomaly"``, default)
-        or of z-scores over the stack window (``"zscore"``).
-    stack_young_cal_bp, stack_old_cal_bp : float or None
-        Common window of the composite [cal BP]; ``None`` (default): the overlap of all records.
+    Grid points are multiples of ``grid_step_yr``, so that the grids of all cores of a run line
+    up; the grid range is taken from the samples' median ages unless given. ``binning``:
+    ``"bin"`` is the mean of the samples whose age (per member) falls in a cell, cells without
+    a sample staying empty; ``"interpolate"`` is linear interpolation of each member inside its
+    age range (no extrapolation). ``reference``: ``"normal"`` the WMO standard normal
+    ``normal_period``; ``"window"`` the stated reference window; ``"record"`` the whole grid
+    range; ``"auto"`` the normal when the record covers it, else the window when one is given,
+    else the whole record. ``stack_method``: departures from the stack-window mean
+    (``"anomaly"``) or z-scores over the stack window (``"zscore"``); the stack window is the
+    overlap of all records unless given.
     """
 
-    grid_step_yr: float = 50.0
-    grid_young_cal_bp: float | None = None
-    grid_old_cal_bp: float | None = None
-    binning: str = "bin"
-    reference: str = "auto"
-    normal_period: str = "1961-1990"
-    reference_young_cal_bp: float | None = None
-    reference_old_cal_bp: float | None = None
-    min_member_share: float = 0.5
-    stack_method: str = "anomaly"
-    stack_young_cal_bp: float | None = None
-    stack_old_cal_bp: float | None = None
+    grid_step_yr: float = setting(50.0, "spacing of the regular time grid [yr]", low=0.0, low_open=True)
+    grid_young_cal_bp: float | None = setting(None, "young end of the grid [cal BP]", kind=float)
+    grid_old_cal_bp: float | None = setting(None, "old end of the grid [cal BP]", kind=float)
+    binning: str = setting("bin", "how members are put on the grid", choices=_BINNING)
+    reference: str = setting("auto", "reference period of the anomalies", choices=_REFERENCE)
+    normal_period: str = setting("1961-1990", "WMO climatological standard normal",
+                                 choices=tuple(WMO_NORMAL_PERIODS))
+    reference_young_cal_bp: float | None = setting(None, "young end of a stated reference window "
+                                                   "[cal BP]", kind=float)
+    reference_old_cal_bp: float | None = setting(None, "old end of a stated reference window "
+                                                 "[cal BP]", kind=float)
+    min_member_share: float = setting(0.5, "a grid point gets quantiles only when at least this "
+                                      "share of members has a value there", low=0.0, high=1.0,
+                                      low_open=True)
+    stack_method: str = setting("anomaly", "how records enter the regional composite",
+                                choices=_STACK_METHODS)
+    stack_young_cal_bp: float | None = setting(None, "young end of the composite's window [cal BP]",
+                                               kind=float)
+    stack_old_cal_bp: float | None = setting(None, "old end of the composite's window [cal BP]",
+                                             kind=float)
 
     @property
     def reference_window(self) -> tuple[float, float] | None:
@@ -87,34 +78,7 @@ class ReconstructionSettings:
         proxies.problems.InputError
             Naming every unknown key, wrong type or out-of-range value (``column`` = key).
         """
-        return settings_from_mapping(cls, mapping, where, lambda key, value: _check(key, value, where),
-                                     lambda values: _cross_check(values, where))
-
-
-_OPTIONAL_NUMBERS = ("grid_young_cal_bp", "grid_old_cal_bp", "reference_young_cal_bp",
-                     "reference_old_cal_bp", "stack_young_cal_bp", "stack_old_cal_bp")
-
-
-def _check(key: str, value, where: str):
-    """The value of one ``[reconstruction]`` key, converted, or the :class:`Problem` with it."""
-    choices = {"binning": _BINNING, "reference": _REFERENCE,
-               "normal_period": tuple(WMO_NORMAL_PERIODS), "stack_method": _STACK_METHODS}
-    if key in choices:
-        if value not in choices[key]:
-            return Problem(where, f"'{key}' = {value!r} is not allowed",
-                           f"use one of: {', '.join(choices[key])}", column=key)
-        return value
-    if key not in ("grid_step_yr", "min_member_share", *_OPTIONAL_NUMBERS):
-        return value
-    if isinstance(value, bool) or not isinstance(value, (int, float)):
-        return Problem(where, f"'{key}' must be a number, got {value!r}", "write a plain number, e.g. 50",
-                       column=key)
-    value = float(value)
-    if key == "grid_step_yr" and not value > 0:
-        return Problem(where, "'grid_step_yr' must be > 0", "give the grid spacing in years, e.g. 50", column=key)
-    if key == "min_member_share" and not 0 < value <= 1:
-        return Problem(where, "'min_member_share' must be in (0, 1]", "e.g. 0.5", column=key)
-    return value
+        return settings_from_mapping(cls, mapping, where, lambda values: _cross_check(values, where))
 
 
 def _cross_check(values: dict, where: str) -> list[Problem]:
