@@ -187,6 +187,7 @@ TABLES: dict[str, OutputTable] = {t.key: t for t in (
         _c("reservoir_offset", "float", "14C yr", "reservoir offset as given"),
         _c("reservoir_error", "float", "14C yr", "its 1-sigma error"),
         _c("exclude", "bool", "", "excluded from the age model"),
+        _c("constraint", "bool", "", "a constraint, never an outlier (the core top)"),
         _c("source_row", "number", "", "1-based row of the input file (empty for the core top)"),
         _c("section", "string", "", "section named in the input"),
         _c("section_depth_cm", "float", "cm", "depth below the section top as given"),

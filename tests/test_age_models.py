@@ -49,8 +49,10 @@ def _tiny_problem(seed=3):
     size = 20
     mass = rng.random((3, size)) ** 4
     mass /= mass.sum(axis=1, keepdims=True)
+    broad = 0.2 * rng.random((3, size)) / size  # a non-flat outlier part, not normalised to the grid
     return AccumulationProblem(np.array([0.0, 5.0, 5.0, 12.0]), np.array([False, True, False]),
-                               np.array([0, 3, 3]), mass, np.array([0.1, 0.2, 0.05]), 0.0, 10.0, 5.0)
+                               np.array([0, 3, 3]), mass, np.array([0.1, 0.2, 0.05]), 0.0, 10.0, 5.0,
+                               outlier_mass=broad)
 
 
 def _enumerate(problem, kernels):
@@ -70,11 +72,12 @@ def _enumerate(problem, kernels):
         if w == 0.0:
             continue
         like = np.array([per[d, path[k]] for d, k in enumerate(problem.date_node)])
+        broad = np.array([problem.outlier_likelihoods()[d, path[k]] for d, k in enumerate(problem.date_node)])
         w *= like.prod()
         total += w
         for k in range(problem.n_nodes):
             post[k, path[k]] += w
-        outlier += w * (problem.outlier_prior / size) / like
+        outlier += w * problem.outlier_prior * broad / like
     return np.log(total), post / total, outlier / total
 
 

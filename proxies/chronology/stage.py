@@ -26,6 +26,7 @@ from proxies.chronology.calibrate import (
 )
 from proxies.chronology.curves import CalibrationCurve
 from proxies.chronology.interpolation import fit_interpolation
+from proxies.chronology.outliers import outlier_density
 from proxies.chronology.settings import ChronologySettings
 from proxies.problems import InputError, Problem
 
@@ -153,13 +154,15 @@ def calibrate_core_dates(core, curves: dict[str, CalibrationCurve], settings: Ch
                             ("reservoir_error", 0.0), ("exclude", False), ("source_row", np.nan)):
         if column not in table.columns:
             table[column] = default
-    if settings.core_top:
-        error = getattr(core, "top_age_error", None) or settings.top_age_error_yr
+    table["constraint"] = False
+    if top_is_surface(core, settings):
+        error = core.top_age_error or settings.top_age_error_yr
         top = {c: None for c in table.columns}
         top.update(label=CORE_TOP_LABEL, depth_cm=0.0, kind="calendar", age=float(core.top_age_cal_bp),
                    error=float(error), thickness_cm=0.0, reservoir_offset=0.0, reservoir_error=0.0,
-                   exclude=False, source_row=np.nan)
+                   exclude=False, source_row=np.nan, constraint=True)
         table = pd.concat([pd.DataFrame([top]), table], ignore_index=True)
+    table["constraint"] = table["constraint"].astype(bool)
     table["reservoir_offset"] = pd.to_numeric(table["reservoir_offset"]).fillna(0.0)
     table["reservoir_error"] = pd.to_numeric(table["reservoir_error"]).fillna(0.0)
     table["exclude"] = table["exclude"].fillna(False).astype(bool)
@@ -216,6 +219,19 @@ def calibrate_core_dates(core, curves: dict[str, CalibrationCurve], settings: Ch
         raise InputError(problems)
     table["curve_used"] = used
     return table, stack_calibrated(parts, len(table))
+
+
+def top_is_surface(core, settings: ChronologySettings) -> bool:
+    """Whether the core top is the sediment surface of the collection year (a constraint).
+
+    ``core.toml``'s ``top_intact`` decides when given; otherwise ``[chronology] core_top``.
+    """
+    return settings.core_top if core.top_intact is None else bool(core.top_intact)
+
+
+def outlier_priors(table: pd.DataFrame, settings: ChronologySettings) -> np.ndarray:
+    """Prior outlier probability of each date: ``outlier_prior``, 0 for constraints (core top)."""
+    return np.where(table["constraint"].to_numpy(bool), 0.0, settings.outlier_prior)
 
 
 def _row(table: pd.DataFrame, i: int) -> int | None:
@@ -306,7 +322,8 @@ def build_chronology(core, curves: dict[str, CalibrationCurve], settings: Chrono
             table, calibrated, use, z, hiatuses, top, bottom, centre, core, settings, ensemble, rng)
     else:
         nodes, paths, outlier_used = _run_interpolation(
-            calibrated, use, z, hiatuses, free_out, centre, settings, ensemble, rng)
+            calibrated, use, z, hiatuses, free_out, centre, settings, ensemble, rng,
+            outlier_priors(table, settings))
     outlier[use] = outlier_used
     result_ensemble = interpolate_nodes(nodes, paths, free_out)
     summary = _summary(out_depth, free_out, result_ensemble)
@@ -406,7 +423,7 @@ def _run_accumulation(table, calibrated: CalibratedDates, use, z, hiatuses, top,
     young = float(lows.min() - max(0.0, z_used.min() - top) * rates.max() * 3 - 100)
     top_age = getattr(core, "top_age_cal_bp", None)
     if top_age is not None:
-        error = getattr(core, "top_age_error", None) or settings.top_age_error_yr
+        error = core.top_age_error or settings.top_age_error_yr
         # a core cannot be younger than its collection year: the grid starts there
         young = float(min(lows.min(), top_age - 4 * error))
     old = float(highs.max() + max(0.0, bottom - z_used.max()) * rates.max() * 3
@@ -419,9 +436,10 @@ def _run_accumulation(table, calibrated: CalibratedDates, use, z, hiatuses, top,
     origin = math.floor(young / step) * step
     mass = used.on_grid(origin, step, size)
     node_of = np.searchsorted(nodes, z_used - 1e-6, side="left")
-    prior = np.full(z_used.size, settings.outlier_prior)
+    prior = outlier_priors(table, settings)[use]
+    broad = outlier_density(used, origin, step, size, *settings.outlier_shift_scale)
     problem = AccumulationProblem(nodes, gap_after, node_of, mass, prior, float(origin), float(step),
-                                  float(settings.node_spacing_cm))
+                                  float(settings.node_spacing_cm), outlier_mass=broad)
     mult, shape = np.meshgrid(rates, np.asarray(settings.rate_shapes), indexing="ij")
     fit = fit_accumulation(problem, mult.ravel(), shape.ravel(), settings.hiatus_gap_yr, ensemble, rng)
     hyper = pd.DataFrame({"mean_rate_yr_cm": fit.mean_rates, "shape": fit.shapes,
@@ -430,12 +448,12 @@ def _run_accumulation(table, calibrated: CalibratedDates, use, z, hiatuses, top,
 
 
 def _run_interpolation(calibrated: CalibratedDates, use, z, hiatuses, free_out, centre,
-                       settings: ChronologySettings, ensemble: int, rng):
+                       settings: ChronologySettings, ensemble: int, rng, priors: np.ndarray):
     index = np.flatnonzero(use)
     index = index[np.argsort(z[index], kind="stable")]
     chosen = calibrated.take(index)
     depths = z[index]
-    prior = np.full(index.size, settings.outlier_prior)
+    prior = priors[index]
     edges = sorted(h for h in hiatuses)
     ladder = np.unique(np.concatenate([free_out, depths]))
     nodes = np.sort(np.concatenate([ladder, [h for h in edges if ladder[0] < h < ladder[-1]]]))
