@@ -209,10 +209,7 @@ def stage_settings(config: RunConfig, stage: str):
 
 
 def check_run_config(path: str | Path, *, year: int | None = None) -> list[Problem]:
-    """Every problem of a run config, its stage sections and all its core folders.
-
-    Stage sections whose Settings class cannot be imported yet are skipped.
-    """
+    """Every problem of a run config, its stage sections and all its core folders."""
     report = check_run_config_by_core(path, year=year)
     return [problem for _, problems in report.values() for problem in problems]
 
@@ -234,10 +231,6 @@ def check_run_config_by_core(
     for stage in STAGE_SETTINGS:
         if not config.sections.get(stage):
             continue
-        try:
-            _settings_class(stage)
-        except (ImportError, AttributeError):
-            continue  # that stage's settings class is not available in this installation
         try:
             stage_settings(config, stage)
         except InputError as error:
