@@ -58,7 +58,6 @@ import numpy as np
 import pandas as pd
 
 from proxies.events.candidates import EXCURSION, KIND_NAMES, Candidates, detect_candidates
-from proxies.events.changepoints import bic_penalty
 from proxies.events.ramp import fit_ramps
 from proxies.events.scan import ScanProfile
 from proxies.events.settings import EventSettings
@@ -197,16 +196,18 @@ class _Search:
 def _search(x: np.ndarray, observed: np.ndarray, background: int, max_exc: int, settings: EventSettings,
             rng: np.random.Generator) -> _Search:
     """Prepare, estimate the null persistence, detect candidates and calibrate them."""
-    work = prepare_series(x, observed, background)
+    keep = settings.background_keeps_changes
+    work = prepare_series(x, observed, background, keep)
     # Persistence from each series' own (unevenly spaced) non-empty cells, its most prominent
     # excursion left out (Mudelsee 2002), bias-corrected by simulation so that the null
     # matches the data's treatment.
-    tau_steps, _ = matched_null_tau(work, observed, background, rng, mask_points=max_exc)
+    tau_steps, _ = matched_null_tau(work, observed, background, rng, mask_points=max_exc, keep_steps=keep)
     persistence = float(np.exp(-1.0 / tau_steps)) if tau_steps > 0 else 0.0
-    penalty = bic_penalty(x.shape[0], "mean", settings.penalty_factor)
-    cands, profile = detect_candidates(work, max_exc, penalty, observed, persistence, return_profile=True)
-    null, null_profile = null_maxima(x.shape[0], tau_steps, settings.n_surrogates, max_exc, penalty, rng,
-                                     observed=observed, background_points=background, return_profile=True)
+    support = settings.edge_support_points
+    cands, profile = detect_candidates(work, max_exc, support, observed, persistence, return_profile=True)
+    null, null_profile = null_maxima(x.shape[0], tau_steps, settings.n_surrogates, max_exc, support, rng,
+                                     observed=observed, background_points=background, return_profile=True,
+                                     keep_steps=keep)
     return _Search(cands, monte_carlo_p_values(cands, null), profile, null, null_profile, tau_steps)
 
 
