@@ -350,8 +350,9 @@ def run_reconstruction(plan: RunPlan, ingest: dict, chronology: dict, calibratio
         if ensemble is not None:
             write_table(staged / "reconstruction_ensemble.parquet", _table(ensemble))
             files["reconstruction_ensemble.parquet"] = "reconstruction_ensemble.parquet"
-        return {"files": files, "n_series": len(result.series),
-                "warnings": _unique(caught + list(getattr(result, "warnings", []) or []))}
+        return {"files": files, "n_series": len(result.series), "filled": dict(result.filled),
+                "thin": list(result.thin), "notes": list(result.notes),
+                "warnings": _unique(caught + list(result.warnings))}
 
     return _cached_or_build(store, "reconstruction", key, produce, {"core_id": core_id}, recompute)
 
