@@ -394,14 +394,21 @@ def detect_core_events(reconstruction, settings: EventSettings, rng: np.random.G
     notes: list[str] = []
     event_frames, prob_frames, det_frames, onset_frames = [], [], [], []
     names = sorted(reconstruction.series)
+    if not settings.enabled:
+        notes.append("event detection is off ([events] enabled = false); events not searched")
+        names = []
     if settings.variables is not None:
-        names = [n for n in names if n in settings.variables]
-    for name in names if settings.enabled else []:
+        listed = [n for n in names if n in settings.variables]
+        notes += [f"{n}: not listed in [events] variables; events not searched"
+                  for n in names if n not in listed]
+        names = listed
+    for name in names:
         s = reconstruction.series[name]
         # Grid points where at least half of the members have a value (as in the table).
         rows = np.flatnonzero(np.isfinite(s.values).mean(axis=1) >= 0.5) if s.values.size else np.zeros(0, int)
         if rows.size < _MIN_POINTS:
-            notes.append(f"{name}: only {rows.size} grid points with values; events not searched")
+            notes.append(f"{name}: only {rows.size} grid points with values (at least {_MIN_POINTS} "
+                         "are needed); events not searched")
             continue
         span = slice(rows[0], rows[-1] + 1)
         values = s.values[span]
