@@ -89,6 +89,8 @@ class RunConfig:
         Ensemble members M, 10..100 000 (default 1000).
     core_folders : tuple of Path
         Core folders matched by ``[run] cores`` (relative to the config file), sorted, unique.
+    core_patterns : tuple of str
+        ``[run] cores`` as written.
     curves : dict of str to Path
         Calibration-curve name -> existing file.
     sections : dict of str to dict
@@ -102,6 +104,7 @@ class RunConfig:
     core_folders: tuple[Path, ...]
     curves: dict[str, Path]
     sections: dict[str, dict] = field(default_factory=dict)
+    core_patterns: tuple[str, ...] = ()
 
     def resolve(self, relative: str | Path) -> Path:
         """A path written in the config, relative to the config file's folder."""
@@ -143,7 +146,8 @@ def _parse(path: Path) -> tuple[RunConfig | None, list[Problem]]:
     if problems:
         return None, problems
     return RunConfig(path=path.resolve(), seed=settings.seed, ensemble=settings.ensemble,
-                     core_folders=folders, curves=curves, sections=sections), []
+                     core_folders=folders, curves=curves, sections=sections,
+                     core_patterns=settings.cores), []
 
 
 def _core_folders(patterns: tuple[str, ...] | None, path: Path, name: str,

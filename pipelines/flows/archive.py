@@ -25,6 +25,7 @@ from prefect import flow
 from pipelines.flows import tasks
 from pipelines.flows.plan import RunPlan
 from pipelines.flows.stage_table import CORE_STAGES, SCIENCE_STAGES, STAGES, probe_stage
+from pipelines.flows.status import RECONSTRUCTED, finished_status
 from pipelines.flows.store import WorkStore
 
 __all__ = ["archive_flow", "core_flow", "CoreTrack", "register_observer", "unregister_observer"]
@@ -221,7 +222,7 @@ class _Driver:
 
     def _publish(self, track: CoreTrack) -> None:
         if track.status == "running":
-            track.status = "ok"
+            track.status = finished_status(track.entries)
         track.say(f"finished: {track.status}, stage reached {track.reached or 'none'}")
         entries = [track.entries[s] for s in SCIENCE_STAGES if s in track.entries]
         self.pending += 1
@@ -350,7 +351,7 @@ def archive_flow(plan: RunPlan, run_dir: str, cache_dir: str, recompute: bool = 
     tracks = driver.run()
     notes = [f"training set {n}: {m}" for n, m in sorted(driver.training_failed.items())]
     reconstructions = {t.name: t.entries["reconstruction"] for t in tracks
-                       if t.status == "ok" and "reconstruction" in t.entries}
+                       if t.status in RECONSTRUCTED and "reconstruction" in t.entries}
     stack = None
     if reconstructions:
         entries = {"reconstructions": reconstructions}
