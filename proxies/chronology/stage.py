@@ -27,6 +27,7 @@ from proxies.chronology.calibrate import (
 from proxies.chronology.curves import CalibrationCurve
 from proxies.chronology.interpolation import fit_interpolation
 from proxies.chronology.settings import ChronologySettings
+from proxies.cores.validation import resolve_curve_name
 from proxies.problems import InputError, Problem
 
 __all__ = ["ChronologyResult", "build_chronology", "calibrate_core_dates", "date_density_table", "format_ranges",
@@ -110,18 +111,13 @@ def _event_free(depth_scale, depth: np.ndarray) -> np.ndarray:
 
 
 def _curve_name(cell, settings: ChronologySettings, curves: dict) -> str | None:
-    if cell is not None and not (isinstance(cell, float) and math.isnan(cell)) and str(cell).strip():
-        return str(cell).strip()
-    if settings.default_curve:
-        return settings.default_curve
-    if len(curves) == 1:
-        return next(iter(curves))
-    if "atmosphere" in curves:
-        return "atmosphere"
-    return None
+    return resolve_curve_name(cell, settings.default_curve, curves)
 
 
 def _dates_file(core) -> str:
+    files = getattr(core, "files", None) or {}
+    if "dates" in files:
+        return files["dates"]
     folder = getattr(core, "folder", "") or ""
     return f"{folder}/dates" if folder else f"dates of core {getattr(core, 'id', '?')}"
 

@@ -102,6 +102,9 @@ class Core:
         Composite depths of hiatuses [cm], sorted.
     folder : str
         The core folder as given.
+    files : dict of str to str
+        ``samples``/``dates``/``counts`` -> the file as problems name it
+        (``<folder>/dates.csv``).
     """
 
     id: str
@@ -118,6 +121,7 @@ class Core:
     event_layers: tuple[EventLayer, ...] = ()
     hiatuses_cm: tuple[float, ...] = ()
     folder: str = ""
+    files: dict = field(default_factory=dict, repr=False)
 
     @property
     def top_age_cal_bp(self) -> float:
