@@ -27,6 +27,8 @@ from proxies.chronology.calibrate import (
 from proxies.chronology.curves import CalibrationCurve
 from proxies.chronology.interpolation import fit_interpolation
 from proxies.chronology.settings import ChronologySettings
+from proxies.cores.datability import (age_control_problems, event_layer_problems, grid_memory_problems,
+                                      machine_memory_bytes)
 from proxies.cores.validation import resolve_curve_name
 from proxies.problems import InputError, Problem
 
@@ -267,6 +269,10 @@ def build_chronology(core, curves: dict[str, CalibrationCurve], settings: Chrono
     """
     if ensemble < 1:
         raise ValueError(f"ensemble must be >= 1, got {ensemble}")
+    refused = (age_control_problems(core, settings.core_top) + event_layer_problems(core)
+               + grid_memory_problems(core, settings, None, ensemble, machine_memory_bytes(), "run config"))
+    if refused:
+        raise InputError(refused)
     messages: list[str] = []
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
