@@ -169,6 +169,7 @@ def _build_core(spec: CoreSpec, tables: dict, folder: str) -> Core:
         hiatuses_cm=spec.hiatuses_cm,
         folder=folder,
         files=files,
+        top_intact=spec.top_intact,
     )
 
 

@@ -39,7 +39,8 @@ WINDOWS_RESERVED = frozenset({"con", "prn", "aux", "nul"} | {f"com{i}" for i in 
 RUN_FOLDER_ENTRIES = frozenset({"figures", "training", "exports", "report", "logs", "cache", "stack",
                                 "summary", "timings", "manifest", "replay"})
 TOP_LEVEL_KEYS = ("core", "files", "sections", "event_layers", "hiatuses")
-CORE_KEYS = ("id", "archive", "latitude", "longitude", "collected", "depth_unit", "site", "top_age_error")
+CORE_KEYS = ("id", "archive", "latitude", "longitude", "collected", "depth_unit", "site", "top_age_error",
+             "top_intact")
 FILE_KEYS = ("samples", "dates", "counts")
 
 
@@ -69,6 +70,7 @@ class CoreSpec:
     event_layers: tuple[EventLayer, ...] = ()
     hiatuses_cm: tuple[float, ...] = ()
     sheets: dict[str, str] = field(default_factory=dict)
+    top_intact: bool | None = None
 
     @property
     def depth_factor(self) -> float:
@@ -234,6 +236,7 @@ def check_core_mapping(
                   "give the 1-sigma error of the core-top age in years (e.g. 5), or leave the key out",
                   "core.top_age_error")
         top_age_error = None
+    top_intact = _top_intact(where, core)
 
     files, sheets = _check_files(where, _table(where, mapping, "files", required=True))
     factor = DEPTH_UNITS.get(depth_unit or "cm", 1.0)
@@ -248,9 +251,22 @@ def check_core_mapping(
         id=core_id, archive=archive, latitude=latitude, longitude=longitude, collected_ce=collected,
         site=site, top_age_error=top_age_error, depth_unit=depth_unit, files=files, sheets=sheets,
         sections=sections, event_layers=tuple(sorted(layers, key=lambda e: e.top_cm)),
-        hiatuses_cm=tuple(sorted(hiatuses)),
+        hiatuses_cm=tuple(sorted(hiatuses)), top_intact=top_intact,
     )
     return spec, []
+
+
+def _top_intact(where: _Collector, core: dict) -> bool | None:
+    """``top_intact``: whether the core top is the sediment surface of the collection year."""
+    if "top_intact" not in core:
+        return None
+    value = core["top_intact"]
+    if not isinstance(value, bool):
+        where.add(f"'top_intact' must be true or false, got {value!r}",
+                  "write top_intact = false for a lost or older top (piston core, truncated sequence), "
+                  "or leave it out", "core.top_intact")
+        return None
+    return value
 
 
 def _collected_year(where: _Collector, core: dict, year: int) -> int | None:

@@ -105,6 +105,10 @@ class Core:
     files : dict of str to str
         ``samples``/``dates``/``counts`` -> the file as problems name it
         (``<folder>/dates.csv``).
+    top_intact : bool or None
+        ``core.toml``'s ``top_intact``: ``True`` when the core top is the sediment surface of
+        the collection year, ``False`` for a lost or older top; ``None`` when not given (the
+        run's ``[chronology] core_top`` decides).
     """
 
     id: str
@@ -122,6 +126,7 @@ class Core:
     hiatuses_cm: tuple[float, ...] = ()
     folder: str = ""
     files: dict = field(default_factory=dict, repr=False)
+    top_intact: bool | None = None
 
     @property
     def top_age_cal_bp(self) -> float:
