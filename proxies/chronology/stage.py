@@ -291,7 +291,7 @@ def build_chronology(core, curves: dict[str, CalibrationCurve], settings: Chrono
     """
     if ensemble < 1:
         raise ValueError(f"ensemble must be >= 1, got {ensemble}")
-    refused = (age_control_problems(core, settings.core_top) + event_layer_problems(core)
+    refused = (age_control_problems(core, top_is_surface(core, settings)) + event_layer_problems(core)
                + grid_memory_problems(core, settings, None, ensemble, machine_memory_bytes(), "run config"))
     if refused:
         raise InputError(refused)
