@@ -41,7 +41,7 @@ import numpy as np
 import pandas as pd
 
 from pipelines.manifest import InputChange, check_inputs, read_manifest
-from pipelines.runfolder import read_parquet
+from pipelines.runfolder import ensure_writable_folder, read_parquet
 
 __all__ = ["OutputVerdict", "ReplayReport", "compare_outputs", "compare_tables", "replay_run"]
 
@@ -191,8 +191,8 @@ def replay_run(manifest_path: str | os.PathLike[str], out_dir: str | os.PathLike
         return report
     temporary = None
     if cache_dir is None:
-        parent = pathlib.Path(out_dir).expanduser().resolve().parent
-        parent.mkdir(parents=True, exist_ok=True)
+        parent = ensure_writable_folder(pathlib.Path(out_dir).expanduser().resolve().parent,
+                                        "the folder of --out")
         temporary = pathlib.Path(tempfile.mkdtemp(prefix=".downcore-replay-cache-", dir=parent))
     try:
         outcome = execute_run(config, out_dir, choice=choice, cache_dir=cache_dir or temporary,

@@ -48,6 +48,22 @@ def _input_files(plan: Any) -> list[pathlib.Path]:
     return [pathlib.Path(f) for f in files]
 
 
+#: files that only a run folder holds (its lock, its in-progress marker, its manifest)
+RUN_FOLDER_SIGNS = (".downcore-lock", ".downcore-in-progress", "manifest.json")
+
+
+def _run_folders_inside(core: pathlib.Path) -> list[pathlib.Path]:
+    """Folders below a core folder that are run folders (left there by an older version):
+    their files would be hashed as the core's inputs."""
+    found = []
+    for folder, subfolders, files in os.walk(core):
+        subfolders[:] = [name for name in subfolders if not name.startswith(".")]
+        if pathlib.Path(folder) != core and any(name in files for name in RUN_FOLDER_SIGNS):
+            found.append(pathlib.Path(folder))
+            subfolders[:] = []
+    return found
+
+
 def location_problems(plan: Any, out_dir: str | os.PathLike[str],
                       cache_dir: str | os.PathLike[str]) -> list[Problem]:
     """Every reason why ``out_dir`` or ``cache_dir`` may not be written for this run.
@@ -63,7 +79,10 @@ def location_problems(plan: Any, out_dir: str | os.PathLike[str],
     cores = [pathlib.Path(f) for f in plan.core_folders]
     patterns = _patterns(plan.raw, config.parent)
     inputs = _input_files(plan)
-    problems = []
+    problems = [Problem(str(config), f"the core folder {core} holds the run folder {run}: its files "
+                        "would be read as the core's input files", "move the run folder out of the core "
+                        "folder", column="run.cores")
+                for core in cores for run in _run_folders_inside(core)]
     for option, given in (("--out", out_dir), ("--cache-dir", cache_dir)):
         folder = pathlib.Path(given).expanduser().resolve()
         where = f"{option} {folder}"

@@ -149,3 +149,12 @@ def test_exit_status_precedence():
     assert exit_status(report("new")) == 1
     assert exit_status(report("different", "error")) == 4
     assert exit_status(report("error", changed=True)) == 2
+
+
+def test_replay_into_an_unwritable_place_is_refused_with_exit_two(recorded, tmp_path):
+    from readonly import read_only_folder
+
+    _, _, run = recorded
+    with read_only_folder(tmp_path / "ro") as parent:
+        result = CliRunner().invoke(main, ["replay", str(run), "--out", str(parent / "r"), "-q"])
+    assert result.exit_code == 2 and "cannot be written" in result.output, result.output

@@ -130,6 +130,19 @@ def test_ordinary_places_are_accepted(plan):
     assert location_problems(plan, root / "runs" / "a", root / ".downcore-cache") == []
 
 
+def test_a_run_folder_left_inside_a_core_is_refused(plan):
+    plan, root = plan
+    stale = root / "cores" / "SYN-001" / "old-run"
+    stale.mkdir()
+    (stale / "manifest.json").write_text("{}")
+    try:
+        problems = location_problems(plan, root / "runs" / "b", root / "runs" / ".cache")
+    finally:
+        (stale / "manifest.json").unlink()
+        stale.rmdir()
+    assert [p.column for p in problems] == ["run.cores"] and "old-run" in problems[0].message
+
+
 def test_a_read_only_work_store_is_named_with_a_fix(tmp_path):
     with read_only_folder(tmp_path / "cache") as cache:
         with pytest.raises(RunFolderError) as info:
