@@ -75,7 +75,9 @@ def _run_settings(run: dict, name: str, problems: list[Problem]) -> RunSettings 
     try:
         return settings_from_mapping(RunSettings, run, name, _required_run_keys)
     except InputError as error:
-        problems.extend(dataclasses.replace(p, file=name, column=f"run.{p.column}") for p in error.problems)
+        found = [p for p in error.problems  # a wrong value is not also "missing"
+                 if not (p.message.startswith("required key") and p.column in run)]
+        problems.extend(dataclasses.replace(p, file=name, column=f"run.{p.column}") for p in found)
         return None
 
 
@@ -136,7 +138,12 @@ def _parse_parts(path: Path) -> tuple[RunConfig | None, list[Problem]]:
         problems.append(Problem(name, "the [run] section is missing", "add [run] with seed and cores", column="run"))
         run = {}
     settings = _run_settings(run, name, problems)
-    folders = _core_folders(settings.cores, path, name, problems) if settings is not None else ()
+    patterns = settings.cores if settings is not None else run.get("cores")
+    if isinstance(patterns, str):
+        patterns = [patterns]
+    if not isinstance(patterns, (list, tuple)) or not all(isinstance(p, str) for p in patterns):
+        patterns = ()  # reported with [run]; the cores are still checked when they can be found
+    folders = _core_folders(tuple(patterns), path, name, problems if settings is not None else [])
     curves = _curves(mapping.get("curves", {}), path, name, problems)
     sections = {}
     for key in RAW_SECTIONS:
