@@ -265,8 +265,14 @@ def test_stage_outputs_and_reproducibility(model):
     dates = a.dates
     assert dates["label"].iloc[0] == "core top" and dates["age"].iloc[0] == -68.0
     assert dates["error"].iloc[0] == 5.0  # settings default: core.toml gives no top_age_error
-    for column in ("cal_median_bp", "hpd95_ranges", "hpd95_young_bp", "hpd95_old_bp", "outlier_prob", "source_row"):
+    for column in ("cal_median_bp", "hpd95_young_bp", "hpd95_old_bp", "outlier_prob", "source_row"):
         assert column in dates
+    ranges = a.date_ranges
+    assert set(ranges["label"]) == set(dates["label"]) and set(ranges["level"]) == {0.683, 0.954}
+    wide = ranges[ranges["level"] == 0.954].groupby("label", sort=False)
+    np.testing.assert_allclose(wide["young_cal_bp"].min()[dates["label"]], dates["hpd95_young_bp"])
+    np.testing.assert_allclose(wide["old_cal_bp"].max()[dates["label"]], dates["hpd95_old_bp"])
+    assert (wide["probability"].sum() >= 0.954 - 0.01).all()
     assert dates["outlier_prob"].between(0, 1).all()
     np.testing.assert_allclose(a.age_at([60.0])[0], a.ensemble[60])
 

@@ -20,8 +20,7 @@ from pipelines.report.figures_chronology import (age_depth_figure, deposition_ti
                                                  outlier_figure)
 from pipelines.report.figures_events import event_figure, event_variables
 from pipelines.report.figures_reconstruction import reconstruction_figure, stack_figure
-from pipelines.report.rundata import (CoreData, RunData, downcore_version, hpd_ranges_of,
-                                      median_column, read_run, reconstruction_series)
+from pipelines.report.rundata import CoreData, RunData, downcore_version, read_run, reconstruction_series
 from pipelines.runfolder import atomic_write_text
 
 __all__ = ["write_run_report", "REPORT_NAME"]
@@ -112,10 +111,8 @@ def _dates_table(core: CoreData) -> str:
     for column, header in (("kind", "kind"), ("age", "age"), ("error", "± 1σ")):
         if column in dates.columns:
             shown[header] = dates[column]
-    median = median_column(dates)
-    if median is not None:
-        shown["calibrated median [cal BP]"] = pd.to_numeric(dates[median], errors="coerce").round()
-    ranges = hpd_ranges_of(dates, "hpd95")
+    shown["calibrated median [cal BP]"] = dates["cal_median_bp"].round()
+    ranges = core.hpd_ranges(0.954)
     if any(ranges):
         shown["95 % HPD [cal BP]"] = ["; ".join(f"{a:.0f}–{b:.0f}" for a, b in r) or "–" for r in ranges]
     for column, header in (("outlier_prob", "outlier probability"), ("exclude", "excluded")):

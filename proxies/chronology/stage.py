@@ -28,11 +28,13 @@ from proxies.chronology.model_runs import run_accumulation, run_interpolation
 from proxies.chronology.settings import ChronologySettings
 from proxies.problems import InputError, Problem
 
-__all__ = ["ChronologyResult", "build_chronology", "calibrate_core_dates", "date_density_table", "format_ranges",
+__all__ = ["ChronologyResult", "build_chronology", "calibrate_core_dates", "date_density_table", "date_range_table", "format_ranges",
            "mean_rate_from_dates", "CORE_TOP_LABEL"]
 
 #: label of the core-top pseudo-date added when ``core_top`` is on
 CORE_TOP_LABEL = "core top"
+#: HPD levels reported for every date (common practice: 68.3 % and 95.4 %)
+HPD_LEVELS = (0.683, 0.954)
 
 
 @dataclass(frozen=True, eq=False)
@@ -63,6 +65,9 @@ class ChronologyResult:
     date_densities : pandas.DataFrame
         ``date_densities.parquet``: label, age_cal_bp, density [1/yr] of each calibrated date
         (before the age model), thinned for plotting (see :func:`date_density_table`).
+    date_ranges : pandas.DataFrame
+        ``date_ranges.parquet``: the 68.3 % and 95.4 % HPD ranges of each date as numbers
+        (see :func:`date_range_table`).
     """
 
     depth_cm: np.ndarray
@@ -76,6 +81,7 @@ class ChronologyResult:
     depth_scale: object = None
     hyperparameters: pd.DataFrame = field(default_factory=pd.DataFrame)
     date_densities: pd.DataFrame = field(default_factory=pd.DataFrame)
+    date_ranges: pd.DataFrame = field(default_factory=pd.DataFrame)
 
     def age_at(self, depth_cm) -> np.ndarray:
         """Ensemble ages at composite depths [cm], shape (k, M) [cal BP].
@@ -319,7 +325,30 @@ def build_chronology(core, curves: dict[str, CalibrationCurve], settings: Chrono
             messages.append(f"date {label!r} is probably an outlier (posterior probability {p:.2f})")
     return ChronologyResult(out_depth, result_ensemble, summary, dates, messages, nodes, paths,
                             settings.model, depth_scale, hyper,
-                            date_density_table(table["label"].tolist(), calibrated))
+                            date_density_table(table["label"].tolist(), calibrated),
+                            date_range_table(table["label"].tolist(), calibrated))
+
+
+def date_range_table(labels: list[str], calibrated: CalibratedDates,
+                     levels: tuple[float, ...] = HPD_LEVELS) -> pd.DataFrame:
+    """HPD ranges of the calibrated dates as numbers, one row per range.
+
+    Returns
+    -------
+    pandas.DataFrame
+        ``date_ranges.parquet``: label, level, young_cal_bp, old_cal_bp [cal BP], probability
+        (mass inside the range), dates in input order, levels ascending, ranges young to old.
+    """
+    rows = [(label, level, young, old, mass)
+            for level in sorted(levels)
+            for label, ranges in zip(labels, calibrated.hpd(level))
+            for young, old, mass in ranges]
+    frame = pd.DataFrame(rows, columns=["label", "level", "young_cal_bp", "old_cal_bp", "probability"])
+    order = {label: i for i, label in enumerate(labels)}
+    frame["_date"] = frame["label"].map(order)
+    frame = frame.sort_values(["_date", "level"], kind="stable").drop(columns="_date")
+    return frame.astype({"level": float, "young_cal_bp": float, "old_cal_bp": float,
+                         "probability": float}).reset_index(drop=True)
 
 
 def date_density_table(labels: list[str], calibrated: CalibratedDates, max_points: int = 400,
@@ -388,14 +417,12 @@ def _summary(depth_cm, free, ensemble) -> pd.DataFrame:
 
 def _dates_table(table, calibrated: CalibratedDates, medians, outlier, model_ages) -> pd.DataFrame:
     out = table.copy()
-    hpd95, hpd68 = calibrated.hpd(0.954), calibrated.hpd(0.683)
+    hpd95 = calibrated.hpd(0.954)
     out["cal_median_bp"] = medians
     out["cal_mode_bp"] = calibrated.mode()
     out["cal_mean_bp"] = calibrated.mean()
     out["hpd95_young_bp"] = [r[0][0] for r in hpd95]
     out["hpd95_old_bp"] = [r[-1][1] for r in hpd95]
-    out["hpd95_ranges"] = [format_ranges(r) for r in hpd95]
-    out["hpd68_ranges"] = [format_ranges(r) for r in hpd68]
     out["outlier_prob"] = outlier
     out["model_age_median_bp"] = np.median(model_ages, axis=1)
     out["curve"] = out["curve"].astype(object).where(out["curve"].notna(), None)
