@@ -51,7 +51,7 @@ class ChronologySettings:
         (0.2, 0.34, 0.58, 1.0, 1.7, 2.9, 5.0), "mean rates tried = centre x these (equal prior weight)",
         low=0.0, low_open=True)
     rate_variability: tuple[float, ...] = setting(
-        (0.3, 0.7, 1.2), "coefficients of variation of the accumulation rate tried (memory: spread "
+        (0.15, 0.5, 1.2), "coefficients of variation of the accumulation rate tried (memory: spread "
         "of the rate classes; independent: over reference_depth_cm)", low=0.0, low_open=True)
     rate_memory: tuple[float, ...] = setting(
         (0.1, 0.5, 0.9), "memory model: probabilities that the rate class persists over "
@@ -60,7 +60,7 @@ class ChronologySettings:
                                         "stated [cm]", low=0.0, low_open=True)
     rate_classes: int = setting(8, "memory model: number of equal-probability rate classes", low=2, high=32)
     within_class_variability: float = setting(
-        0.25, "memory model: coefficient of variation of the rate within a class over "
+        0.15, "memory model: coefficient of variation of the rate within a class over "
         "reference_depth_cm", low=0.0, low_open=True)
     hiatus_gap_yr: float = setting(5000.0, "mean of the exponential gap prior at a hiatus [yr]",
                                    low=0.0, low_open=True)

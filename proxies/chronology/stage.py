@@ -24,7 +24,7 @@ from proxies.chronology.calibrate import (
     stack_calibrated,
 )
 from proxies.chronology.curves import CalibrationCurve
-from proxies.chronology.model_runs import run_accumulation, run_interpolation
+from proxies.chronology.model_runs import HYPERPARAMETER_COLUMNS, run_accumulation, run_interpolation
 from proxies.chronology.settings import ChronologySettings
 from proxies.problems import InputError, Problem
 
@@ -306,7 +306,7 @@ def build_chronology(core, curves: dict[str, CalibrationCurve], settings: Chrono
         messages.append("mean accumulation rate could not be estimated from the dates; 10 yr/cm assumed")
     top, bottom = float(min(free_out.min(), z.min())), float(max(free_out.max(), z.max()))
     outlier = np.full(len(table), np.nan)
-    hyper = pd.DataFrame()
+    hyper = pd.DataFrame({c: pd.Series(dtype="string" if c == "model" else float) for c in HYPERPARAMETER_COLUMNS})
     priors = outlier_priors(table, settings)
     if settings.model in ("memory", "accumulation"):
         pinned = table["constraint"].to_numpy(bool) & use & (table["kind"].astype(str).str.lower() == "calendar")
@@ -319,6 +319,8 @@ def build_chronology(core, curves: dict[str, CalibrationCurve], settings: Chrono
     outlier[use] = outlier_used
     result_ensemble = interpolate_nodes(nodes, paths, free_out)
     summary = _summary(out_depth, free_out, result_ensemble)
+    summary["hiatus_gap_yr"] = _hiatus_gaps(out_depth, getattr(core, "hiatuses_cm", ()) or (), depth_scale,
+                                            nodes, paths)
     dates = _dates_table(table, calibrated, medians, outlier, interpolate_nodes(nodes, paths, z))
     for label, p in zip(dates["label"], dates["outlier_prob"]):
         if np.isfinite(p) and p > 0.5:
@@ -401,6 +403,19 @@ def _output_depths(core, table: pd.DataFrame, settings: ChronologySettings) -> n
     if depth[-1] < deepest - 1e-9:
         depth = np.append(depth, deepest)
     return depth
+
+
+def _hiatus_gaps(out_depth, hiatuses_cm, depth_scale, nodes, paths) -> np.ndarray:
+    """Median age jump across each hiatus [yr], at the output depth just above it (else NaN)."""
+    gaps = np.full(out_depth.size, np.nan)
+    for h in hiatuses_cm:
+        if not out_depth[0] <= h <= out_depth[-1]:
+            continue
+        free = _event_free(depth_scale, np.array([h, h + 1e-6]))
+        above, below = interpolate_nodes(nodes, paths, free)
+        row = int(np.searchsorted(out_depth, h + 1e-9, side="right")) - 1
+        gaps[row] = float(np.median(below - above))
+    return gaps
 
 
 def _summary(depth_cm, free, ensemble) -> pd.DataFrame:
