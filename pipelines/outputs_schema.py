@@ -124,7 +124,7 @@ TABLES: dict[str, OutputTable] = {t.key: t for t in (
     OutputTable("summary", "summary.parquet", "one row per core (no clock values: byte-identical)", (
         _c("core_id", "string", "", "core id (or folder name when ingest failed)"),
         _c("folder", "string", "", "the core folder read"),
-        _c("status", "string", "", "ok | failed"),
+        _c("status", "string", "", "ok | thin | dated | failed (see Runs: status)"),
         _c("stage_reached", "string", "", "last stage finished (none when ingest failed)"),
         _c("n_warnings", "int", "", "number of warnings"),
         _c("warnings", "string", "", "warnings, separated by ' | '"),

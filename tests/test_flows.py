@@ -132,11 +132,12 @@ def test_changed_core_file_recomputes_only_that_core(tmp_path):
 
 
 def test_minimal_config_runs_with_defaults_and_notes_skipped_stages(tmp_path):
-    """[run] and [curves] only: chronology runs; calibration has nothing to do (noted)."""
+    """[run] and [curves] only: chronology runs; calibration has nothing to do (noted); the
+    core is "dated", not "ok"."""
     config = write_archive(tmp_path, n_cores=1, ensemble=30, n_dates=4, n_samples=12)
     outcome = _run(config, tmp_path / "r", tmp_path / "cache")
     row = outcome.summary.iloc[0]
-    assert row["status"] == "ok" and row["stage_reached"] == "calibration"
+    assert row["status"] == "dated" and row["stage_reached"] == "calibration"
     assert "reconstruction skipped" in row["notes"]
     assert (outcome.run_dir / "SYN-000" / "age_ensemble.parquet").is_file()
     ensemble = read_parquet(outcome.run_dir / "SYN-000" / "age_ensemble.parquet")

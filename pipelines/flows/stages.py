@@ -320,6 +320,7 @@ def run_reconstruction(plan: RunPlan, ingest: dict, chronology: dict, calibratio
         files = write_tables(staged, {"reconstruction": result.table,
                                       "reconstruction_ensemble": result.ensemble})
         return {"files": {"result": save_object(staged, result), **files}, "n_series": len(result.series),
+                "filled": dict(result.filled), "thin": list(result.thin), "notes": list(result.notes),
                 "warnings": _unique(caught + list(result.warnings))}
 
     return _cached_or_build(store, "reconstruction", key, produce, {"core_id": core_id}, recompute)
