@@ -147,7 +147,8 @@ def grid_memory_problems(core, chronology, reconstruction, ensemble: int, limit_
             problems.append(_refuse(f"{where} [chronology]", "output_step_cm", step, cells,
                                     f"{length_cm:g} cm x {ensemble} members", limit_bytes))
         if chronology.grid_step_yr:
-            nodes = min(length_cm / chronology.node_spacing_cm, chronology.max_nodes) + len(dates)
+            spacing = getattr(chronology, "node_spacing_cm", None)
+            nodes = min(length_cm / spacing if spacing else math.inf, chronology.max_nodes) + len(dates)
             cells = nodes * (span / chronology.grid_step_yr + 1)
             if _need(cells) > budget:
                 problems.append(_refuse(f"{where} [chronology]", "grid_step_yr", chronology.grid_step_yr, cells,
