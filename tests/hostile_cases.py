@@ -201,6 +201,7 @@ def link_inside(project: Path, core: Path) -> None:
 def folder_for_file(project: Path, core: Path) -> None:
     (core / "samples.csv").unlink()
     (core / "samples.csv").mkdir()
+    (core / "samples.csv" / "README.txt").write_text("a folder, not the table")
 
 
 def curve_file(text: str):
