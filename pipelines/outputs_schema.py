@@ -172,7 +172,8 @@ TABLES: dict[str, OutputTable] = {t.key: t for t in (
         _c("age_q975", "float", "cal BP", "97.5 % quantile of age"),
         _c("age_mean", "float", "cal BP", "mean age"),
         _c("age_sd", "float", "yr", "standard deviation of age"),
-        _c("deposition_time_yr_cm", "float", "yr/cm", "median deposition time")), required=("depth_cm", "age_median", "age_q025", "age_q975")),
+        _c("deposition_time_yr_cm", "float", "yr/cm", "median deposition time"),
+        _c("hiatus_gap_yr", "float", "yr", "median age gap of a hiatus just below this depth (else empty)")), required=("depth_cm", "age_median", "age_q025", "age_q975")),
     OutputTable("age_ensemble", "<core>/age_ensemble.parquet", "age of every member at each depth", (
         _c("depth_cm", "float", "cm", "composite depth"),), (_MEMBERS,), required=("depth_cm",)),
     OutputTable("dates", "<core>/dates.parquet",
@@ -212,6 +213,15 @@ TABLES: dict[str, OutputTable] = {t.key: t for t in (
                 "calibrated density of each date (before the age model), thinned for plotting", (
         _c("label", "string", "", "date label"), _AGE,
         _c("density", "float", "1/yr", "probability density")), required=("label", "age_cal_bp", "density")),
+    OutputTable("hyperparameters", "<core>/hyperparameters.parquet",
+                "accumulation models: posterior weight of every hyper-parameter point (empty for the "
+                "interpolation model)", (
+        _c("model", "string", "", "memory | accumulation"),
+        _c("mean_rate_yr_cm", "float", "yr/cm", "mean accumulation rate (deposition time)"),
+        _c("rate_variability", "float", "", "coefficient of variation of the rate"),
+        _c("rate_memory", "float", "", "persistence of the rate class over reference_depth_cm (0: none)"),
+        _c("log_evidence", "float", "", "exact log marginal likelihood of the dates"),
+        _c("weight", "float", "", "posterior weight (sums to 1)")), required=("mean_rate_yr_cm", "weight")),
     OutputTable("calibration", "<core>/calibration.parquet", "skill per proxy and period", (
         _c("proxy", "string", "", "proxy column"), _VARIABLE,
         _c("units", "string", "", "units of the variable"),

@@ -240,7 +240,8 @@ def run_chronology(plan: RunPlan, ingest: dict, store: WorkStore, recompute: boo
         members.insert(0, "depth_cm", np.asarray(result.depth_cm, dtype=float))
         files = write_tables(staged, {"chronology": result.summary, "age_ensemble": members,
                                       "dates": result.dates, "date_ranges": result.date_ranges,
-                                      "date_densities": result.date_densities})
+                                      "date_densities": result.date_densities,
+                                      "hyperparameters": result.hyperparameters})
         return {"files": {"result": save_object(staged, result), **files},
                 "warnings": _unique(caught + list(result.warnings))}
 
