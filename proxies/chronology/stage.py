@@ -174,9 +174,13 @@ def calibrate_core_dates(core, curves: dict[str, CalibrationCurve], settings: Ch
         name = _curve_name(table.at[i, "curve"], settings, curves)
         row = _row(table, i)
         if name is None:
-            problems.append(Problem(file, f"date {table.at[i, 'label']!r} needs a calibration curve but none "
-                                          "is given", "add a [curves] entry to the run config, or set "
-                                    "[chronology] default_curve", row=row, column="curve"))
+            named = ", ".join(sorted(curves))
+            problems.append(Problem(
+                file, f"date {table.at[i, 'label']!r} has an empty curve cell and "
+                      + (f"the run config has {len(curves)} curves ({named}), none called 'atmosphere', and no "
+                         "default_curve" if curves else "the run config has no [curves]"),
+                "fill in the curve cell, or set [chronology] default_curve" if curves
+                else "add a [curves] entry to the run config", row=row, column="curve"))
         elif name not in curves:
             problems.append(Problem(file, f"curve {name!r} of date {table.at[i, 'label']!r} is not in [curves]",
                                     f"use one of: {', '.join(sorted(curves)) or '(none)'}", row=row,
