@@ -64,7 +64,9 @@ def test_compare_after_a_curve_update_shows_the_age_shift(recorded, tmp_path):
     table = compare_runs(run_a, run_b).set_index("core_id")
     assert list(table.index) == ["SYN-000", "SYN-001"]
     assert table["age_shift_median_yr"].between(-80.0, -30.0).all(), table["age_shift_median_yr"]
-    assert table["age_shift_max_abs_yr"].between(-90.0, -50.0).all(), table["age_shift_max_abs_yr"]
+    # the largest shift over depths also carries the Monte Carlo noise of two ensembles' medians
+    # (the default memory model draws ages within ~20-yr grid cells)
+    assert table["age_shift_max_abs_yr"].between(-100.0, -50.0).all(), table["age_shift_max_abs_yr"]
     out = tmp_path / "cmp.csv"
     result = CliRunner().invoke(main, ["compare", str(run_a), str(run_b), "--out", str(out)])
     assert result.exit_code == 0, result.output

@@ -15,7 +15,7 @@ import sys
 
 import click
 
-from pipelines.cli.run import executor_options, make_choice
+from pipelines.cli.run import exit_on_input_errors, executor_options, make_choice
 
 EXIT_SAME, EXIT_DIFFERENT, EXIT_INPUT, EXIT_REPLAY_ERROR = 0, 1, 2, 4
 
@@ -48,19 +48,13 @@ def command(manifest, out, show_all, workers, dask_address, dask_local, cache_di
     server = LocalServer.start_if_needed()
     from pipelines.progress import RunProgress
     from pipelines.replay import replay_run
-    from pipelines.runfolder import RunFolderError, atomic_write_text
-    from proxies.problems import InputError
+    from pipelines.runfolder import atomic_write_text
 
     del recompute  # a replay always recomputes (empty work store unless --cache-dir is given)
     try:
-        report = replay_run(manifest, out, choice=make_choice(workers, dask_address, dask_local),
-                            cache_dir=cache_dir, progress=RunProgress(quiet=quiet), local_server=server)
-    except InputError as error:
-        click.echo(f"downcore replay: the input has problems:\n{error}", err=True)
-        sys.exit(EXIT_INPUT)
-    except RunFolderError as error:
-        click.echo(f"downcore replay: {error.strerror or error}", err=True)
-        sys.exit(EXIT_INPUT)
+        with exit_on_input_errors("downcore replay"):
+            report = replay_run(manifest, out, choice=make_choice(workers, dask_address, dask_local),
+                                cache_dir=cache_dir, progress=RunProgress(quiet=quiet), local_server=server)
     except Exception as error:  # noqa: BLE001 - a failed replay is an error, never "different"
         click.echo(f"downcore replay: the replay failed ({type(error).__name__}: {error}); "
                    "nothing was compared", err=True)

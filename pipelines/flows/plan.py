@@ -16,6 +16,7 @@ from dataclasses import dataclass, field
 from pipelines.config import STAGE_SETTINGS, RunConfig, load_run_config, stage_settings
 from pipelines.flows.keys import code_fingerprint, content_key
 from pipelines.manifest import collect_input_files, hash_inputs
+from pipelines.textfiles import read_text
 from proxies.problems import InputError, Problem
 
 __all__ = ["RunPlan", "build_plan"]
@@ -114,7 +115,7 @@ def build_plan(config_path: str | os.PathLike[str]) -> RunPlan:
         For any problem in the config (unknown keys, missing files, bad values), listing all.
     """
     config = load_run_config(pathlib.Path(config_path).expanduser())
-    text = config.path.read_text(encoding="utf-8")
+    text = read_text(config.path, str(config.path))  # UTF-8 (a byte-order mark accepted)
     settings = {stage: stage_settings(config, stage) for stage in STAGE_SETTINGS}
     folders = tuple(str(folder) for folder in config.core_folders)
     if not folders:

@@ -60,7 +60,7 @@ class Stage:
         ``runner(plan, store, key, recompute, **entries)`` -> work-store entry.
     inputs : tuple of str
         Entries the runner takes, by name: earlier stages, ``training`` (all training-set
-        entries), ``reconstructions`` (every core's), ``folder`` or ``name``.
+        entries), ``reconstructions`` / ``all_events`` (every core's), ``folder`` or ``name``.
     tables : tuple of str
         Run-folder tables it writes (:mod:`pipelines.outputs_schema` keys).
     key_parts : tuple of str
@@ -94,6 +94,8 @@ STAGES: dict[str, Stage] = {s.name: s for s in (
           ("[events] settings", "seed")),
     Stage("stack", stages.run_stack, ("reconstructions",), ("stack",), ("[reconstruction] settings", "seed"),
           per_core=False),
+    Stage("archive_events", stages.run_archive_events, ("all_events",), ("archive_events", "lead_lag"),
+          ("[events] settings",), per_core=False),
 )}
 
 #: the stages of one core, in order

@@ -29,7 +29,7 @@ from proxies.problems import InputError
 from proxies.seeding import rng_for
 
 __all__ = ["StageSkipped", "NotCached", "probe", "run_ingest", "run_training", "run_chronology", "run_calibration",
-           "run_reconstruction", "run_events", "run_stack", "pin_blas_threads", "write_tables"]
+           "run_reconstruction", "run_events", "run_archive_events", "run_stack", "pin_blas_threads", "write_tables"]
 
 
 class StageSkipped(Exception):
@@ -222,7 +222,8 @@ def run_chronology(plan: RunPlan, store: WorkStore, key: str, recompute: bool, *
         members.insert(0, "depth_cm", np.asarray(result.depth_cm, dtype=float))
         files = write_tables(staged, {"chronology": result.summary, "age_ensemble": members,
                                       "dates": result.dates, "date_ranges": result.date_ranges,
-                                      "date_densities": result.date_densities})
+                                      "date_densities": result.date_densities,
+                                      "hyperparameters": result.hyperparameters})
         return {"files": {"result": save_object(staged, result), **files},
                 "warnings": _unique(caught + list(result.warnings))}
 
@@ -321,6 +322,26 @@ def run_events(plan: RunPlan, store: WorkStore, key: str, recompute: bool, *, re
                 "warnings": _unique(caught + list(result.warnings))}
 
     return _cached_or_build(store, "events", key, produce, {"core_id": core_id}, recompute)
+
+
+# --- run-level events: archive-wide FDR and lead/lag ------------------------------------------
+
+def run_archive_events(plan: RunPlan, store: WorkStore, key: str, recompute: bool, *,
+                       all_events: dict[str, dict]) -> dict:
+    """All cores' events with Benjamini-Hochberg q-values (``archive_events.parquet``) and
+    the lead/lag of events found in several cores (``lead_lag.parquet``)."""
+    usable = {cid: e for cid, e in sorted(all_events.items()) if e.get("paths")}
+    if not usable:
+        raise StageSkipped("archive events skipped: no core has events")
+
+    def produce(staged: pathlib.Path) -> dict:
+        from proxies.events.archive_events import run_event_tables
+
+        results = {cid: load_object(e) for cid, e in usable.items()}
+        archive, lead_lag = run_event_tables(results, plan.settings["events"])
+        return {"files": write_tables(staged, {"archive_events": archive, "lead_lag": lead_lag})}
+
+    return _cached_or_build(store, "archive_events", key, produce, {"core_id": None}, recompute)
 
 
 # --- regional stack ---------------------------------------------------------------------------
