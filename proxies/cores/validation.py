@@ -32,6 +32,7 @@ import numpy as np
 import pandas as pd
 
 from proxies.cores.model import ERROR_SUFFIX, EventLayer, Section
+from proxies.chronology.curve_cells import curve_cell_problem
 from proxies.problems import Problem
 
 __all__ = [
@@ -58,7 +59,8 @@ DEPTH_UNITS = {"cm": 1.0, "mm": 0.1, "m": 100.0}
 TEXT_COLUMNS = frozenset({"label", "sample_id", "sample", "lab_id", "note", "notes", "comment", "comments"})
 #: text cells read as a missing value (besides empty cells)
 MISSING_MARKERS = frozenset({"na", "nan", "n/a"})
-RADIOCARBON_MIN_14C_YR = -1000.0
+#: post-bomb ages (F14C up to ~3.5) are accepted; they need a post-bomb curve in [curves]
+RADIOCARBON_MIN_14C_YR = -10000.0
 RADIOCARBON_MAX_14C_YR = 55000.0
 #: a calendar age may be this many years younger than the core top [yr]
 CALENDAR_TOP_SLACK_YR = 5.0
@@ -779,13 +781,12 @@ def check_curve_names(dates: pd.DataFrame, file: str, known: set[str] | dict) ->
     radiocarbon_without_curve = []
     for row, kind, curve in zip(dates["source_row"], dates["kind"], dates["curve"]):
         curve = None if curve is None or pd.isna(curve) else str(curve)
-        if curve is not None and curve not in known:
-            problems.append(Problem(
-                file, f"unknown curve {curve!r}",
-                ("use a curve named in the run config [curves]: " + ", ".join(names)) if names
-                else "add the curve to the run config [curves]",
-                row=int(row), column="curve",
-            ))
+        found = None if curve is None else curve_cell_problem(curve, known)
+        if found is not None:
+            message, fix = found
+            if not names and message.startswith("unknown curve"):
+                fix = "add the curve to the run config [curves]"
+            problems.append(Problem(file, message, fix, row=int(row), column="curve"))
         elif curve is None and kind == "radiocarbon" and not names:
             radiocarbon_without_curve.append(int(row))
     for row in radiocarbon_without_curve:
