@@ -105,7 +105,7 @@ def core_template(core_id: str, *, archive: str = "lake", depth_unit: str = "cm"
         For an unsafe id, an unknown archive or depth unit, or a proxy name that is not a
         plain column name.
     """
-    if not ID_PATTERN.match(core_id) or core_id != core_id.strip():
+    if not ID_PATTERN.fullmatch(core_id) or core_id != core_id.strip():
         raise ValueError(f"core id {core_id!r} is not safe as a folder name: use 1-64 letters, digits, "
                          "'-' or '_', starting with a letter or digit (e.g. TARN-2)")
     if archive not in ARCHIVES:

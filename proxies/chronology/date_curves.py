@@ -10,14 +10,13 @@ layout; without one it is refused with a message naming its row.
 
 from __future__ import annotations
 
-import math
-
 import numpy as np
 import pandas as pd
 
 from proxies.chronology.calibrate import CalibratedDates, CurveRangeError, average_calibrated, calibrate_radiocarbon
 from proxies.chronology.curve_cells import CurveChoice, curve_cell_problem, parse_curve_cell, share_quadrature
 from proxies.chronology.curves import CalibrationCurve, blend_curves
+from proxies.cores.validation import resolve_curve_name
 from proxies.problems import Problem
 
 __all__ = ["curve_choice", "calibrate_radiocarbon_rows"]
@@ -26,15 +25,8 @@ __all__ = ["curve_choice", "calibrate_radiocarbon_rows"]
 def curve_choice(cell, settings, curves: dict) -> CurveChoice | None:
     """The curve choice of a date: its cell, else ``default_curve``, the only curve, or the one
     named ``atmosphere``; ``None`` when nothing applies. Malformed cells raise ``ValueError``."""
-    if cell is not None and not (isinstance(cell, float) and math.isnan(cell)) and str(cell).strip():
-        return parse_curve_cell(str(cell))
-    if settings.default_curve:
-        return CurveChoice(settings.default_curve)
-    if len(curves) == 1:
-        return CurveChoice(next(iter(curves)))
-    if "atmosphere" in curves:
-        return CurveChoice("atmosphere")
-    return None
+    name = resolve_curve_name(cell, settings.default_curve, curves)
+    return None if name is None else parse_curve_cell(name)
 
 
 def _curves_for(choice: CurveChoice, curves: dict, step: float) -> list[tuple[CalibrationCurve, float]]:

@@ -25,6 +25,8 @@ from proxies.chronology.curves import CalibrationCurve
 from proxies.chronology.date_curves import calibrate_radiocarbon_rows
 from proxies.chronology.model_runs import HYPERPARAMETER_COLUMNS, run_accumulation, run_interpolation
 from proxies.chronology.settings import ChronologySettings
+from proxies.cores.datability import (age_control_problems, event_layer_problems, grid_memory_problems,
+                                      machine_memory_bytes)
 from proxies.problems import InputError, Problem
 
 __all__ = ["ChronologyResult", "build_chronology", "calibrate_core_dates", "date_density_table", "date_range_table", "format_ranges",
@@ -114,6 +116,9 @@ def _event_free(depth_scale, depth: np.ndarray) -> np.ndarray:
 
 
 def _dates_file(core) -> str:
+    files = getattr(core, "files", None) or {}
+    if "dates" in files:
+        return files["dates"]
     folder = getattr(core, "folder", "") or ""
     return f"{folder}/dates" if folder else f"dates of core {getattr(core, 'id', '?')}"
 
@@ -238,6 +243,10 @@ def build_chronology(core, curves: dict[str, CalibrationCurve], settings: Chrono
     """
     if ensemble < 1:
         raise ValueError(f"ensemble must be >= 1, got {ensemble}")
+    refused = (age_control_problems(core, top_is_surface(core, settings)) + event_layer_problems(core)
+               + grid_memory_problems(core, settings, None, ensemble, machine_memory_bytes(), "run config"))
+    if refused:
+        raise InputError(refused)
     messages: list[str] = []
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
