@@ -201,6 +201,7 @@ def link_inside(project: Path, core: Path) -> None:
 def folder_for_file(project: Path, core: Path) -> None:
     (core / "samples.csv").unlink()
     (core / "samples.csv").mkdir()
+    (core / "samples.csv" / "README.txt").write_text("a folder, not the table")
 
 
 def curve_file(text: str):
@@ -425,6 +426,12 @@ CASES += [
                                                    cell(S, 2, "uk37", "7,041")), S, 2, "uk37", "ambiguous"),
     Case("ensemble too small", _replace("run.toml", "ensemble = 50", "ensemble = 5"), "run.toml", None,
          "run.ensemble", "ensemble"),
+    Case("training file missing", config('[training.midges]\nfile = "training/none.csv"\ntarget = "july_c"'),
+         "none.csv", None, None, "file not found"),
+    Case("misspelt training key", config('[training.midges]\nfile = "x.csv"\ntarget = "t"\ncomponnets = 3'),
+         "run.toml", None, "training.midges.componnets", "unknown key"),
+    Case("instrumental file missing", config('[instrumental.station]\nfile = "none.csv"\nyear_column = "year"\n'
+                                             'value_column = "t"'), "none.csv", None, None, "file not found"),
     Case("unknown run section", config("[chronolgy]\nmodel = 'accumulation'"), "run.toml", None, "chronolgy",
          "unknown section"),
 ]

@@ -125,3 +125,11 @@ def test_out_inside_a_core_folder_is_refused_and_the_core_untouched(archive):
                             capture_output=True, text=True, timeout=120)
     assert result.returncode == 2 and "inside the core folder" in result.stderr and "--out" in result.stderr
     assert {p: p.read_bytes() for p in core.rglob("*") if p.is_file()} == before
+
+
+def test_quiet_run_with_failed_cores_still_says_so(tmp_path):
+    config = write_archive(tmp_path / "in", n_cores=3, broken=1, ensemble=20, n_dates=4, n_samples=10)
+    result = subprocess.run(_downcore("run", config, "--out", tmp_path / "run", "-q", "--no-report"),
+                            capture_output=True, text=True, timeout=300)
+    assert result.returncode == 3
+    assert result.stdout == "" and "1 of 3 cores failed (SYN-002)" in result.stderr, result.stderr

@@ -50,8 +50,13 @@ def make_choice(workers: int | None, dask_address: str | None, dask_local: bool)
 
 
 def print_summary(outcome: Any, quiet: bool) -> None:
-    """The per-core table (status, stage reached, warnings, seconds) and where the results are."""
+    """The per-core table (status, stage reached, warnings, seconds) and where the results are;
+    with ``quiet`` only one line on the error stream when cores failed."""
     if quiet:
+        if outcome.failed:
+            click.echo(f"downcore: {len(outcome.failed)} of {len(outcome.summary)} cores failed "
+                       f"({', '.join(outcome.failed[:5])}{', ...' if len(outcome.failed) > 5 else ''}); "
+                       f"see {outcome.run_dir / 'summary.parquet'}", err=True)
         return
     seconds = outcome.timings.groupby("core_id")["seconds"].sum() if len(outcome.timings) else {}
     rows = []

@@ -97,6 +97,9 @@ def _write_run_tables(run_dir: pathlib.Path, result: dict) -> None:
                 atomic_copy(entry["paths"][part], run_dir / "training" / f"{name}_{part}.parquet")
     if result.get("stack"):
         atomic_copy(result["stack"]["paths"]["stack.parquet"], run_dir / "stack.parquet")
+    for name in ("archive_events.parquet", "lead_lag.parquet"):
+        if result.get("archive_events") and name in result["archive_events"].get("paths", {}):
+            atomic_copy(result["archive_events"]["paths"][name], run_dir / name)
 
 
 def _write_report(run_dir: pathlib.Path, notes: list[str]) -> None:

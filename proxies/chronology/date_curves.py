@@ -57,9 +57,13 @@ def calibrate_radiocarbon_rows(table: pd.DataFrame, rows, curves: dict, settings
             problems.append(Problem(file, f"date {label!r}: {message}", fix, row=row, column="curve"))
             continue
         if choice is None:
-            problems.append(Problem(file, f"date {label!r} needs a calibration curve but none is given",
-                                    "add a [curves] entry to the run config, or set [chronology] default_curve",
-                                    row=row, column="curve"))
+            named = ", ".join(sorted(curves))
+            problems.append(Problem(
+                file, f"date {label!r} has an empty curve cell and "
+                      + (f"the run config has {len(curves)} curves ({named}), none called 'atmosphere', and no "
+                         "default_curve" if curves else "the run config has no [curves]"),
+                "fill in the curve cell, or set [chronology] default_curve" if curves
+                else "add a [curves] entry to the run config", row=row, column="curve"))
             continue
         found = curve_cell_problem(choice.key, curves)
         if found is not None:
