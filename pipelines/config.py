@@ -43,6 +43,8 @@ DEFAULT_ENSEMBLE = 1000
 #: stage -> "module:SettingsClass", imported only when needed
 STAGE_SETTINGS: dict[str, str] = {
     "chronology": "proxies.chronology:ChronologySettings",
+    "training": "proxies.calibration:TrainingSettings",
+    "instrumental": "proxies.calibration:InstrumentalSettings",
     "calibration": "proxies.calibration:CalibrationSettings",
     "reconstruction": "proxies.reconstruction:ReconstructionSettings",
     "events": "proxies.events:EventSettings",

@@ -37,7 +37,7 @@ def problems_of(path) -> list[Problem]:
 
 
 def test_good_config_resolves_folders_curves_and_sections(tmp_path):
-    path = make_project(tmp_path, extra="[report]\ntitle = 'x'\n[training.modern]\nfile = 'x.csv'\n")
+    path = make_project(tmp_path, extra="[report]\ntitle = 'x'\n[training.modern]\nfile = 'x.csv'\ntarget = 't'\n")
     config = load_run_config(path)
     assert isinstance(config, RunConfig)
     assert config.seed == 7 and config.ensemble == 1000  # ensemble default
@@ -45,7 +45,7 @@ def test_good_config_resolves_folders_curves_and_sections(tmp_path):
     assert all(p.is_absolute() for p in config.core_folders)
     assert config.curves == {"atmosphere": (tmp_path / "curves" / "atm.14c").resolve()}
     assert config.sections["report"] == {"title": "x"}
-    assert config.sections["training"] == {"modern": {"file": "x.csv"}}
+    assert config.sections["training"] == {"modern": {"file": "x.csv", "target": "t"}}
     assert config.sections["events"] == {}
     assert config.resolve("x.csv") == (tmp_path / "x.csv").resolve()
     assert check_run_config(path) == []
