@@ -151,3 +151,37 @@ def read_instrumental(source, spec) -> InstrumentalSeries:
         raise InputError(problems)
     return InstrumentalSeries(spec.name, spec.variable or spec.value_column, spec.units, years,
                               values)
+
+
+def check_auxiliary(config) -> list[Problem]:
+    """Every problem of the training sets and instrumental series a run config names.
+
+    Each valid ``[training.<name>]`` / ``[instrumental.<name>]`` section's file is read and
+    checked (columns, cells; sections with key problems are reported by their settings
+    class and skipped here), and every ``[calibration.<column>]`` that names a training set
+    or series must name one that is configured.
+    """
+    where = str(config.path)
+    problems: list[Problem] = []
+    for section, spec_class, reader in (("training", TrainingSpec, read_training_set),
+                                        ("instrumental", InstrumentalSpec, read_instrumental)):
+        for name, table in (config.sections.get(section) or {}).items():
+            try:
+                spec = spec_class.from_mapping(name, table, where)
+            except InputError:
+                continue  # reported with the section's keys
+            try:
+                reader(config.resolve(spec.file), spec)
+            except InputError as error:
+                problems.extend(error.problems)
+    for column, table in (config.sections.get("calibration") or {}).items():
+        if not isinstance(table, dict):
+            continue
+        for key, section in (("training", "training"), ("series", "instrumental")):
+            named = table.get(key)
+            if isinstance(named, str) and named not in (config.sections.get(section) or {}):
+                problems.append(Problem(f"{where} [calibration.{column}]",
+                                        f"{key} '{named}' names no [{section}.{named}] section",
+                                        f"add [{section}.{named}] or correct the name",
+                                        column=key))
+    return problems

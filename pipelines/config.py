@@ -257,6 +257,9 @@ def check_run_config_by_core(
             stage_settings(config, stage)
         except InputError as error:
             problems.extend(error.problems)
+    from pipelines.auxiliary import check_auxiliary
+
+    problems.extend(check_auxiliary(config))
     ids: dict[str, str] = {}
     for folder in config.core_folders:
         shown = _display(folder)

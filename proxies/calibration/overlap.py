@@ -20,7 +20,7 @@ from .skill import (coefficient_of_efficiency, durbin_watson, effective_sample_s
 __all__ = [
     "aggregate_windows", "OverlapFit", "fit_inverse", "fit_classical",
     "fit_errors_in_variables", "FITS", "split_period_skill", "OverlapCalibration",
-    "calibrate_overlap", "inflate_for_autocorrelation",
+    "calibrate_overlap", "inflate_for_autocorrelation", "with_residual_sd",
 ]
 
 
@@ -264,9 +264,25 @@ def inflate_for_autocorrelation(fit: OverlapFit, n_effective: float) -> OverlapF
                       fit.residual_sd, fit.n)
 
 
+def with_residual_sd(fit: OverlapFit, residual_sd: float) -> OverlapFit:
+    """The fit with another residual scatter [units of the line's dependent variable]."""
+    return OverlapFit(fit.method, fit.intercept, fit.slope, fit.covariance, float(residual_sd),
+                      fit.n)
+
+
+#: quantile of the members' residual scatter used for every member (see calibrate_overlap)
+ALIGNED_QUANTILE = 0.05
+
+
 def _member_fit(p, c, method, error_ratio):
+    """The fit of one member with its covariance scaled for autocorrelation: the effective
+    sample size of the regressor and the residuals (the two series whose products make up
+    the slope's error; Bretherton et al. 1999, eq. 31)."""
     fit = _fit(method, p, c, error_ratio)
-    n_eff = effective_sample_size(p.size, lag1_autocorrelation(p), lag1_autocorrelation(c))
+    regressor, dependent = (c, p) if method == "classical" else (p, c)
+    residual = dependent - (fit.intercept + fit.slope * regressor)
+    n_eff = effective_sample_size(p.size, lag1_autocorrelation(regressor),
+                                  lag1_autocorrelation(residual))
     return inflate_for_autocorrelation(fit, n_eff)
 
 
@@ -279,8 +295,12 @@ def calibrate_overlap(proxy, climate, age_cal_bp, method, rng, error_ratio=None,
     all (fewer than 3 pairs, or no spread) is counted in ``n_members_failed`` -- the caller
     refuses the record then, because keeping only the other members would bias the ages.
     The coefficient covariance is scaled by ``n / n_eff`` (effective sample size of the
-    autocorrelated pairs), and coefficients are drawn once per member (shared by its
-    samples) while the residual scatter is drawn per sample.
+    autocorrelated pairs). A member whose ages are off pairs each proxy value with the
+    climate of the wrong years, which inflates its scatter by age error that the members
+    already carry; the scatter of the best-aligned members (the ``ALIGNED_QUANTILE`` of the
+    members' residual SDs, our choice checked by the coverage simulation in
+    tests/test_overlap_coverage.py) is used for every member instead. Coefficients are drawn
+    once per member (shared by its samples), the residual scatter per sample.
 
     Parameters
     ----------
@@ -306,6 +326,7 @@ def calibrate_overlap(proxy, climate, age_cal_bp, method, rng, error_ratio=None,
     has_proxy = np.isfinite(proxy)
     failed = few = 0
     pairs_per_member = np.zeros(M)
+    fits = {}
     for m in range(M):
         pair = has_proxy & np.isfinite(climate[:, m])
         pairs_per_member[m] = pair.sum()
@@ -315,12 +336,16 @@ def calibrate_overlap(proxy, climate, age_cal_bp, method, rng, error_ratio=None,
             failed += 1
             continue
         few += int(p.size < min_pairs)
-        fit = _member_fit(p, c, method, error_ratio)
-        values[has_proxy, m] = fit.draw_climate(proxy[has_proxy], rng)
-        rows["full"].append(_full_skill(p, c, fit))
+        fits[m] = _member_fit(p, c, method, error_ratio)
+        rows["full"].append(_full_skill(p, c, fits[m]))
         if p.size >= 6:
             rows["verify_early"].append(split_period_skill(p, c, method, "early", error_ratio))
             rows["verify_late"].append(split_period_skill(p, c, method, "late", error_ratio))
+    if fits:
+        aligned = float(np.quantile([f.residual_sd for f in fits.values()], ALIGNED_QUANTILE))
+        for m, fit in fits.items():
+            fit = with_residual_sd(fit, min(fit.residual_sd, aligned))
+            values[has_proxy, m] = fit.draw_climate(proxy[has_proxy], rng)
     table = []
     for period, stats in rows.items():
         frame = pd.DataFrame(stats)

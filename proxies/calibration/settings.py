@@ -37,7 +37,8 @@ class ProxyCalibration:
     """Keys every method shares; ``column`` is the proxy column (the section's name)."""
 
     column: str = field(default="", metadata={})
-    method: str = setting("equation", "how the column becomes climate", choices=METHODS)
+    method: str = setting("equation", "how the column becomes climate (required)",
+                          choices=METHODS)
     variable: str | None = setting(None, "name of the climate variable (default: the "
                                    "method's own)", kind=str)
     units: str | None = setting(None, "units of the climate variable", kind=str)

@@ -55,7 +55,7 @@ class TrainingSpec:
     tolerance_weighting: bool = setting(False, "WA: weight taxa by 1 / tolerance^2, with "
                                         "tolerances N2-corrected")
     min_tolerance: float | None = setting(None, "WA: floor of the N2-corrected tolerances "
-                                          "[target units] (auto: their median)", kind=float,
+                                          "[target units] (auto: their upper quartile)", kind=float,
                                           low=0.0, low_open=True, auto=True)
     analogues: int = setting(5, "MAT: number of analogues", low=1)
     weighted_analogues: bool = setting(False, "MAT: weight analogues by inverse distance")
