@@ -139,6 +139,7 @@ def _build_core(spec: CoreSpec, tables: dict, folder: str) -> Core:
         event_layers=spec.event_layers,
         hiatuses_cm=spec.hiatuses_cm,
         folder=folder,
+        top_intact=spec.top_intact,
     )
 
 

@@ -17,22 +17,25 @@ __all__ = ["SECTIONS", "key_table", "refresh_readme"]
 
 
 def _sections() -> dict:
+    from pipelines.config import RunSettings
     from proxies.calibration.settings import METHOD_SETTINGS, ProxyCalibration
     from proxies.calibration.training_settings import InstrumentalSpec, TrainingSpec
     from proxies.chronology.settings import ChronologySettings
     from proxies.events.settings import EventSettings
     from proxies.reconstruction.settings import ReconstructionSettings
-    return {"chronology": ChronologySettings, "reconstruction": ReconstructionSettings,
-            "events": EventSettings, "training": TrainingSpec, "instrumental": InstrumentalSpec,
+    return {"run": RunSettings, "chronology": ChronologySettings,
+            "reconstruction": ReconstructionSettings, "events": EventSettings,
+            "training": TrainingSpec, "instrumental": InstrumentalSpec,
             "calibration": ProxyCalibration,
             **{f"calibration.{name}": cls for name, cls in METHOD_SETTINGS.items()}}
 
 
 #: section name -> settings class (import on demand; see :func:`_sections`); a
 #: ``calibration.<method>`` table lists the keys of that method beyond the shared ones
-SECTIONS = ("chronology", "reconstruction", "events", "training", "instrumental", "calibration",
-            "calibration.equation", "calibration.linear", "calibration.exponential",
-            "calibration.overlap", "calibration.transfer", "calibration.stated")
+SECTIONS = ("run", "chronology", "reconstruction", "events", "training", "instrumental",
+            "calibration", "calibration.equation", "calibration.linear",
+            "calibration.exponential", "calibration.overlap", "calibration.transfer",
+            "calibration.stated")
 #: how a section is named in its table's header
 _TITLES = {"training": "[training.<name>]", "instrumental": "[instrumental.<name>]",
            "calibration": "[calibration.<proxy column>]"}

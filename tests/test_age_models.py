@@ -49,8 +49,10 @@ def _tiny_problem(seed=3):
     size = 20
     mass = rng.random((3, size)) ** 4
     mass /= mass.sum(axis=1, keepdims=True)
+    broad = 0.2 * rng.random((3, size)) / size  # a non-flat outlier part, not normalised to the grid
     return AccumulationProblem(np.array([0.0, 5.0, 5.0, 12.0]), np.array([False, True, False]),
-                               np.array([0, 3, 3]), mass, np.array([0.1, 0.2, 0.05]), 0.0, 10.0, 5.0)
+                               np.array([0, 3, 3]), mass, np.array([0.1, 0.2, 0.05]), 0.0, 10.0, 5.0,
+                               outlier_mass=broad)
 
 
 def _enumerate(problem, kernels):
@@ -70,11 +72,12 @@ def _enumerate(problem, kernels):
         if w == 0.0:
             continue
         like = np.array([per[d, path[k]] for d, k in enumerate(problem.date_node)])
+        broad = np.array([problem.outlier_likelihoods()[d, path[k]] for d, k in enumerate(problem.date_node)])
         w *= like.prod()
         total += w
         for k in range(problem.n_nodes):
             post[k, path[k]] += w
-        outlier += w * (problem.outlier_prior / size) / like
+        outlier += w * problem.outlier_prior * broad / like
     return np.log(total), post / total, outlier / total
 
 
@@ -261,8 +264,14 @@ def test_stage_outputs_and_reproducibility(model):
     dates = a.dates
     assert dates["label"].iloc[0] == "core top" and dates["age"].iloc[0] == -68.0
     assert dates["error"].iloc[0] == 5.0  # settings default: core.toml gives no top_age_error
-    for column in ("cal_median_bp", "hpd95_ranges", "hpd95_young_bp", "hpd95_old_bp", "outlier_prob", "source_row"):
+    for column in ("cal_median_bp", "hpd95_young_bp", "hpd95_old_bp", "outlier_prob", "source_row"):
         assert column in dates
+    ranges = a.date_ranges
+    assert set(ranges["label"]) == set(dates["label"]) and set(ranges["level"]) == {0.683, 0.954}
+    wide = ranges[ranges["level"] == 0.954].groupby("label", sort=False)
+    np.testing.assert_allclose(wide["young_cal_bp"].min()[dates["label"]], dates["hpd95_young_bp"])
+    np.testing.assert_allclose(wide["old_cal_bp"].max()[dates["label"]], dates["hpd95_old_bp"])
+    assert (wide["probability"].sum() >= 0.954 - 0.01).all()
     assert dates["outlier_prob"].between(0, 1).all()
     np.testing.assert_allclose(a.age_at([60.0])[0], a.ensemble[60])
 

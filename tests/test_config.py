@@ -61,12 +61,13 @@ def test_globs_are_relative_to_the_config_not_the_working_folder(tmp_path, monke
 @pytest.mark.parametrize(
     "run, column, words",
     [
-        ('seed = -1\ncores = ["cores/*"]', "run.seed", "non-negative"),
-        ('seed = true\ncores = ["cores/*"]', "run.seed", "non-negative"),
-        ('seed = 1.5\ncores = ["cores/*"]', "run.seed", "non-negative"),
+        ('seed = -1\ncores = ["cores/*"]', "run.seed", "must be >= 0"),
+        ('seed = true\ncores = ["cores/*"]', "run.seed", "must be an integer"),
+        ('seed = 1.5\ncores = ["cores/*"]', "run.seed", "must be an integer"),
         ('cores = ["cores/*"]', "run.seed", "missing"),
-        ('seed = 1\nensemble = 5\ncores = ["cores/*"]', "run.ensemble", "10..100000"),
-        ('seed = 1\nensemble = 100001\ncores = ["cores/*"]', "run.ensemble", "10..100000"),
+        ('seed = 1\nensemble = 5\ncores = ["cores/*"]', "run.ensemble", "must be >= 10 and <= 100000"),
+        ('seed = 1\nensemble = 100001\ncores = ["cores/*"]', "run.ensemble", "must be >= 10 and <= 100000"),
+        ('seed = 1\ncores = [1]', "run.cores", "must be a list of names"),
         ('seed = 1\ncores = ["nothing/*"]', "run.cores", "matches no folder"),
         ('seed = 1\ncores = ["cores/README.txt"]', "run.cores", "matches no folder"),
         ("seed = 1", "run.cores", "missing"),

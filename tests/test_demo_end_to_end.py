@@ -54,6 +54,14 @@ def _parquet_bytes(run: pathlib.Path) -> dict[str, bytes]:
     return {p.relative_to(run).as_posix(): p.read_bytes() for p in sorted(run.rglob("*.parquet"))}
 
 
+
+def test_demo_tables_fit_the_schema(demo_runs):
+    """Every Parquet file of the demo run is declared in pipelines/outputs_schema.py and
+    holds no undeclared column."""
+    from pipelines.outputs_schema import run_folder_problems
+
+    assert run_folder_problems(demo_runs[0]) == []
+
 def test_two_demo_runs_give_byte_identical_parquet(demo_runs):
     a, b, _ = demo_runs
     bytes_a, bytes_b = _parquet_bytes(a), _parquet_bytes(b)

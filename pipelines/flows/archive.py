@@ -24,6 +24,7 @@ from prefect import flow
 
 from pipelines.flows import stages, tasks
 from pipelines.flows.plan import RunPlan
+from pipelines.flows.status import RECONSTRUCTED, finished_status
 from pipelines.flows.store import WorkStore
 
 __all__ = ["archive_flow", "core_flow", "CoreTrack", "register_observer", "unregister_observer"]
@@ -243,7 +244,7 @@ class _Driver:
 
     def _publish(self, track: CoreTrack) -> None:
         if track.status == "running":
-            track.status = "ok"
+            track.status = finished_status(track.entries)
         track.say(f"finished: {track.status}, stage reached {track.reached or 'none'}")
         entries = [track.entries[s] for s in CORE_STAGES if s in track.entries and s != "ingest"]
         self._submit(track, "outputs", tasks.outputs_task, run_dir=self.run_dir, label=track.name,
@@ -370,7 +371,7 @@ def archive_flow(plan: RunPlan, run_dir: str, cache_dir: str, recompute: bool = 
     tracks = driver.run()
     notes = [f"training set {n}: {m}" for n, m in sorted(driver.training_failed.items())]
     reconstructions = {t.name: t.entries["reconstruction"] for t in tracks
-                       if t.status == "ok" and "reconstruction" in t.entries}
+                       if t.status in RECONSTRUCTED and "reconstruction" in t.entries}
     stack = None
     if reconstructions:
         result = None if recompute else stages.probe(stages.run_stack, plan=plan, reconstructions=reconstructions,

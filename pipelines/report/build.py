@@ -20,8 +20,7 @@ from pipelines.report.figures_chronology import (age_depth_figure, deposition_ti
                                                  outlier_figure)
 from pipelines.report.figures_events import event_figure, event_variables
 from pipelines.report.figures_reconstruction import reconstruction_figure, stack_figure
-from pipelines.report.rundata import (CoreData, RunData, downcore_version, hpd_ranges_of,
-                                      median_column, read_run, reconstruction_series)
+from pipelines.report.rundata import CoreData, RunData, downcore_version, read_run, reconstruction_series
 from pipelines.runfolder import atomic_write_text
 
 __all__ = ["write_run_report", "REPORT_NAME"]
@@ -79,6 +78,10 @@ def _status_cell(core: CoreData) -> str:
         return '<span class="status ok">✓ ok</span>'
     if core.status.lower() in ("failed", "error"):
         return '<span class="status failed">✗ failed</span>'
+    if core.status.lower() == "thin":
+        return '<span class="status thin" title="reconstruction empty or mostly empty">◐ thin</span>'
+    if core.status.lower() == "dated":
+        return '<span class="status dated" title="dated only: nothing calibrated">○ dated only</span>'
     return f'<span class="status">{H.esc(core.status)}</span>'
 
 
@@ -93,8 +96,12 @@ def _summary_section(run: RunData) -> str:
             f'<td class="num">{H.esc(H.fmt(core.seconds))}</td><td>{H.esc(reason or "–")}</td></tr>')
     n_ok = sum(c.ok for c in run.cores)
     n_failed = sum(c.status.lower() in ("failed", "error") for c in run.cores)
-    lead = (f"{len(run.cores)} core(s): {n_ok} finished, {n_failed} failed"
-            f"{'' if n_ok + n_failed == len(run.cores) else ', others incomplete'}.")
+    n_thin = sum(c.status.lower() == "thin" for c in run.cores)
+    n_dated = sum(c.status.lower() == "dated" for c in run.cores)
+    shown = n_ok + n_failed + n_thin + n_dated
+    lead = (f"{len(run.cores)} core(s): {n_ok} ok, {n_thin} thin (reconstruction mostly empty), "
+            f"{n_dated} dated only, {n_failed} failed"
+            f"{'' if shown == len(run.cores) else ', others incomplete'}.")
     table = ('<table class="data"><thead><tr><th>core</th><th>status</th><th>stage reached</th>'
              "<th>warnings</th><th>seconds</th><th>reason / first warning</th></tr></thead>"
              f"<tbody>{''.join(rows)}</tbody></table>")
@@ -112,10 +119,8 @@ def _dates_table(core: CoreData) -> str:
     for column, header in (("kind", "kind"), ("age", "age"), ("error", "± 1σ")):
         if column in dates.columns:
             shown[header] = dates[column]
-    median = median_column(dates)
-    if median is not None:
-        shown["calibrated median [cal BP]"] = pd.to_numeric(dates[median], errors="coerce").round()
-    ranges = hpd_ranges_of(dates, "hpd95")
+    shown["calibrated median [cal BP]"] = dates["cal_median_bp"].round()
+    ranges = core.hpd_ranges(0.954)
     if any(ranges):
         shown["95 % HPD [cal BP]"] = ["; ".join(f"{a:.0f}–{b:.0f}" for a, b in r) or "–" for r in ranges]
     for column, header in (("outlier_prob", "outlier probability"), ("exclude", "excluded")):

@@ -12,7 +12,7 @@ from matplotlib.lines import Line2D
 from matplotlib.patches import Patch
 
 from pipelines.report import style
-from pipelines.report.rundata import CoreData, hpd_ranges_of, median_column, member_columns
+from pipelines.report.rundata import CoreData, member_columns
 
 __all__ = ["age_depth_figure", "deposition_time_figure", "outlier_figure", "OUTLIER_LINE",
            "ensemble_matrix"]
@@ -83,10 +83,10 @@ def _draw_densities(ax, dates: pd.DataFrame, densities: pd.DataFrame, height: fl
     return drawn
 
 
-def _draw_hpd_bars(ax, dates: pd.DataFrame) -> bool:
+def _draw_hpd_bars(ax, core: CoreData) -> bool:
     """Fallback: 95 % HPD ranges as bars and the calibrated median as a tick."""
-    ranges = hpd_ranges_of(dates, "hpd95")
-    median_col = median_column(dates)
+    dates = core.table("dates")
+    ranges = core.hpd_ranges(0.954)
     outlier = _outlier_prob(dates)
     excluded = _flag(dates, "exclude")
     drawn = False
@@ -98,12 +98,11 @@ def _draw_hpd_bars(ax, dates: pd.DataFrame) -> bool:
             ax.plot([young, old], [row.depth_cm, row.depth_cm], color=colour, linestyle=ls,
                     linewidth=3.0, solid_capstyle="butt", zorder=4)
             drawn = True
-        if median_col is not None:
-            value = pd.to_numeric(pd.Series([getattr(row, median_col)]), errors="coerce").iloc[0]
-            if np.isfinite(value):
-                ax.plot([value], [row.depth_cm], marker="D" if is_outlier else "o",
-                        markersize=4, markerfacecolor="white", markeredgecolor=colour, zorder=5)
-                drawn = True
+        value = float(row.cal_median_bp)
+        if np.isfinite(value):
+            ax.plot([value], [row.depth_cm], marker="D" if is_outlier else "o",
+                    markersize=4, markerfacecolor="white", markeredgecolor=colour, zorder=5)
+            drawn = True
     return drawn
 
 
@@ -147,7 +146,7 @@ def age_depth_figure(core: CoreData):
         if densities is not None and _draw_densities(ax, dates, densities, height):
             handles.append(Patch(facecolor=style.SAND, edgecolor=style.INK,
                                  label="calibrated date density"))
-        elif _draw_hpd_bars(ax, dates):
+        elif _draw_hpd_bars(ax, core):
             handles.append(Line2D([], [], color=style.INK, linewidth=3,
                                   label="date, 95 % HPD range"))
         if np.any(_outlier_prob(dates) >= OUTLIER_LINE):

@@ -53,15 +53,21 @@ class ChronologySettings:
                                              low=0.0, low_open=True)
     hiatus_gap_yr: float = setting(5000.0, "mean of the exponential gap prior at a hiatus [yr]",
                                    low=0.0, low_open=True)
-    outlier_prior: float = setting(0.05, "prior probability that a date is an outlier", low=0.0, high=0.5)
+    outlier_prior: float = setting(0.05, "prior probability that a date is an outlier (the core top "
+                                   "is a constraint, never an outlier)", low=0.0, high=0.5)
+    outlier_shift_scale: tuple[float, float] = setting(
+        (500.0, 0.1), "an outlier's shift from the true age is Student-t (3 d.o.f.) with scale "
+        "hypot(first [yr], second x the date's age) (widened by the date's own spread)",
+        kind="pair[float]", low=0.0)
     student_t: bool = setting(False, "calibrate radiocarbon dates with the Student-t likelihood")
     error_multiplier_prior: tuple[float, float] = setting(
         (3.0, 4.0), "Student-t only: (a, b), shape and rate of the gamma prior on each date's "
         "precision multiplier (Christen & Perez 2009)", kind="pair[float]", low=0.0, low_open=True)
     default_curve: str | None = setting(None, "curve for radiocarbon dates whose curve cell is empty",
                                         kind=str, example='"atmosphere"')
-    core_top: bool = setting(True, "add the core top (1950 - collected, error top_age_error) as "
-                             "a calendar date at depth 0")
+    core_top: bool = setting(True, "the core top is the sediment surface of the collection year: "
+                             "age 1950 - collected (error top_age_error) at depth 0, a constraint "
+                             "that cannot be an outlier; core.toml's top_intact overrides it per core")
     top_age_error_yr: float = setting(5.0, "core-top error when core.toml gives none [yr]",
                                       low=0.0, low_open=True)
     output_step_cm: float = setting(1.0, "depth step of chronology.parquet and the ensemble table [cm]",

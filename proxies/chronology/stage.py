@@ -26,14 +26,17 @@ from proxies.chronology.calibrate import (
 )
 from proxies.chronology.curves import CalibrationCurve
 from proxies.chronology.interpolation import fit_interpolation
+from proxies.chronology.outliers import outlier_density
 from proxies.chronology.settings import ChronologySettings
 from proxies.problems import InputError, Problem
 
-__all__ = ["ChronologyResult", "build_chronology", "calibrate_core_dates", "date_density_table", "format_ranges",
+__all__ = ["ChronologyResult", "build_chronology", "calibrate_core_dates", "date_density_table", "date_range_table", "format_ranges",
            "mean_rate_from_dates", "CORE_TOP_LABEL"]
 
 #: label of the core-top pseudo-date added when ``core_top`` is on
 CORE_TOP_LABEL = "core top"
+#: HPD levels reported for every date (common practice: 68.3 % and 95.4 %)
+HPD_LEVELS = (0.683, 0.954)
 _NICE_STEPS = (1, 2, 5, 10, 20, 50, 100)
 
 
@@ -64,6 +67,9 @@ class ChronologyResult:
     date_densities : pandas.DataFrame
         ``date_densities.parquet``: label, age_cal_bp, density [1/yr] of each calibrated date
         (before the age model), thinned for plotting (see :func:`date_density_table`).
+    date_ranges : pandas.DataFrame
+        ``date_ranges.parquet``: the 68.3 % and 95.4 % HPD ranges of each date as numbers
+        (see :func:`date_range_table`).
     """
 
     depth_cm: np.ndarray
@@ -77,6 +83,7 @@ class ChronologyResult:
     depth_scale: object = None
     hyperparameters: pd.DataFrame = field(default_factory=pd.DataFrame)
     date_densities: pd.DataFrame = field(default_factory=pd.DataFrame)
+    date_ranges: pd.DataFrame = field(default_factory=pd.DataFrame)
 
     def age_at(self, depth_cm) -> np.ndarray:
         """Ensemble ages at composite depths [cm], shape (k, M) [cal BP].
@@ -147,13 +154,15 @@ def calibrate_core_dates(core, curves: dict[str, CalibrationCurve], settings: Ch
                             ("reservoir_error", 0.0), ("exclude", False), ("source_row", np.nan)):
         if column not in table.columns:
             table[column] = default
-    if settings.core_top:
-        error = getattr(core, "top_age_error", None) or settings.top_age_error_yr
+    table["constraint"] = False
+    if top_is_surface(core, settings):
+        error = core.top_age_error or settings.top_age_error_yr
         top = {c: None for c in table.columns}
         top.update(label=CORE_TOP_LABEL, depth_cm=0.0, kind="calendar", age=float(core.top_age_cal_bp),
                    error=float(error), thickness_cm=0.0, reservoir_offset=0.0, reservoir_error=0.0,
-                   exclude=False, source_row=np.nan)
+                   exclude=False, source_row=np.nan, constraint=True)
         table = pd.concat([pd.DataFrame([top]), table], ignore_index=True)
+    table["constraint"] = table["constraint"].astype(bool)
     table["reservoir_offset"] = pd.to_numeric(table["reservoir_offset"]).fillna(0.0)
     table["reservoir_error"] = pd.to_numeric(table["reservoir_error"]).fillna(0.0)
     table["exclude"] = table["exclude"].fillna(False).astype(bool)
@@ -210,6 +219,19 @@ def calibrate_core_dates(core, curves: dict[str, CalibrationCurve], settings: Ch
         raise InputError(problems)
     table["curve_used"] = used
     return table, stack_calibrated(parts, len(table))
+
+
+def top_is_surface(core, settings: ChronologySettings) -> bool:
+    """Whether the core top is the sediment surface of the collection year (a constraint).
+
+    ``core.toml``'s ``top_intact`` decides when given; otherwise ``[chronology] core_top``.
+    """
+    return settings.core_top if core.top_intact is None else bool(core.top_intact)
+
+
+def outlier_priors(table: pd.DataFrame, settings: ChronologySettings) -> np.ndarray:
+    """Prior outlier probability of each date: ``outlier_prior``, 0 for constraints (core top)."""
+    return np.where(table["constraint"].to_numpy(bool), 0.0, settings.outlier_prior)
 
 
 def _row(table: pd.DataFrame, i: int) -> int | None:
@@ -300,7 +322,8 @@ def build_chronology(core, curves: dict[str, CalibrationCurve], settings: Chrono
             table, calibrated, use, z, hiatuses, top, bottom, centre, core, settings, ensemble, rng)
     else:
         nodes, paths, outlier_used = _run_interpolation(
-            calibrated, use, z, hiatuses, free_out, centre, settings, ensemble, rng)
+            calibrated, use, z, hiatuses, free_out, centre, settings, ensemble, rng,
+            outlier_priors(table, settings))
     outlier[use] = outlier_used
     result_ensemble = interpolate_nodes(nodes, paths, free_out)
     summary = _summary(out_depth, free_out, result_ensemble)
@@ -310,7 +333,30 @@ def build_chronology(core, curves: dict[str, CalibrationCurve], settings: Chrono
             messages.append(f"date {label!r} is probably an outlier (posterior probability {p:.2f})")
     return ChronologyResult(out_depth, result_ensemble, summary, dates, messages, nodes, paths,
                             settings.model, depth_scale, hyper,
-                            date_density_table(table["label"].tolist(), calibrated))
+                            date_density_table(table["label"].tolist(), calibrated),
+                            date_range_table(table["label"].tolist(), calibrated))
+
+
+def date_range_table(labels: list[str], calibrated: CalibratedDates,
+                     levels: tuple[float, ...] = HPD_LEVELS) -> pd.DataFrame:
+    """HPD ranges of the calibrated dates as numbers, one row per range.
+
+    Returns
+    -------
+    pandas.DataFrame
+        ``date_ranges.parquet``: label, level, young_cal_bp, old_cal_bp [cal BP], probability
+        (mass inside the range), dates in input order, levels ascending, ranges young to old.
+    """
+    rows = [(label, level, young, old, mass)
+            for level in sorted(levels)
+            for label, ranges in zip(labels, calibrated.hpd(level))
+            for young, old, mass in ranges]
+    frame = pd.DataFrame(rows, columns=["label", "level", "young_cal_bp", "old_cal_bp", "probability"])
+    order = {label: i for i, label in enumerate(labels)}
+    frame["_date"] = frame["label"].map(order)
+    frame = frame.sort_values(["_date", "level"], kind="stable").drop(columns="_date")
+    return frame.astype({"level": float, "young_cal_bp": float, "old_cal_bp": float,
+                         "probability": float}).reset_index(drop=True)
 
 
 def date_density_table(labels: list[str], calibrated: CalibratedDates, max_points: int = 400,
@@ -377,7 +423,7 @@ def _run_accumulation(table, calibrated: CalibratedDates, use, z, hiatuses, top,
     young = float(lows.min() - max(0.0, z_used.min() - top) * rates.max() * 3 - 100)
     top_age = getattr(core, "top_age_cal_bp", None)
     if top_age is not None:
-        error = getattr(core, "top_age_error", None) or settings.top_age_error_yr
+        error = core.top_age_error or settings.top_age_error_yr
         # a core cannot be younger than its collection year: the grid starts there
         young = float(min(lows.min(), top_age - 4 * error))
     old = float(highs.max() + max(0.0, bottom - z_used.max()) * rates.max() * 3
@@ -390,9 +436,10 @@ def _run_accumulation(table, calibrated: CalibratedDates, use, z, hiatuses, top,
     origin = math.floor(young / step) * step
     mass = used.on_grid(origin, step, size)
     node_of = np.searchsorted(nodes, z_used - 1e-6, side="left")
-    prior = np.full(z_used.size, settings.outlier_prior)
+    prior = outlier_priors(table, settings)[use]
+    broad = outlier_density(used, origin, step, size, *settings.outlier_shift_scale)
     problem = AccumulationProblem(nodes, gap_after, node_of, mass, prior, float(origin), float(step),
-                                  float(settings.node_spacing_cm))
+                                  float(settings.node_spacing_cm), outlier_mass=broad)
     mult, shape = np.meshgrid(rates, np.asarray(settings.rate_shapes), indexing="ij")
     fit = fit_accumulation(problem, mult.ravel(), shape.ravel(), settings.hiatus_gap_yr, ensemble, rng)
     hyper = pd.DataFrame({"mean_rate_yr_cm": fit.mean_rates, "shape": fit.shapes,
@@ -401,12 +448,12 @@ def _run_accumulation(table, calibrated: CalibratedDates, use, z, hiatuses, top,
 
 
 def _run_interpolation(calibrated: CalibratedDates, use, z, hiatuses, free_out, centre,
-                       settings: ChronologySettings, ensemble: int, rng):
+                       settings: ChronologySettings, ensemble: int, rng, priors: np.ndarray):
     index = np.flatnonzero(use)
     index = index[np.argsort(z[index], kind="stable")]
     chosen = calibrated.take(index)
     depths = z[index]
-    prior = np.full(index.size, settings.outlier_prior)
+    prior = priors[index]
     edges = sorted(h for h in hiatuses)
     ladder = np.unique(np.concatenate([free_out, depths]))
     nodes = np.sort(np.concatenate([ladder, [h for h in edges if ladder[0] < h < ladder[-1]]]))
@@ -437,14 +484,12 @@ def _summary(depth_cm, free, ensemble) -> pd.DataFrame:
 
 def _dates_table(table, calibrated: CalibratedDates, medians, outlier, model_ages) -> pd.DataFrame:
     out = table.copy()
-    hpd95, hpd68 = calibrated.hpd(0.954), calibrated.hpd(0.683)
+    hpd95 = calibrated.hpd(0.954)
     out["cal_median_bp"] = medians
     out["cal_mode_bp"] = calibrated.mode()
     out["cal_mean_bp"] = calibrated.mean()
     out["hpd95_young_bp"] = [r[0][0] for r in hpd95]
     out["hpd95_old_bp"] = [r[-1][1] for r in hpd95]
-    out["hpd95_ranges"] = [format_ranges(r) for r in hpd95]
-    out["hpd68_ranges"] = [format_ranges(r) for r in hpd68]
     out["outlier_prob"] = outlier
     out["model_age_median_bp"] = np.median(model_ages, axis=1)
     out["curve"] = out["curve"].astype(object).where(out["curve"].notna(), None)

@@ -102,6 +102,10 @@ class Core:
         Composite depths of hiatuses [cm], sorted.
     folder : str
         The core folder as given.
+    top_intact : bool or None
+        ``core.toml``'s ``top_intact``: ``True`` when the core top is the sediment surface of
+        the collection year, ``False`` for a lost or older top; ``None`` when not given (the
+        run's ``[chronology] core_top`` decides).
     """
 
     id: str
@@ -118,6 +122,7 @@ class Core:
     event_layers: tuple[EventLayer, ...] = ()
     hiatuses_cm: tuple[float, ...] = ()
     folder: str = ""
+    top_intact: bool | None = None
 
     @property
     def top_age_cal_bp(self) -> float:

@@ -66,7 +66,8 @@ CALENDAR_TOP_SLACK_YR = 5.0
 EARLIEST_COLLECTION_CE = 1850
 ID_PATTERN = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_-]{0,63}$")
 TOP_LEVEL_KEYS = ("core", "files", "sections", "event_layers", "hiatuses")
-CORE_KEYS = ("id", "archive", "latitude", "longitude", "collected", "depth_unit", "site", "top_age_error")
+CORE_KEYS = ("id", "archive", "latitude", "longitude", "collected", "depth_unit", "site", "top_age_error",
+             "top_intact")
 FILE_KEYS = ("samples", "dates", "counts")
 TRUE_WORDS = frozenset({"true", "yes", "1", "y"})
 FALSE_WORDS = frozenset({"false", "no", "0", "n"})
@@ -97,6 +98,7 @@ class CoreSpec:
     sections: tuple[Section, ...] = ()
     event_layers: tuple[EventLayer, ...] = ()
     hiatuses_cm: tuple[float, ...] = ()
+    top_intact: bool | None = None
 
     @property
     def depth_factor(self) -> float:
@@ -237,6 +239,7 @@ def check_core_mapping(
         depth_unit = None
     site = _text(where, core, "site", "core.site", required=False) or ""
     top_age_error = _number(where, core, "top_age_error", "core.top_age_error", required=False, lo=0, unit="yr")
+    top_intact = _top_intact(where, core)
 
     files = _check_files(where, _table(where, mapping, "files", required=True))
     factor = DEPTH_UNITS.get(depth_unit or "cm", 1.0)
@@ -251,9 +254,22 @@ def check_core_mapping(
         id=core_id, archive=archive, latitude=latitude, longitude=longitude, collected_ce=collected,
         site=site, top_age_error=top_age_error, depth_unit=depth_unit, files=files,
         sections=sections, event_layers=tuple(sorted(layers, key=lambda e: e.top_cm)),
-        hiatuses_cm=tuple(sorted(hiatuses)),
+        hiatuses_cm=tuple(sorted(hiatuses)), top_intact=top_intact,
     )
     return spec, []
+
+
+def _top_intact(where: _Collector, core: dict) -> bool | None:
+    """``top_intact``: whether the core top is the sediment surface of the collection year."""
+    if "top_intact" not in core:
+        return None
+    value = core["top_intact"]
+    if not isinstance(value, bool):
+        where.add(f"'top_intact' must be true or false, got {value!r}",
+                  "write top_intact = false for a lost or older top (piston core, truncated sequence), "
+                  "or leave it out", "core.top_intact")
+        return None
+    return value
 
 
 def _collected_year(where: _Collector, core: dict, year: int) -> int | None:

@@ -58,7 +58,6 @@ import numpy as np
 import pandas as pd
 
 from proxies.events.candidates import EXCURSION, KIND_NAMES, Candidates, detect_candidates
-from proxies.events.changepoints import bic_penalty
 from proxies.events.ramp import fit_ramps
 from proxies.events.scan import ScanProfile
 from proxies.events.settings import EventSettings
@@ -197,16 +196,18 @@ class _Search:
 def _search(x: np.ndarray, observed: np.ndarray, background: int, max_exc: int, settings: EventSettings,
             rng: np.random.Generator) -> _Search:
     """Prepare, estimate the null persistence, detect candidates and calibrate them."""
-    work = prepare_series(x, observed, background)
+    keep = settings.background_keeps_changes
+    work = prepare_series(x, observed, background, keep)
     # Persistence from each series' own (unevenly spaced) non-empty cells, its most prominent
     # excursion left out (Mudelsee 2002), bias-corrected by simulation so that the null
     # matches the data's treatment.
-    tau_steps, _ = matched_null_tau(work, observed, background, rng, mask_points=max_exc)
+    tau_steps, _ = matched_null_tau(work, observed, background, rng, mask_points=max_exc, keep_steps=keep)
     persistence = float(np.exp(-1.0 / tau_steps)) if tau_steps > 0 else 0.0
-    penalty = bic_penalty(x.shape[0], "mean", settings.penalty_factor)
-    cands, profile = detect_candidates(work, max_exc, penalty, observed, persistence, return_profile=True)
-    null, null_profile = null_maxima(x.shape[0], tau_steps, settings.n_surrogates, max_exc, penalty, rng,
-                                     observed=observed, background_points=background, return_profile=True)
+    support = settings.edge_support_points
+    cands, profile = detect_candidates(work, max_exc, support, observed, persistence, return_profile=True)
+    null, null_profile = null_maxima(x.shape[0], tau_steps, settings.n_surrogates, max_exc, support, rng,
+                                     observed=observed, background_points=background, return_profile=True,
+                                     keep_steps=keep)
     return _Search(cands, monte_carlo_p_values(cands, null), profile, null, null_profile, tau_steps)
 
 
@@ -393,14 +394,21 @@ def detect_core_events(reconstruction, settings: EventSettings, rng: np.random.G
     notes: list[str] = []
     event_frames, prob_frames, det_frames, onset_frames = [], [], [], []
     names = sorted(reconstruction.series)
+    if not settings.enabled:
+        notes.append("event detection is off ([events] enabled = false); events not searched")
+        names = []
     if settings.variables is not None:
-        names = [n for n in names if n in settings.variables]
-    for name in names if settings.enabled else []:
+        listed = [n for n in names if n in settings.variables]
+        notes += [f"{n}: not listed in [events] variables; events not searched"
+                  for n in names if n not in listed]
+        names = listed
+    for name in names:
         s = reconstruction.series[name]
         # Grid points where at least half of the members have a value (as in the table).
         rows = np.flatnonzero(np.isfinite(s.values).mean(axis=1) >= 0.5) if s.values.size else np.zeros(0, int)
         if rows.size < _MIN_POINTS:
-            notes.append(f"{name}: only {rows.size} grid points with values; events not searched")
+            notes.append(f"{name}: only {rows.size} grid points with values (at least {_MIN_POINTS} "
+                         "are needed); events not searched")
             continue
         span = slice(rows[0], rows[-1] + 1)
         values = s.values[span]
