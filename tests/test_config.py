@@ -38,6 +38,7 @@ def problems_of(path) -> list[Problem]:
 
 def test_good_config_resolves_folders_curves_and_sections(tmp_path):
     path = make_project(tmp_path, extra="[report]\ntitle = 'x'\n[training.modern]\nfile = 'x.csv'\ntarget = 't'\n")
+    (tmp_path / "x.csv").write_text("t,taxon_a,taxon_b\n10.5,3,7\n12.0,5,5\n")
     config = load_run_config(path)
     assert isinstance(config, RunConfig)
     assert config.seed == 7 and config.ensemble == 1000  # ensemble default
@@ -139,3 +140,19 @@ def test_stage_settings_resolves_lazily_and_passes_where(tmp_path, monkeypatch):
     path.write_text(path.read_text().replace("window = 3", "bad = 1"))
     problems = check_run_config(path)
     assert [(p.column, p.file) for p in problems] == [("bad", f"{path.resolve()} [events]")]
+
+
+def test_check_reads_training_and_instrumental_sections_and_files(tmp_path):
+    """check validates [training.*], [instrumental.*] and their files with the declared keys,
+    and a calibration that names a missing series."""
+    extra = ("[training.modern]\nfile = 'lakes.csv'\ntarget = 'temp'\ncomponets = 2\n"
+             "[instrumental.station]\nfile = 'station.csv'\nvalue_column = 'air'\n"
+             "[calibration.bsi]\nmethod = 'overlap'\nseries = 'stations'\n")
+    path = make_project(tmp_path, extra=extra)
+    (tmp_path / "station.csv").write_text("year_ce,air\n1900,1.0\n1901,warm\n")
+    problems = check_run_config(path)
+    located = {(p.file.rsplit("/", 1)[-1], p.row, p.column) for p in problems}
+    assert ("run.toml [training.modern]", None, "componets") in located
+    assert ("station.csv", 3, "air") in located
+    assert ("run.toml [calibration.bsi]", None, "series") in located
+    assert any("did you mean 'components'" in p.fix for p in problems)
