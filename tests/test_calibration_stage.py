@@ -4,6 +4,7 @@ its settings, and the auxiliary readers."""
 from __future__ import annotations
 
 from dataclasses import dataclass
+from pathlib import Path
 
 import numpy as np
 import pandas as pd
@@ -18,6 +19,7 @@ from proxies.cores.model import NON_PROXY_COLUMNS, EventLayer
 from proxies.problems import InputError
 
 M = 64
+DEMO_CORE = Path(__file__).resolve().parents[1] / "demo_cores" / "cores" / "TEL-07"
 
 
 @dataclass
@@ -299,3 +301,39 @@ def test_auxiliary_readers(tmp_path):
     series.write_text("year_ce,t\n1900,1.0\n1900.5,2.0\n")
     with pytest.raises(InputError, match="row 3"):
         read_instrumental(series, ispec)
+
+
+# --------------------------------------------------------------------------- event layers
+def test_samples_inside_event_layers_are_left_out_unless_kept():
+    """A sample inside an event layer (an instantaneous deposit) is not calibrated by
+    default; event_layer_samples = "keep" uses it."""
+    samples = pd.DataFrame({"depth_cm": [1.0, 5.0, 9.0], "uk37": [0.4, 0.5, 0.6],
+                            "source_row": [2, 3, 4]})
+    core = StandInCore("EV-1", samples, event_layers=(EventLayer(4.0, 6.0, "turbidite"),))
+    table = {"method": "equation", "equation": "uk37_mueller1998"}
+    left_out = calibrate_core(core, None, settings(uk37=table), {}, {}, 8,
+                              np.random.default_rng(0))
+    assert list(left_out.samples["depth_cm"]) == [1.0, 9.0]
+    assert any("inside event layers" in w for w in left_out.warnings)
+    kept = calibrate_core(core, None, settings(uk37={**table, "event_layer_samples": "keep"}),
+                          {}, {}, 8, np.random.default_rng(0))
+    assert list(kept.samples["depth_cm"]) == [1.0, 5.0, 9.0]
+
+
+def test_check_warns_about_samples_in_event_layers(tmp_path):
+    """downcore check names file, row and column of a sample inside an event layer, as a
+    warning (the exit code stays 0)."""
+    import shutil
+
+    from click.testing import CliRunner
+
+    from pipelines.cli.check import command
+    folder = tmp_path / "TEL-07"
+    shutil.copytree(DEMO_CORE, folder)
+    first = pd.read_excel(folder / "samples.xlsx")["depth_cm"].iloc[0]
+    with open(folder / "core.toml", "a", encoding="utf-8") as handle:
+        handle.write(f"\n[[event_layers]]\ntop = {first - 0.1}\nbottom = {first + 0.1}\n"
+                     'kind = "turbidite"\n')
+    result = CliRunner().invoke(command, [str(folder)])
+    assert result.exit_code == 0, result.output
+    assert "warning: samples.xlsx, row 2, column 'depth_cm'" in result.output

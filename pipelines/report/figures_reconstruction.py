@@ -59,7 +59,9 @@ def _samples_for(core: CoreData, series: Series) -> pd.DataFrame | None:
         ages = sample_ages(core, part["depth_cm"].to_numpy(float))
         if ages is None:
             return None
-    return pd.DataFrame({"age": ages,
+    outside = part["outside_calibration_range"].fillna(False).to_numpy(bool) \
+        if "outside_calibration_range" in part.columns else np.zeros(len(part), dtype=bool)
+    return pd.DataFrame({"age": ages, "outside": outside,
                          "median": pd.to_numeric(part["value_median"], errors="coerce"),
                          "low": pd.to_numeric(part.get("value_q025"), errors="coerce")
                          if "value_q025" in part.columns else np.nan,
@@ -93,6 +95,12 @@ def reconstruction_figure(core: CoreData, series: Series):
                     markeredgewidth=0.7, zorder=5)
         handles.append(Line2D([], [], linestyle="none", marker="o", markerfacecolor="white",
                               markeredgecolor=style.CLAY, label="calibrated samples (95 %)"))
+        outside = samples[samples["outside"]]
+        if len(outside):
+            ax.plot(outside["age"], outside["median"], linestyle="none", marker="x",
+                    markersize=5, color=style.INK, markeredgewidth=0.9, zorder=6)
+            handles.append(Line2D([], [], linestyle="none", marker="x", color=style.INK,
+                                  label="outside the calibrated range"))
     ax.set_ylabel(f"{series.variable}{_unit_text(series.units)}")
     ax.legend(handles=handles, loc="best", ncol=2)
     ax.set_title(f"{core.core_id}: {series.label}")
