@@ -153,27 +153,12 @@ def read_instrumental(source, spec) -> InstrumentalSeries:
                               values)
 
 
-def check_auxiliary(config) -> list[Problem]:
-    """Every problem of the training sets and instrumental series a run config names.
-
-    Each valid ``[training.<name>]`` / ``[instrumental.<name>]`` section's file is read and
-    checked (columns, cells; sections with key problems are reported by their settings
-    class and skipped here), and every ``[calibration.<column>]`` that names a training set
-    or series must name one that is configured.
-    """
+def calibration_reference_problems(config) -> list[Problem]:
+    """Every ``[calibration.<column>]`` that names a training set or instrumental series
+    must name one that is configured (the sections and their files are checked by
+    :mod:`pipelines.run_checks` and the settings classes)."""
     where = str(config.path)
     problems: list[Problem] = []
-    for section, spec_class, reader in (("training", TrainingSpec, read_training_set),
-                                        ("instrumental", InstrumentalSpec, read_instrumental)):
-        for name, table in (config.sections.get(section) or {}).items():
-            try:
-                spec = spec_class.from_mapping(name, table, where)
-            except InputError:
-                continue  # reported with the section's keys
-            try:
-                reader(config.resolve(spec.file), spec)
-            except InputError as error:
-                problems.extend(error.problems)
     for column, table in (config.sections.get("calibration") or {}).items():
         if not isinstance(table, dict):
             continue

@@ -41,8 +41,12 @@ def planted_truth(ages: np.ndarray, kind: str, size: float, onset: float, length
 def simulated_ensemble(rng: np.random.Generator, kind: str = "step", size: float = 3.0,
                        n_points: int = 120, n_members: int = 40, tau_steps: float = 1.5,
                        noise_sd: float = 0.3, age_sd_yr: float = 60.0, onset: float | None = None,
-                       length_yr: float = 300.0, young: float = 1000.0):
-    """One ensemble: ``(grid ages [cal BP, increasing], values (T, M), true onset)``."""
+                       length_yr: float = 300.0, young: float = 1000.0, model_error: bool = True):
+    """One ensemble: ``(grid ages [cal BP, increasing], values (T, M), true onset)``.
+
+    With ``model_error`` the record's own age model is off by one draw of the age error
+    (SD ``age_sd_yr``), common to all members: the ensemble describes the uncertainty of the
+    ages, it is not centred on the truth."""
     fine = 5  # truth on a 10-yr grid, so that age errors move the change smoothly
     ages = young + STEP_YR * np.arange(n_points)
     fine_ages = young - 500 + (STEP_YR / fine) * np.arange((n_points + 20) * fine)
@@ -52,6 +56,8 @@ def simulated_ensemble(rng: np.random.Generator, kind: str = "step", size: float
     coarse = young - 500 + STEP_YR * np.arange(n_points + 20)
     truth = np.interp(fine_ages, coarse, climate) + planted_truth(fine_ages, kind, size, onset, length_yr)
     offset = age_sd_yr * rng.standard_normal(n_members)
+    if model_error:
+        offset = offset + age_sd_yr * rng.standard_normal()
     drift = np.cumsum(rng.standard_normal((n_points, n_members)), axis=0) * (age_sd_yr / np.sqrt(4 * n_points))
     seen = ages[:, None] + offset[None, :] + drift
     values = np.interp(seen, fine_ages, truth) + noise_sd * rng.standard_normal((n_points, n_members))
@@ -89,3 +95,45 @@ def case_outcomes(kind: str, n_ensembles: int, seed: int, settings, window_yr: f
         false += bool(len(sig) - (near.sum() if want else 0) > 0)
     return {"found": found / n_ensembles, "covered": covered / max(found, 1), "false": false / n_ensembles,
             "p_values": np.array(p_values)}
+
+
+def core_onsets(ages, values, settings, rng, core_id: str = "SIM"):
+    """Events and all-member onsets of one simulated ensemble, through the core-level stage
+    (:func:`proxies.events.detect_core_events`) on a one-variable stand-in reconstruction."""
+    from types import SimpleNamespace
+
+    from proxies.events import detect_core_events
+
+    series = SimpleNamespace(age_cal_bp=ages, values=values)
+    result = detect_core_events(SimpleNamespace(core_id=core_id, series={"t": series}), settings, rng)
+    return result.events, result.onsets.assign(core_id=core_id)
+
+
+def lag_trial(seed: int, trial: int, lag_yr: float, settings, size: float = 5.0, **kwargs):
+    """Two cores sharing one lasting step, core B's ``lag_yr`` later (younger) than core A's.
+
+    Returns
+    -------
+    dict or None
+        The lead/lag row of the two cores' matched events (``lead_lag_table``), ``None`` when
+        the step is not found significantly in both cores.
+    """
+    import pandas as pd
+
+    from proxies.events.leadlag import lead_lag_table
+    from proxies.seeding import rng_for
+
+    onset_a = 1000.0 + STEP_YR * 60 + 25.0
+    found, onsets = [], []
+    for core, onset in (("A", onset_a), ("B", onset_a - lag_yr)):
+        ages, values, _ = simulated_ensemble(rng_for(seed, "lag", core, trial), kind="step", size=size,
+                                             onset=onset, **kwargs)
+        events, member_onsets = core_onsets(ages, values, settings, rng_for(seed, "lag-events", core, trial), core)
+        hit = events[events["significant"] & (events["kind"] == "shift")
+                     & (abs(events["onset_median"] - onset) <= 400)] if len(events) else events
+        if not len(hit):
+            return None
+        found.append(hit.iloc[[0]])
+        onsets.append(member_onsets[member_onsets["event_id"] == hit.iloc[0]["event_id"]])
+    table = lead_lag_table(pd.concat(found, ignore_index=True), pd.concat(onsets, ignore_index=True), 1000.0)
+    return table.iloc[0].to_dict() if len(table) else None

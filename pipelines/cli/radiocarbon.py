@@ -42,7 +42,8 @@ def parse_value_error(text: str, what: str) -> tuple[float, float]:
 @click.option("--f14c", "as_f14c", is_flag=True, help="Read the ages as F14C:ERROR values.")
 @click.option("--student-t", "student_t", is_flag=True,
               help="Student-t likelihood (Christen & Perez 2009) instead of the normal.")
-@click.option("--step", default=1.0, show_default=True, type=float, help="Calendar grid step [yr].")
+@click.option("--step", default=1.0, show_default=True, type=click.FloatRange(min=0.0, max=100.0, min_open=True),
+              help="Calendar grid step [yr], > 0 and at most 100.")
 def command(ages, curve_path, reservoir, as_f14c, student_t, step):
     """Calibrate radiocarbon AGES (each AGE:ERROR, 14C yr BP) and print their calendar ranges."""
     from pipelines.curvefiles import read_curve_file

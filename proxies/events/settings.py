@@ -52,6 +52,13 @@ class EventSettings:
                                      "members are not reported", low=0.0, high=1.0, low_open=True)
     ramp_window_points: int = setting(24, "largest window (grid points) searched by the ramp fit "
                                       "around a change", low=3, low_open=True)
+    lead_lag_window_yr: float = setting(1000.0, "events of two cores (same variable, kind and direction) "
+                                        "whose onset medians are at most this far apart are taken "
+                                        "as one event for lead/lag [yr]", low=0.0, low_open=True)
+    lead_lag_group: tuple[str, ...] | None = setting(None, "variables whose events are taken as one "
+                                                     "event across cores for lead/lag (unset: each "
+                                                     "variable on its own)", kind="list[str]",
+                                                     example='["air_temperature", "sst"]')
     variables: tuple[str, ...] | None = setting(None, "variables to analyse (unset: all)",
                                                 kind="list[str]", example='["temperature"]')
 
