@@ -38,8 +38,7 @@ def problems_of(path) -> list[Problem]:
 
 
 def test_good_config_resolves_folders_curves_and_sections(tmp_path):
-    path = make_project(tmp_path, extra="[report]\ntitle = 'x'\n[training.modern]\nfile = 'x.csv'\ntarget = 't'\n")
-    (tmp_path / "x.csv").write_text("t,taxon_a,taxon_b\n10.5,3,7\n12.0,5,5\n")
+    path = make_project(tmp_path, extra="[report]\ntitle = 'x'\n[training.modern]\nfile = 'x.csv'\n")
     config = load_run_config(path)
     assert isinstance(config, RunConfig)
     assert config.seed == 7 and config.ensemble == 1000  # ensemble default
@@ -47,11 +46,11 @@ def test_good_config_resolves_folders_curves_and_sections(tmp_path):
     assert all(p.is_absolute() for p in config.core_folders)
     assert config.curves == {"atmosphere": (tmp_path / "curves" / "atm.14c").resolve()}
     assert config.sections["report"] == {"title": "x"}
-    assert config.sections["training"] == {"modern": {"file": "x.csv", "target": "t"}}
+    assert config.sections["training"] == {"modern": {"file": "x.csv"}}
     assert config.sections["events"] == {}
     assert config.resolve("x.csv") == (tmp_path / "x.csv").resolve()
     # the training section names no target and a missing file: check reads it as the run does
-    assert {p.column or Path(p.file).name for p in check_run_config(path)} <= {"training.modern.target", "x.csv"}
+    assert {p.column or Path(p.file).name for p in check_run_config(path)} <= {"target", "x.csv"}
     assert check_run_config(path)
 
 
