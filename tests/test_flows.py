@@ -24,7 +24,7 @@ CORE_FILES = {"chronology.parquet", "age_ensemble.parquet", "dates.parquet", "da
               "date_densities.parquet", "calibration.parquet",
               "calibrated_samples.parquet", "calibration_diagnostics.parquet",
               "reconstruction.parquet", "reconstruction_ensemble.parquet", "events.parquet",
-              "event_probability.parquet", "event_onsets.parquet", "log.txt"}
+              "event_probability.parquet", "event_onsets.parquet", "samples_dated.parquet", "log.txt"}
 
 
 def _parquet_bytes(run: pathlib.Path) -> dict[str, bytes]:
@@ -140,6 +140,9 @@ def test_minimal_config_runs_with_defaults_and_notes_skipped_stages(tmp_path):
     assert row["status"] == "dated" and row["stage_reached"] == "calibration"
     assert "reconstruction skipped" in row["notes"]
     assert (outcome.run_dir / "SYN-000" / "age_ensemble.parquet").is_file()
+    # nothing calibrated, yet every sample has its ages and raw proxy in the per-sample table
+    samples = read_parquet(outcome.run_dir / "SYN-000" / "samples_dated.parquet")
+    assert len(samples) == 12 and samples["age_median_cal_bp"].notna().all() and samples["uk37"].notna().all()
     ensemble = read_parquet(outcome.run_dir / "SYN-000" / "age_ensemble.parquet")
     assert list(ensemble.columns[:3]) == ["depth_cm", "m0000", "m0001"] and ensemble.shape[1] == 31
 

@@ -23,6 +23,7 @@ from typing import Any
 from prefect import flow
 
 from pipelines.flows import stages, tasks
+from pipelines.flows.dated_samples import run_dated_samples
 from pipelines.flows.plan import RunPlan
 from pipelines.flows.status import RECONSTRUCTED, finished_status
 from pipelines.flows.store import WorkStore
@@ -75,6 +76,7 @@ class CoreTrack:
     seconds: dict[str, float] = field(default_factory=dict)
     cached: dict[str, bool] = field(default_factory=dict)
     log: list[str] = field(default_factory=list)
+    samples_asked: bool = False
 
     def say(self, text: str) -> None:
         stamp = _dt.datetime.now(_dt.timezone.utc).strftime("%H:%M:%S")
@@ -104,7 +106,8 @@ class _Finished:
 
 _RUNNERS = {"ingest": stages.run_ingest, "training": stages.run_training,
             "chronology": stages.run_chronology, "calibration": stages.run_calibration,
-            "reconstruction": stages.run_reconstruction, "events": stages.run_events}
+            "reconstruction": stages.run_reconstruction, "events": stages.run_events,
+            "samples": run_dated_samples}
 
 
 class _Driver:
@@ -242,11 +245,35 @@ class _Driver:
                      chronology=e["chronology"], training=dict(sorted(self.training.items())),
                      **self._common(track))
 
+    def _ask_for_samples(self, track: CoreTrack) -> bool:
+        """Submit the per-sample table of a dated core (once) before its folder is published;
+        True when submitted (the core is published when it is done)."""
+        if "chronology" not in track.entries or track.samples_asked:
+            return False
+        track.samples_asked = True
+        e = track.entries
+        self._submit(track, "samples", tasks.samples_task, ingest=e["ingest"], chronology=e["chronology"],
+                     calibration=e.get("calibration"), **self._common(track))
+        return True
+
+    def _on_samples(self, track: CoreTrack, result: Any) -> None:
+        if isinstance(result, BaseException):
+            track.status, track.error = "failed", f"samples table: {result}"
+            track.say(f"samples table FAILED: {result}")
+        else:
+            track.entries["samples"] = result
+            track.seconds["samples"] = float(result.get("seconds", 0.0))
+            track.cached["samples"] = bool(result.get("cached"))
+            track.warnings += [f"samples table: {w}" for w in result.get("warnings", [])]
+        self._publish(track)
+
     def _publish(self, track: CoreTrack) -> None:
+        if self._ask_for_samples(track):
+            return
         if track.status == "running":
             track.status = finished_status(track.entries)
         track.say(f"finished: {track.status}, stage reached {track.reached or 'none'}")
-        entries = [track.entries[s] for s in CORE_STAGES if s in track.entries and s != "ingest"]
+        entries = [track.entries[s] for s in (*CORE_STAGES, "samples") if s in track.entries and s != "ingest"]
         self._submit(track, "outputs", tasks.outputs_task, run_dir=self.run_dir, label=track.name,
                      entries=entries, log_text=self._log_text(track))
 
@@ -275,6 +302,9 @@ class _Driver:
                     self._calibrate(track)
 
     def _on_core(self, track: CoreTrack, stage: str, result: Any) -> None:
+        if stage == "samples":
+            self._on_samples(track, result)
+            return
         if stage == "outputs":
             if isinstance(result, BaseException):
                 track.status, track.error = "failed", f"writing outputs: {result}"
@@ -387,7 +417,7 @@ def archive_flow(plan: RunPlan, run_dir: str, cache_dir: str, recompute: bool = 
         else:
             stack = result
     timings = [{"core_id": t.name, "stage": s, "seconds": t.seconds[s], "reused": t.cached.get(s, False)}
-               for t in tracks for s in CORE_STAGES if s in t.seconds]
+               for t in tracks for s in (*CORE_STAGES, "samples") if s in t.seconds]
     return {"cores": [t.row() for t in tracks], "timings": timings, "training": driver.training,
             "stack": stack, "notes": notes, "known_hashes": driver.known_hashes}
 

@@ -26,7 +26,7 @@ from pipelines.flows.store import WorkStore
 from pipelines.runfolder import atomic_write_bytes, link_or_copy, publish_folder, staging_folder
 
 __all__ = ["StageFailed", "ingest_task", "training_task", "chronology_task", "calibration_task",
-           "reconstruction_task", "events_task", "core_chain_task", "CHAIN_STAGES", "stack_task",
+           "reconstruction_task", "events_task", "core_chain_task", "CHAIN_STAGES", "samples_task", "stack_task",
            "outputs_task"]
 
 #: the stages a chained task runs, in order
@@ -132,6 +132,15 @@ def core_chain_task(plan: RunPlan, label: str, ingests: list[dict], training: di
     """All science stages of a few cores as one task (used on Dask, where each task run's
     orchestration costs CPU that the workers need); one chain per core, failures isolated."""
     return [run_core_chain(plan, ingest, training, store, recompute) for ingest in ingests]
+
+
+@task(name="samples", task_run_name="samples[{label}]", **_OPTIONS)
+def samples_task(plan: RunPlan, label: str, ingest: dict, chronology: dict, calibration: dict | None,
+                 store: WorkStore, recompute: bool = False) -> dict:
+    """The per-sample table of one dated core (ages, raw and calibrated values, flags)."""
+    from pipelines.flows.dated_samples import run_dated_samples
+
+    return _guarded(run_dated_samples, plan, ingest, chronology, calibration, store, recompute)
 
 
 @task(name="stack", task_run_name="stack[{label}]", **_OPTIONS)
