@@ -157,5 +157,11 @@ def test_netcdf_export_holds_the_per_sample_table(tmp_path, built):
                                    table["sst_degC_from_tex86_median"])
         assert ds["sample_sst_degC_from_tex86_median"].attrs["units"] == "degC"
         assert list(ds["sample_in_event_layer"].values[row, :n]) == [0, 0, 1, 0, 0, 0]
-        assert list(ds["sample_event_layer_kind"].values[row, :n])[2] == "turbidite"
+        kind = ds["sample_event_layer_kind"]
+        assert kind.attrs["flag_meanings"] == "turbidite" and kind.values[row, 2] == 0
+        assert np.isnan(kind.values[row, 0])  # empty cell: the fill value, decoded as missing
+        analogue = ds["sample_counts_analogue"]
+        assert analogue.attrs["flag_meanings"] == "good none" and analogue.values[row, 4] == 1
+        assert all("units" in ds[name].attrs for name in ds.data_vars)
+        assert ds["sample_magsus_si"].attrs["units"] == "1"
         assert ds["time"].dtype == object  # the CF time axis still decodes (cftime)
