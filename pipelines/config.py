@@ -60,8 +60,12 @@ class RunSettings:
 def _required_run_keys(values: dict) -> list[Problem]:
     fixes = {"seed": "add seed = <non-negative whole number>",
              "cores": 'add cores = ["cores/*"] (folders or glob patterns, relative to this file)'}
-    return [Problem("", f"required key '{key}' is missing from [run]", fix, column=key)
-            for key, fix in fixes.items() if values[key] is None]
+    problems = [Problem("", f"required key '{key}' is missing from [run]", fix, column=key)
+                for key, fix in fixes.items() if values[key] is None]
+    if values["cores"] is not None and len(values["cores"]) == 0:
+        problems.append(Problem("", "cores = [] lists no core: there is nothing to check or run",
+                                fixes["cores"].replace("add ", "write "), column="cores"))
+    return problems
 
 
 def _run_settings(run: dict, name: str, problems: list[Problem]) -> RunSettings | None:
@@ -71,7 +75,9 @@ def _run_settings(run: dict, name: str, problems: list[Problem]) -> RunSettings 
     try:
         return settings_from_mapping(RunSettings, run, name, _required_run_keys)
     except InputError as error:
-        problems.extend(dataclasses.replace(p, file=name, column=f"run.{p.column}") for p in error.problems)
+        found = [p for p in error.problems  # a wrong value is not also "missing"
+                 if not (p.message.startswith("required key") and p.column in run)]
+        problems.extend(dataclasses.replace(p, file=name, column=f"run.{p.column}") for p in found)
         return None
 
 
@@ -117,7 +123,8 @@ def _display(path: Path) -> str:
     return str(path) if relative.startswith("..") else relative
 
 
-def _parse(path: Path) -> tuple[RunConfig | None, list[Problem]]:
+def _parse_parts(path: Path) -> tuple[RunConfig | None, list[Problem]]:
+    """The config as far as it can be read, with every problem; ``None`` when unreadable."""
     name = str(path)
     mapping, problems = read_toml(path, name)
     if mapping is None:
@@ -131,7 +138,12 @@ def _parse(path: Path) -> tuple[RunConfig | None, list[Problem]]:
         problems.append(Problem(name, "the [run] section is missing", "add [run] with seed and cores", column="run"))
         run = {}
     settings = _run_settings(run, name, problems)
-    folders = _core_folders(settings.cores, path, name, problems) if settings is not None else ()
+    patterns = settings.cores if settings is not None else run.get("cores")
+    if isinstance(patterns, str):
+        patterns = [patterns]
+    if not isinstance(patterns, (list, tuple)) or not all(isinstance(p, str) for p in patterns):
+        patterns = ()  # reported with [run]; the cores are still checked when they can be found
+    folders = _core_folders(tuple(patterns), path, name, problems if settings is not None else [])
     curves = _curves(mapping.get("curves", {}), path, name, problems)
     sections = {}
     for key in RAW_SECTIONS:
@@ -140,10 +152,15 @@ def _parse(path: Path) -> tuple[RunConfig | None, list[Problem]]:
             problems.append(Problem(name, f"'{key}' must be a [{key}] table", f"write it as [{key}]", column=key))
             value = {}
         sections[key] = value
-    if problems:
-        return None, problems
-    return RunConfig(path=path.resolve(), seed=settings.seed, ensemble=settings.ensemble,
-                     core_folders=folders, curves=curves, sections=sections), []
+    config = RunConfig(path=path.resolve(), seed=getattr(settings, "seed", 0) or 0,
+                       ensemble=getattr(settings, "ensemble", 1000), core_folders=folders, curves=curves,
+                       sections=sections)
+    return config, problems
+
+
+def _parse(path: Path) -> tuple[RunConfig | None, list[Problem]]:
+    config, problems = _parse_parts(path)
+    return (None, problems) if problems else (config, [])
 
 
 def _core_folders(patterns: tuple[str, ...] | None, path: Path, name: str,
@@ -218,19 +235,23 @@ def check_run_config(path: str | Path, *, year: int | None = None) -> list[Probl
 
 
 def check_run_config_by_core(
-    path: str | Path, *, year: int | None = None
+    path: str | Path, *, year: int | None = None, notes: list[str] | None = None
 ) -> dict[str, tuple[Core | None, list[Problem]]]:
     """Like :func:`check_run_config`, grouped and with the loaded cores.
 
     Returns ``{config path: (None, problems of the config), core folder: (core or None,
-    problems of that core), ...}`` in that order, core folders sorted.
+    problems of that core), ...}`` in that order, core folders sorted. Every section is
+    checked even when another has problems; the checks ``run`` makes before its first stage
+    (curve files and date ranges, age control, memory, calibration columns) are made here
+    with the same code (:mod:`pipelines.run_checks`). ``notes`` receives what reading skipped.
     """
     path = Path(path)
     name = str(path)
-    config, problems = _parse(path)
+    config, problems = _parse_parts(path)  # problems of every section together, cores still checked
     grouped: dict[str, tuple[Core | None, list[Problem]]] = {name: (None, problems)}
     if config is None:
         return grouped
+    default_curve = (config.sections.get("chronology") or {}).get("default_curve")
     for stage in STAGE_SETTINGS:
         if not config.sections.get(stage):
             continue
@@ -245,7 +266,9 @@ def check_run_config_by_core(
     ids: dict[str, str] = {}
     for folder in config.core_folders:
         shown = _display(folder)
-        core, core_problems = inspect_core(shown, year=year, curve_names=set(config.curves))
+        core, core_problems = inspect_core(shown, year=year, curve_names=set(config.curves),
+                                           default_curve=default_curve if isinstance(default_curve, str) else None,
+                                           notes=notes)
         core_id = core.id if core is not None else _declared_id(folder)
         if core_id is not None and core_id in ids:
             core_problems.append(Problem(os.path.join(shown, "core.toml"),
@@ -254,6 +277,9 @@ def check_run_config_by_core(
         elif core_id is not None:
             ids[core_id] = shown
         grouped[shown] = (core, core_problems)
+    from pipelines.run_checks import run_time_checks
+
+    run_time_checks(config, grouped, name)
     return grouped
 
 

@@ -172,7 +172,8 @@ TABLES: dict[str, OutputTable] = {t.key: t for t in (
         _c("age_q975", "float", "cal BP", "97.5 % quantile of age"),
         _c("age_mean", "float", "cal BP", "mean age"),
         _c("age_sd", "float", "yr", "standard deviation of age"),
-        _c("deposition_time_yr_cm", "float", "yr/cm", "median deposition time")), required=("depth_cm", "age_median", "age_q025", "age_q975")),
+        _c("deposition_time_yr_cm", "float", "yr/cm", "median deposition time"),
+        _c("hiatus_gap_yr", "float", "yr", "median age gap of a hiatus just below this depth (else empty)")), required=("depth_cm", "age_median", "age_q025", "age_q975")),
     OutputTable("age_ensemble", "<core>/age_ensemble.parquet", "age of every member at each depth", (
         _c("depth_cm", "float", "cm", "composite depth"),), (_MEMBERS,), required=("depth_cm",)),
     OutputTable("dates", "<core>/dates.parquet",
@@ -212,6 +213,15 @@ TABLES: dict[str, OutputTable] = {t.key: t for t in (
                 "calibrated density of each date (before the age model), thinned for plotting", (
         _c("label", "string", "", "date label"), _AGE,
         _c("density", "float", "1/yr", "probability density")), required=("label", "age_cal_bp", "density")),
+    OutputTable("hyperparameters", "<core>/hyperparameters.parquet",
+                "accumulation models: posterior weight of every hyper-parameter point (empty for the "
+                "interpolation model)", (
+        _c("model", "string", "", "memory | accumulation"),
+        _c("mean_rate_yr_cm", "float", "yr/cm", "mean accumulation rate (deposition time)"),
+        _c("rate_variability", "float", "", "coefficient of variation of the rate"),
+        _c("rate_memory", "float", "", "persistence of the rate class over reference_depth_cm (0: none)"),
+        _c("log_evidence", "float", "", "exact log marginal likelihood of the dates"),
+        _c("weight", "float", "", "posterior weight (sums to 1)")), required=("mean_rate_yr_cm", "weight")),
     OutputTable("calibration", "<core>/calibration.parquet", "skill per proxy and period", (
         _c("proxy", "string", "", "proxy column"), _VARIABLE,
         _c("units", "string", "", "units of the variable"),
@@ -308,15 +318,44 @@ TABLES: dict[str, OutputTable] = {t.key: t for t in (
           for s in _SUMMARY_STAT),
         _c("probability", "float", "", "share of members showing the event"),
         _c("p_value", "float", "", "red-noise p-value"),
-        _c("significant", "bool", "", "significant after multiple-testing control"),
+        _c("significant", "bool", "", "p_value below alpha and amplitude 95 % range excluding zero"),
         _c("n_members", "number", "", "members showing the event"),
-        _c("tau_yr", "float", "yr", "AR(1) persistence time")), required=("event_id", "variable", "onset_median", "onset_q025", "onset_q975")),
+        _c("tau_yr", "float", "yr", "AR(1) persistence time"),
+        _c("note", "string", "", "why an event below alpha is not called significant (empty otherwise)")), required=("event_id", "variable", "onset_median", "onset_q025", "onset_q975")),
     OutputTable("event_probability", "<core>/event_probability.parquet", "event probability through time", (
         _AGE, _VARIABLE, _c("probability", "float", "", "share of members with an event onset here")), required=("age_cal_bp", "variable", "probability")),
     OutputTable("event_onsets", "<core>/event_onsets.parquet", "onset of each event in each member", (
         _c("event_id", "string", "", "event id"),
         _c("member", "int", "", "member index"),
-        _c("onset_cal_bp", "float", "cal BP", "onset age in that member")), required=("event_id", "member", "onset_cal_bp")),
+        _c("onset_cal_bp", "float", "cal BP", "onset age in that member"),
+        _c("amplitude", "float", "variable units", "change in that member (ramp fit)"),
+        _c("detected", "bool", "", "the member detects the event (else: its fitted change at the event's place)")), required=("event_id", "member", "onset_cal_bp")),
+    OutputTable("archive_events", "archive_events.parquet",
+                "every core's events with archive-wide false discovery rate control", (
+        _c("core_id", "string", "", "core id"),
+        _c("event_id", "string", "", "event id (within its core)"), _VARIABLE,
+        _c("kind", "string", "", "shift | excursion"),
+        _c("direction", "string", "", "positive | negative"),
+        *(_c(f"{q}_{s}", "float", "variable units" if q == "amplitude" else "cal BP", f"{s} of the event's {q} over members")
+          for q in ("onset", "amplitude") for s in _SUMMARY_STAT),
+        _c("probability", "float", "", "share of members showing the event"),
+        _c("p_value", "float", "", "red-noise p-value of the event (its own series)"),
+        _c("q_value", "float", "", "Benjamini-Hochberg adjusted p-value over all events of the run"),
+        _c("significant", "bool", "", "p_value below alpha and amplitude 95 % range excluding zero"),
+        _c("survives_fdr", "bool", "", "significant and q_value at most alpha"),
+        _c("note", "string", "", "why an event below alpha is not called significant")),
+        required=("core_id", "event_id", "variable", "p_value", "q_value", "survives_fdr")),
+    OutputTable("lead_lag", "lead_lag.parquet", "lead/lag of events found in several cores", (
+        _c("core_a", "string", "", "first core"), _c("event_a", "string", "", "its event"),
+        _c("core_b", "string", "", "second core"), _c("event_b", "string", "", "its event"), _VARIABLE,
+        _c("kind", "string", "", "shift | excursion"), _c("direction", "string", "", "positive | negative"),
+        _c("lag_median_yr", "float", "yr", "median of onset_a - onset_b over member pairs (positive: a leads)"),
+        _c("lag_q025_yr", "float", "yr", "2.5 % quantile of the lag"),
+        _c("lag_q975_yr", "float", "yr", "97.5 % quantile of the lag"),
+        _c("probability_a_leads", "float", "", "probability that core a's onset is older"),
+        _c("n_members_a", "number", "", "member onsets of core a"),
+        _c("n_members_b", "number", "", "member onsets of core b")),
+        required=("core_a", "core_b", "lag_median_yr", "lag_q025_yr", "lag_q975_yr", "probability_a_leads")),
 )}
 
 #: the per-core tables, in the order a core's stages write them

@@ -125,14 +125,16 @@ def test_gamma_process_kernels_add_up():
 
 
 def test_node_placement():
-    nodes, gap = place_nodes(0.0, 20.0, 5.0, [3.0, 7.5, 7.5], [12.0])
-    np.testing.assert_array_equal(nodes, [0, 3, 5, 7.5, 10, 12, 12, 15, 20])
+    nodes, gap = place_nodes(0.0, 20.0, 5.0, [3.0, 7.5, 7.5, 16.0], [12.0])
+    # the ladder node at 15 cm gives way to the date at 16 cm (closer than 5/3 cm)
+    np.testing.assert_array_equal(nodes, [0, 3, 5, 7.5, 10, 12, 12, 16, 20])
     assert list(np.flatnonzero(gap)) == [5]
 
 
 def test_quantiles_agree_with_emcee():
     """Continuous model sampled by emcee vs our 1-yr grid: node-age quantiles within 4 yr."""
-    emcee = pytest.importorskip("emcee")
+    import emcee
+
     nodes = np.array([0.0, 10.0, 20.0, 30.0])
     dates = np.array([[40.0, 15.0], [190.0, 25.0], [260.0, 30.0]])  # age, sd at nodes 0, 2, 3
     date_node = np.array([0, 2, 3])
@@ -314,14 +316,14 @@ def test_stage_reports_bad_curves_with_rows():
 
 def test_settings_from_mapping():
     settings = ChronologySettings.from_mapping({"model": "interpolation", "join": "smooth", "grid_step_yr": "auto",
-                                                "rate_shapes": [2, 4], "outlier_prior": 0})
-    assert settings.model == "interpolation" and settings.rate_shapes == (2.0, 4.0)
+                                                "rate_variability": [0.5, 1], "outlier_prior": 0})
+    assert settings.model == "interpolation" and settings.rate_variability == (0.5, 1.0)
     assert settings.grid_step_yr is None and settings.outlier_prior == 0.0
     with pytest.raises(InputError) as caught:
         ChronologySettings.from_mapping({"model": "magic", "node_spacing_cm": -1, "bogus": 1,
-                                         "student_t": "yes", "rate_multipliers": []}, where="run.toml [chronology]")
+                                         "student_t": "yes", "mean_rate_factors": []}, where="run.toml [chronology]")
     columns = {p.column for p in caught.value.problems}
-    assert columns == {"model", "node_spacing_cm", "bogus", "student_t", "rate_multipliers"}
+    assert columns == {"model", "node_spacing_cm", "bogus", "student_t", "mean_rate_factors"}
     assert all(p.file == "run.toml [chronology]" for p in caught.value.problems)
 
 

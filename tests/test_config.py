@@ -12,7 +12,8 @@ from pipelines.config import RunConfig, check_run_config, load_run_config, stage
 from proxies.problems import InputError, Problem
 
 DATA = Path(__file__).parent / "data"
-CURVE = "0, 200, 10, 0, 1\n1000, 1100, 12, 0, 1\n"
+# a straight invented curve covering the good core's dates (0-30 000 cal BP)
+CURVE = "".join(f"{cal}, {cal * 0.9 + 50:.0f}, 15, 0, 1\n" for cal in range(0, 30001, 50))
 
 
 def make_project(tmp_path: Path, run: str = 'seed = 7\ncores = ["cores/*"]', extra: str = "") -> Path:

@@ -120,10 +120,23 @@ def test_time_coordinate_decodes_to_the_right_calendar_year(exported):
         assert raw["time"].attrs["units"].startswith("days since 1950-01-01")
 
 
+def test_plain_open_dataset_decodes_the_time_axis(exported):
+    """As the README shows it: ``xarray.open_dataset(path)`` with no engine and no options
+    (whatever backend is installed) opens the file and decodes its 365-day time axis through
+    cftime, a declared dependency (issue 10: this failed on a fresh machine)."""
+    run, _ = exported
+    with xr.open_dataset(run / "reconstructions.nc") as ds:
+        decoded = ds["time"].values
+        ages = ds["age"].values
+    assert isinstance(decoded[0], cftime.DatetimeNoLeap)
+    assert [when.year for when in decoded] == [int(np.floor(1950.0 - age)) for age in ages]
+
+
 def test_netcdf_readable_by_the_netcdf_c_library(exported):
     """An independent reader (netCDF4-python over netCDF-C) sees the same variables,
     dimensions and units."""
-    netCDF4 = pytest.importorskip("netCDF4")
+    import netCDF4
+
     run, _ = exported
     with netCDF4.Dataset(run / "reconstructions.nc") as nc:
         assert nc.Conventions == "CF-1.8"

@@ -21,7 +21,7 @@ from pipelines.runfolder import RunFolderError, read_parquet
 pytestmark = pytest.mark.usefixtures("prefect_harness")
 
 CORE_FILES = {"chronology.parquet", "age_ensemble.parquet", "dates.parquet", "date_ranges.parquet",
-              "date_densities.parquet", "calibration.parquet",
+              "date_densities.parquet", "hyperparameters.parquet", "calibration.parquet",
               "calibrated_samples.parquet", "calibration_diagnostics.parquet",
               "reconstruction.parquet", "reconstruction_ensemble.parquet", "events.parquet",
               "event_probability.parquet", "event_onsets.parquet", "samples_dated.parquet", "log.txt"}

@@ -416,10 +416,26 @@ def archive_flow(plan: RunPlan, run_dir: str, cache_dir: str, recompute: bool = 
             notes.append(result["skipped"])
         else:
             stack = result
+    archive_events = _archive_events(plan, tracks, store, recompute, notes)
     timings = [{"core_id": t.name, "stage": s, "seconds": t.seconds[s], "reused": t.cached.get(s, False)}
                for t in tracks for s in (*CORE_STAGES, "samples") if s in t.seconds]
     return {"cores": [t.row() for t in tracks], "timings": timings, "training": driver.training,
-            "stack": stack, "notes": notes, "known_hashes": driver.known_hashes}
+            "stack": stack, "archive_events": archive_events, "notes": notes,
+            "known_hashes": driver.known_hashes}
+
+
+def _archive_events(plan: RunPlan, tracks, store: WorkStore, recompute: bool, notes: list[str]) -> dict | None:
+    """The run-level events tables (inline: light work on small tables)."""
+    events = {t.name: t.entries["events"] for t in tracks if "events" in t.entries}
+    if not events:
+        return None
+    try:
+        return stages.run_archive_events(plan, events, store, recompute)
+    except stages.StageSkipped as skipped:
+        notes.append(str(skipped))
+    except Exception as error:  # noqa: BLE001 - the per-core outputs stay valid
+        notes.append(f"archive events failed: {stages.problem_text(error)}")
+    return None
 
 
 @flow(name="downcore-core", validate_parameters=False, persist_result=False, log_prints=False)

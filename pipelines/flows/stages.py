@@ -30,7 +30,7 @@ from proxies.problems import InputError
 from proxies.seeding import rng_for
 
 __all__ = ["StageSkipped", "NotCached", "probe", "run_ingest", "run_training", "run_chronology", "run_calibration",
-           "run_reconstruction", "run_events", "run_stack", "pin_blas_threads", "write_tables"]
+           "run_reconstruction", "run_events", "run_archive_events", "run_stack", "pin_blas_threads", "write_tables"]
 
 
 class StageSkipped(Exception):
@@ -240,7 +240,8 @@ def run_chronology(plan: RunPlan, ingest: dict, store: WorkStore, recompute: boo
         members.insert(0, "depth_cm", np.asarray(result.depth_cm, dtype=float))
         files = write_tables(staged, {"chronology": result.summary, "age_ensemble": members,
                                       "dates": result.dates, "date_ranges": result.date_ranges,
-                                      "date_densities": result.date_densities})
+                                      "date_densities": result.date_densities,
+                                      "hyperparameters": result.hyperparameters})
         return {"files": {"result": save_object(staged, result), **files},
                 "warnings": _unique(caught + list(result.warnings))}
 
@@ -347,6 +348,28 @@ def run_events(plan: RunPlan, reconstruction: dict, store: WorkStore, recompute:
                 "warnings": _unique(caught + list(result.warnings))}
 
     return _cached_or_build(store, "events", key, produce, {"core_id": core_id}, recompute)
+
+
+# --- run-level events: archive-wide FDR and lead/lag ------------------------------------------
+
+def run_archive_events(plan: RunPlan, events: dict[str, dict], store: WorkStore,
+                       recompute: bool = False) -> dict:
+    """All cores' events with Benjamini-Hochberg q-values (``archive_events.parquet``) and
+    the lead/lag of events found in several cores (``lead_lag.parquet``)."""
+    usable = {cid: e for cid, e in sorted(events.items()) if e.get("paths")}
+    if not usable:
+        raise StageSkipped("archive events skipped: no core has events")
+    key = content_key("archive_events", plan.fingerprint, {cid: e["key"] for cid, e in usable.items()},
+                      plan.settings_key("events"))
+
+    def produce(staged: pathlib.Path) -> dict:
+        from proxies.events.archive_events import run_event_tables
+
+        results = {cid: load_object(e) for cid, e in usable.items()}
+        archive, lead_lag = run_event_tables(results, plan.settings["events"])
+        return {"files": write_tables(staged, {"archive_events": archive, "lead_lag": lead_lag})}
+
+    return _cached_or_build(store, "archive_events", key, produce, {"core_id": None}, recompute)
 
 
 # --- regional stack ---------------------------------------------------------------------------

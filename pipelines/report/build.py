@@ -16,7 +16,7 @@ from pipelines.report import html as H
 from pipelines.report import style
 from pipelines.report.figures_calibration import (analogue_figure, cv_scatter_figure,
                                                   cv_statistics, training_sets_of)
-from pipelines.report.figures_chronology import (age_depth_figure, deposition_time_figure,
+from pipelines.report.figures_chronology import (age_depth_figure, deposition_time_figure, hyperparameter_figure,
                                                  outlier_figure)
 from pipelines.report.figures_events import event_figure, event_variables
 from pipelines.report.figures_reconstruction import reconstruction_figure, stack_figure
@@ -136,13 +136,19 @@ def _chronology_part(core: CoreData, figs: _Figures) -> str:
                  "Median age (solid line) with its 68 % and 95 % ranges and a few ensemble "
                  "members; each date is drawn as its calibrated probability density above its "
                  "depth (or as its 95 % HPD range when densities were not stored). Hatched "
-                 "dashed dates are more likely outliers than not; dotted dates were excluded."),
+                 "dashed dates are more likely outliers than not; dotted dates were excluded; a "
+                 "dash-dot line marks a hiatus with its median gap."),
         figs.add(lambda: deposition_time_figure(core), f"{cid}_deposition_time", "Deposition time",
                  "Years per centimetre between neighbouring depths, over the age ensemble "
                  "(median and 68 %/95 % ranges); the dashed line is the slope of the median "
-                 "age."),
+                 "age. The interval across a hiatus is left out (dash-dot line: its gap is "
+                 "written beside it), so its spike does not flatten the rest."),
         figs.add(lambda: outlier_figure(core), f"{cid}_outliers", "Date outlier probability",
                  "Posterior probability that each date is an outlier, in depth order."),
+        figs.add(lambda: hyperparameter_figure(core), f"{cid}_accumulation_prior", "Accumulation prior",
+                 "Posterior weight of each value of the accumulation model's hyper-parameters (mean "
+                 "deposition time, rate variability and, with memory, the persistence of the rate), "
+                 "from their exact evidence."),
     ]
     body = "".join(parts)
     if not body:

@@ -441,6 +441,9 @@ def place_nodes(top_cm: float, bottom_cm: float, spacing_cm: float, date_depths_
                 hiatus_depths_cm=()) -> tuple[np.ndarray, np.ndarray]:
     """Node depths: a regular ladder plus every date depth, and each hiatus twice.
 
+    Ladder nodes closer than a third of the spacing to a date depth are left out (the date's
+    node takes their place), so dates do not split intervals into slivers.
+
     Parameters
     ----------
     top_cm, bottom_cm : float
@@ -462,8 +465,12 @@ def place_nodes(top_cm: float, bottom_cm: float, spacing_cm: float, date_depths_
         raise ValueError(f"node spacing must be positive, got {spacing_cm}")
     ladder = np.arange(top_cm, bottom_cm + spacing_cm * 0.999, spacing_cm)
     hiatus = np.asarray(sorted(h for h in hiatus_depths_cm if top_cm < h < bottom_cm), dtype=float)
-    depths = np.unique(np.concatenate([ladder, [top_cm, bottom_cm], np.asarray(date_depths_cm, dtype=float),
-                                       hiatus]))
+    dated = np.unique(np.asarray(date_depths_cm, dtype=float))
+    if dated.size:
+        # a ladder node within a third of the spacing of a date gives way to the date's node
+        nearest = np.min(np.abs(ladder[:, None] - dated[None, :]), axis=1)
+        ladder = ladder[nearest >= spacing_cm / 3]
+    depths = np.unique(np.concatenate([ladder, [top_cm, bottom_cm], dated, hiatus]))
     # merge nodes closer than 1e-6 cm
     depths = depths[np.concatenate([[True], np.diff(depths) > 1e-6])]
     depths = np.sort(np.concatenate([depths, hiatus]))

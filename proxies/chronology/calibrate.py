@@ -276,7 +276,9 @@ def calibrate_radiocarbon(ages, errors, curve: CalibrationCurve, reservoir_offse
     errors : array_like, shape (n,)
         1-sigma errors [14C yr], > 0.
     curve : CalibrationCurve
-        A curve on a regular grid (see :meth:`CalibrationCurve.on_grid`).
+        A curve as read from its file; one with uneven calendar steps is first interpolated
+        onto a regular 1-yr grid (:meth:`CalibrationCurve.on_grid`; call it yourself for
+        another step).
     reservoir_offset, reservoir_error : array_like or float
         Reservoir offset dR and its 1-sigma error [14C yr] per date (common practice:
         R - dR, sigma^2 + e^2).
@@ -298,8 +300,8 @@ def calibrate_radiocarbon(ages, errors, curve: CalibrationCurve, reservoir_offse
         If an age (after the reservoir correction) is more than 4 sigma outside the
         radiocarbon range of the curve.
     """
-    if not curve.is_regular:
-        raise ValueError(f"curve {curve.name!r} is not on a regular grid; use curve.on_grid(step)")
+    if not curve.is_regular:  # a curve as read from its file: put it on the 1-yr grid first
+        curve = curve.on_grid(1.0)
     ages = np.atleast_1d(np.asarray(ages, dtype=float))
     n = ages.size
     errors = np.broadcast_to(np.asarray(errors, dtype=float), (n,))

@@ -16,7 +16,6 @@ import numpy as np
 import pandas as pd
 from scipy import stats
 
-from proxies.chronology.accumulation import AccumulationProblem, fit_accumulation, place_nodes
 from proxies.chronology.calibrate import (
     CalibratedDates,
     CurveRangeError,
@@ -25,9 +24,11 @@ from proxies.chronology.calibrate import (
     stack_calibrated,
 )
 from proxies.chronology.curves import CalibrationCurve
-from proxies.chronology.interpolation import fit_interpolation
-from proxies.chronology.outliers import outlier_density
+from proxies.chronology.model_runs import HYPERPARAMETER_COLUMNS, run_accumulation, run_interpolation
 from proxies.chronology.settings import ChronologySettings
+from proxies.cores.datability import (age_control_problems, event_layer_problems, grid_memory_problems,
+                                      machine_memory_bytes)
+from proxies.cores.validation import resolve_curve_name
 from proxies.problems import InputError, Problem
 
 __all__ = ["ChronologyResult", "build_chronology", "calibrate_core_dates", "date_density_table", "date_range_table", "format_ranges",
@@ -37,7 +38,6 @@ __all__ = ["ChronologyResult", "build_chronology", "calibrate_core_dates", "date
 CORE_TOP_LABEL = "core top"
 #: HPD levels reported for every date (common practice: 68.3 % and 95.4 %)
 HPD_LEVELS = (0.683, 0.954)
-_NICE_STEPS = (1, 2, 5, 10, 20, 50, 100)
 
 
 @dataclass(frozen=True, eq=False)
@@ -63,7 +63,8 @@ class ChronologyResult:
     model : str
         Model used.
     hyperparameters : pandas.DataFrame
-        Accumulation model: mean_rate_yr_cm, shape, log_evidence, weight per grid point.
+        Accumulation models: model, mean_rate_yr_cm, rate_variability, rate_memory,
+        log_evidence, weight per hyper-parameter point (``hyperparameters.parquet``).
     date_densities : pandas.DataFrame
         ``date_densities.parquet``: label, age_cal_bp, density [1/yr] of each calibrated date
         (before the age model), thinned for plotting (see :func:`date_density_table`).
@@ -117,18 +118,13 @@ def _event_free(depth_scale, depth: np.ndarray) -> np.ndarray:
 
 
 def _curve_name(cell, settings: ChronologySettings, curves: dict) -> str | None:
-    if cell is not None and not (isinstance(cell, float) and math.isnan(cell)) and str(cell).strip():
-        return str(cell).strip()
-    if settings.default_curve:
-        return settings.default_curve
-    if len(curves) == 1:
-        return next(iter(curves))
-    if "atmosphere" in curves:
-        return "atmosphere"
-    return None
+    return resolve_curve_name(cell, settings.default_curve, curves)
 
 
 def _dates_file(core) -> str:
+    files = getattr(core, "files", None) or {}
+    if "dates" in files:
+        return files["dates"]
     folder = getattr(core, "folder", "") or ""
     return f"{folder}/dates" if folder else f"dates of core {getattr(core, 'id', '?')}"
 
@@ -263,14 +259,6 @@ def mean_rate_from_dates(depth_cm, median_cal_bp) -> float | None:
     return float(slope) if np.isfinite(slope) and slope > 0 else None
 
 
-def _nice_step(span: float) -> float:
-    raw = span / 4000.0
-    for step in _NICE_STEPS:
-        if raw <= step:
-            return float(step)
-    return float(math.ceil(raw / 100.0) * 100)
-
-
 def build_chronology(core, curves: dict[str, CalibrationCurve], settings: ChronologySettings,
                      ensemble: int, rng: np.random.Generator) -> ChronologyResult:
     """Calibrate a core's dates and build its age-depth ensemble.
@@ -293,6 +281,10 @@ def build_chronology(core, curves: dict[str, CalibrationCurve], settings: Chrono
     """
     if ensemble < 1:
         raise ValueError(f"ensemble must be >= 1, got {ensemble}")
+    refused = (age_control_problems(core, top_is_surface(core, settings)) + event_layer_problems(core)
+               + grid_memory_problems(core, settings, None, ensemble, machine_memory_bytes(), "run config"))
+    if refused:
+        raise InputError(refused)
     messages: list[str] = []
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
@@ -316,17 +308,21 @@ def build_chronology(core, curves: dict[str, CalibrationCurve], settings: Chrono
         messages.append("mean accumulation rate could not be estimated from the dates; 10 yr/cm assumed")
     top, bottom = float(min(free_out.min(), z.min())), float(max(free_out.max(), z.max()))
     outlier = np.full(len(table), np.nan)
-    hyper = pd.DataFrame()
-    if settings.model == "accumulation":
-        nodes, paths, outlier_used, hyper = _run_accumulation(
-            table, calibrated, use, z, hiatuses, top, bottom, centre, core, settings, ensemble, rng)
+    hyper = pd.DataFrame({c: pd.Series(dtype="string" if c == "model" else float) for c in HYPERPARAMETER_COLUMNS})
+    priors = outlier_priors(table, settings)
+    if settings.model in ("memory", "accumulation"):
+        pinned = table["constraint"].to_numpy(bool) & use & (table["kind"].astype(str).str.lower() == "calendar")
+        constraints = [(z[i], float(table.at[i, "age"]), float(table.at[i, "error"])) for i in np.flatnonzero(pinned)]
+        nodes, paths, outlier_used, hyper = run_accumulation(
+            calibrated, use, z, priors, hiatuses, top, bottom, centre, core, settings, ensemble, rng, constraints)
     else:
-        nodes, paths, outlier_used = _run_interpolation(
-            calibrated, use, z, hiatuses, free_out, centre, settings, ensemble, rng,
-            outlier_priors(table, settings))
+        nodes, paths, outlier_used = run_interpolation(
+            calibrated, use, z, priors, hiatuses, free_out, centre, settings, ensemble, rng)
     outlier[use] = outlier_used
     result_ensemble = interpolate_nodes(nodes, paths, free_out)
     summary = _summary(out_depth, free_out, result_ensemble)
+    summary["hiatus_gap_yr"] = _hiatus_gaps(out_depth, getattr(core, "hiatuses_cm", ()) or (), depth_scale,
+                                            nodes, paths)
     dates = _dates_table(table, calibrated, medians, outlier, interpolate_nodes(nodes, paths, z))
     for label, p in zip(dates["label"], dates["outlier_prob"]):
         if np.isfinite(p) and p > 0.5:
@@ -411,63 +407,17 @@ def _output_depths(core, table: pd.DataFrame, settings: ChronologySettings) -> n
     return depth
 
 
-def _run_accumulation(table, calibrated: CalibratedDates, use, z, hiatuses, top, bottom, centre, core,
-                      settings: ChronologySettings, ensemble: int, rng):
-    spacing = max(settings.node_spacing_cm, (bottom - top) / settings.max_nodes)
-    inside = tuple(h for h in hiatuses if top < h < bottom)
-    nodes, gap_after = place_nodes(top, bottom, spacing, z[use], inside)
-    rates = centre * np.asarray(settings.rate_multipliers)
-    used = calibrated.take(np.flatnonzero(use))
-    lows, highs = used.quantile(0.0005), used.quantile(0.9995)
-    z_used = z[use]
-    young = float(lows.min() - max(0.0, z_used.min() - top) * rates.max() * 3 - 100)
-    top_age = getattr(core, "top_age_cal_bp", None)
-    if top_age is not None:
-        error = core.top_age_error or settings.top_age_error_yr
-        # a core cannot be younger than its collection year: the grid starts there
-        young = float(min(lows.min(), top_age - 4 * error))
-    old = float(highs.max() + max(0.0, bottom - z_used.max()) * rates.max() * 3
-                + len(inside) * settings.hiatus_gap_yr * 10 + 2 * spacing * rates.max() + 100)
-    step = settings.grid_step_yr or _nice_step(old - young)
-    size = int(math.ceil((old - young) / step)) + 1
-    if size > 20000:
-        step = _nice_step((old - young) * 2000 / 20000)
-        size = int(math.ceil((old - young) / step)) + 1
-    origin = math.floor(young / step) * step
-    mass = used.on_grid(origin, step, size)
-    node_of = np.searchsorted(nodes, z_used - 1e-6, side="left")
-    prior = outlier_priors(table, settings)[use]
-    broad = outlier_density(used, origin, step, size, *settings.outlier_shift_scale)
-    problem = AccumulationProblem(nodes, gap_after, node_of, mass, prior, float(origin), float(step),
-                                  float(settings.node_spacing_cm), outlier_mass=broad)
-    mult, shape = np.meshgrid(rates, np.asarray(settings.rate_shapes), indexing="ij")
-    fit = fit_accumulation(problem, mult.ravel(), shape.ravel(), settings.hiatus_gap_yr, ensemble, rng)
-    hyper = pd.DataFrame({"mean_rate_yr_cm": fit.mean_rates, "shape": fit.shapes,
-                          "log_evidence": fit.log_evidence, "weight": fit.weights})
-    return nodes, fit.paths, fit.outlier_posterior, hyper
-
-
-def _run_interpolation(calibrated: CalibratedDates, use, z, hiatuses, free_out, centre,
-                       settings: ChronologySettings, ensemble: int, rng, priors: np.ndarray):
-    index = np.flatnonzero(use)
-    index = index[np.argsort(z[index], kind="stable")]
-    chosen = calibrated.take(index)
-    depths = z[index]
-    prior = priors[index]
-    edges = sorted(h for h in hiatuses)
-    ladder = np.unique(np.concatenate([free_out, depths]))
-    nodes = np.sort(np.concatenate([ladder, [h for h in edges if ladder[0] < h < ladder[-1]]]))
-    # the second copy of a hiatus depth belongs to the section below it
-    query = nodes.copy()
-    for h in edges:
-        copies = np.flatnonzero(nodes == h)
-        if copies.size == 2:
-            query[copies[1]] = h + 1e-9
-    fit = fit_interpolation(depths, lambda size: chosen.sample(size, rng), query, edges, prior, ensemble, rng,
-                            smooth=settings.join == "smooth", fallback_rate=centre)
-    outlier = np.full(z.size, np.nan)
-    outlier[index] = fit.outlier_posterior
-    return nodes, fit.paths, outlier[use]
+def _hiatus_gaps(out_depth, hiatuses_cm, depth_scale, nodes, paths) -> np.ndarray:
+    """Median age jump across each hiatus [yr], at the output depth just above it (else NaN)."""
+    gaps = np.full(out_depth.size, np.nan)
+    for h in hiatuses_cm:
+        if not out_depth[0] <= h <= out_depth[-1]:
+            continue
+        free = _event_free(depth_scale, np.array([h, h + 1e-6]))
+        above, below = interpolate_nodes(nodes, paths, free)
+        row = int(np.searchsorted(out_depth, h + 1e-9, side="right")) - 1
+        gaps[row] = float(np.median(below - above))
+    return gaps
 
 
 def _summary(depth_cm, free, ensemble) -> pd.DataFrame:
