@@ -204,6 +204,13 @@ def folder_for_file(project: Path, core: Path) -> None:
     (core / "samples.csv" / "README.txt").write_text("a folder, not the table")
 
 
+def second_core_with_id(core_id: str):
+    def change(project: Path, core: Path) -> None:
+        other = shutil.copytree(core, project / "cores" / "OTHER")
+        (other / "core.toml").write_text((other / "core.toml").read_text().replace('"GOOD-1"', f'"{core_id}"'))
+    return change
+
+
 def curve_file(text: str):
     def change(project: Path, core: Path) -> None:
         (project / "curves" / "atm.14c").write_text(text)
@@ -357,6 +364,8 @@ CASES += [
     Case("id a Windows device name", toml('id = "GOOD-1"', 'id = "Con"'), "core.toml", None, "core.id", "Windows"),
     Case("id a run folder entry", toml('id = "GOOD-1"', 'id = "figures"'), "core.toml", None, "core.id",
          "run folder"),
+    Case("two cores with one id", second_core_with_id("GOOD-1"), "core.toml", None, "core.id", "also used by"),
+    Case("ids differing in case only", second_core_with_id("good-1"), "core.toml", None, "core.id", "upper/lower"),
     Case("id not text", toml('id = "GOOD-1"', "id = 12"), "core.toml", None, "core.id", "must be text"),
     Case("archive capitalised", toml('archive = "lake"', 'archive = "Lake"'), "core.toml", None, "core.archive",
          "unknown archive"),
