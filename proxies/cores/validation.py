@@ -33,6 +33,7 @@ from proxies.cores.cells import BadCell, cell_to_float, cell_to_text, parse_bool
 from proxies.cores.core_file import (  # noqa: F401 (re-exported names of the core.toml rules)
     ARCHIVES, CORE_KEYS, DEPTH_UNITS, FILE_KEYS, ID_PATTERN, TOP_LEVEL_KEYS, CoreSpec, check_core_mapping, current_year)
 from proxies.cores.model import ERROR_SUFFIX, Section
+from proxies.chronology.curve_cells import BLEND_PREFIX, curve_cell_problem
 from proxies.problems import Problem
 from proxies.settings_spec import did_you_mean
 
@@ -56,7 +57,8 @@ __all__ = [
 DATE_KINDS = ("radiocarbon", "calendar")
 #: columns kept as text in samples and counts (every other column must be numeric)
 TEXT_COLUMNS = frozenset({"label", "sample_id", "sample", "lab_id", "note", "notes", "comment", "comments"})
-RADIOCARBON_MIN_14C_YR = -1000.0
+#: post-bomb ages (F14C up to ~3.5) are accepted; they need a post-bomb curve in [curves]
+RADIOCARBON_MIN_14C_YR = -10000.0
 RADIOCARBON_MAX_14C_YR = 55000.0
 #: oldest accepted calendar age [cal BP] (10 Myr: far beyond any core this program dates)
 CALENDAR_MAX_CAL_BP = 10_000_000.0
@@ -456,6 +458,10 @@ def check_curve_names(dates: pd.DataFrame, file: str, known: set[str] | dict,
             fix = ("add a calibration curve to [curves]" if not names else
                    "fill in the curve cell, or set [chronology] default_curve")
             problems.append(Problem(file, message, fix, row=int(row), column="curve"))
+        elif curve.lower().startswith(BLEND_PREFIX):
+            found = curve_cell_problem(curve, known)
+            if found is not None:
+                problems.append(Problem(file, found[0], found[1], row=int(row), column="curve"))
         elif curve not in known:
             hint = did_you_mean(curve, names)
             source = "[chronology] default_curve" if cell_to_text(cell) is None else "the curve cell"
