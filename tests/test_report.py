@@ -19,6 +19,7 @@ from pipelines.report.figures_calibration import analogue_figure, cv_statistics
 from pipelines.report.figures_chronology import (OUTLIER_LINE, deposition_time_figure,
                                                  age_depth_figure, outlier_figure)
 from pipelines.report.figures_events import event_figure
+from pipelines.report.style import without_embedded_pictures
 from pipelines.report.figures_reconstruction import band_pairs, reconstruction_figure
 from pipelines.report.rundata import (_warning_list, hpd_ranges_of, read_run,
                                       reconstruction_series)
@@ -48,12 +49,14 @@ def test_report_has_figures_and_no_outside_reference(report_text):
     the figure files."""
     assert report_text.count('<figure class="plot"') >= 4
     assert report_text.count("<svg") == report_text.count('<figure class="plot"')
-    lowered = report_text.lower()
-    assert "http" not in lowered and "//" not in report_text
+    text = without_embedded_pictures(report_text)
+    lowered = text.lower()
+    assert "http" not in lowered and "//" not in text
     assert " src=" not in lowered and "url(" not in re.sub(r"url\(#[^)]+\)", "", lowered)
     assert "<script" not in lowered and "<link" not in lowered
-    for href in re.findall(r'href="([^"]*)"', report_text):
-        assert href.startswith("#") or re.fullmatch(r"figures/[\w.-]+\.(png|svg)", href), href
+    for href in re.findall(r'href="([^"]*)"', text):
+        assert (href.startswith("#") or href == "data:image/png;base64,"
+                or re.fullmatch(r"figures/[\w.-]+\.(png|svg)", href)), href
 
 
 def test_report_ids_are_unique_and_internal_links_resolve(report_text):
@@ -73,18 +76,29 @@ def test_summary_lists_every_core_and_the_failure_reason(report_text):
     assert "failed" in report_text and "No results were written for this core." in report_text
 
 
-def test_figures_saved_as_png_and_svg(run_dir, report_text):
-    """Every linked figure exists as a PNG (signature) and a well-formed SVG with a viewBox."""
+def test_figures_saved_as_svg_and_png_on_request(run_dir, report_text, tmp_path):
+    """Every linked figure exists as a well-formed SVG with a viewBox, drawn once (no PNG by
+    default); with ``png=True`` every figure also has a PNG copy (signature checked)."""
     links = re.findall(r'href="(figures/[^"]+)"', report_text)
-    assert links and len(links) % 2 == 0
+    assert links and all(link.endswith(".svg") for link in links)
+    assert not list((run_dir / "figures").glob("*.png"))
     for link in links:
-        path = run_dir / link
-        assert path.is_file(), link
-        if link.endswith(".png"):
-            assert path.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
-        else:
-            root = ET.fromstring(path.read_bytes())
-            assert root.tag.endswith("svg") and root.get("viewBox")
+        root = ET.fromstring((run_dir / link).read_bytes())
+        assert root.tag.endswith("svg") and root.get("viewBox")
+    copy = make_run_folder(tmp_path / "run-png")
+    text = write_run_report(copy, png=True).read_text(encoding="utf-8")
+    pngs = re.findall(r'href="(figures/[^"]+\.png)"', text)
+    assert len(pngs) == len(links)
+    for link in pngs:
+        assert (copy / link).read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+
+
+def test_dense_ensemble_lines_are_rasterised_inside_the_svg(run_dir, report_text):
+    """The age-depth figure's ensemble members are one embedded picture, not one vector path
+    per member, and text stays text (the figures stay light)."""
+    svg = next((run_dir / "figures").glob("*_age_depth.svg")).read_text(encoding="utf-8")
+    assert "<image" in svg and "data:image/png;base64" in svg
+    assert "<text" in svg
 
 
 def test_rerun_is_byte_identical(run_dir, report_text):

@@ -1,8 +1,10 @@
 """Write a run's HTML report and its figures from the files in the run folder.
 
 ``write_run_report(run_dir)`` reads the run folder (never the inputs), draws every figure
-the tables allow (PNG and SVG under ``figures/``), and writes ``report.html`` atomically. It
+the tables allow (SVG under ``figures/``), and writes ``report.html`` atomically. It
 can be called again on a finished run (``downcore report RUN``) and gives the same bytes.
+Each figure is drawn once, as SVG; PNG copies are drawn on request (``png=True``,
+``downcore report RUN --png``).
 """
 
 from __future__ import annotations
@@ -32,8 +34,9 @@ REPORT_NAME = "report.html"
 class _Figures:
     """Numbers, saves and renders the figures of one report."""
 
-    def __init__(self, run_dir: pathlib.Path):
+    def __init__(self, run_dir: pathlib.Path, png: bool = False):
         self.run_dir = run_dir
+        self.png = png
         self.count = 0
         self.written: set[str] = set()
 
@@ -41,8 +44,8 @@ class _Figures:
         fig = make()
         if fig is None:
             return ""
-        saved = style.save_figure(fig, self.run_dir, key, title, caption)
-        self.written.update({pathlib.Path(saved.png).name, pathlib.Path(saved.svg).name})
+        saved = style.save_figure(fig, self.run_dir, key, title, caption, png=self.png)
+        self.written.update(pathlib.Path(f).name for f in (saved.png, saved.svg) if f)
         self.count += 1
         return H.figure_html(saved, self.count)
 
@@ -243,14 +246,16 @@ def _stack_section(run: RunData, figs: _Figures) -> str:
     return H.section("composite", "Regional composite", body) if body else ""
 
 
-def write_run_report(run_dir: str | pathlib.Path) -> pathlib.Path:
-    """Write ``report.html`` and ``figures/*.png|svg`` for a run folder.
+def write_run_report(run_dir: str | pathlib.Path, png: bool = False) -> pathlib.Path:
+    """Write ``report.html`` and ``figures/*.svg`` (and ``*.png``) for a run folder.
 
     Parameters
     ----------
     run_dir : path-like
         A run folder (see DEVELOPERS.md, "The run folder"). Missing tables are tolerated:
         the report says what is absent.
+    png : bool
+        Also write a PNG copy of every figure (a second drawing of each).
 
     Returns
     -------
@@ -258,7 +263,7 @@ def write_run_report(run_dir: str | pathlib.Path) -> pathlib.Path:
         The report file.
     """
     run = read_run(run_dir)
-    figs = _Figures(run.folder)
+    figs = _Figures(run.folder, png=png)
     with style.report_style():
         stack = _stack_section(run, figs)
         cores = [_core_section(core, run, figs) for core in run.cores]
@@ -272,6 +277,6 @@ def write_run_report(run_dir: str | pathlib.Path) -> pathlib.Path:
     subtitle = (f"{len(run.cores)} core(s); ages in cal BP (years before 1950 CE); "
                 "bands are ensemble quantiles")
     footer = (f"Written by downcore {version} from the tables of this run folder. "
-              f"{figs.count} figures, also saved as PNG and SVG in figures/.")
+              f"{figs.count} figures, also saved as {'PNG and ' if png else ''}SVG in figures/.")
     text = H.page(title, subtitle, toc, _summary_section(run) + stack + "".join(cores), footer)
     return atomic_write_text(run.folder / REPORT_NAME, text)

@@ -55,6 +55,25 @@ def _date_glyph_height(depth: np.ndarray) -> float:
     return max(span, 1.0) * 0.045
 
 
+#: a date density glyph is drawn through at most this many points (it is ~1/20 of the axis
+#: high; finer detail is not visible and only weighs down the vector figure)
+DENSITY_POINTS = 100
+
+
+def _thinned(age: np.ndarray, dens: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """A density curve resampled onto at most :data:`DENSITY_POINTS` evenly spaced ages,
+    keeping its end points; the peak height is preserved by rescaling."""
+    keep = np.isfinite(age) & np.isfinite(dens)
+    age, dens = age[keep], dens[keep]
+    if age.size <= DENSITY_POINTS:
+        return age, dens
+    grid = np.linspace(age[0], age[-1], DENSITY_POINTS)
+    thin = np.interp(grid, age, dens)
+    if thin.max() > 0:
+        thin *= dens.max() / thin.max()
+    return grid, thin
+
+
 def _draw_densities(ax, dates: pd.DataFrame, densities: pd.DataFrame, height: float) -> bool:
     """Calibrated date densities as bumps above each date's depth; True if any was drawn."""
     drawn = False
@@ -65,8 +84,7 @@ def _draw_densities(ax, dates: pd.DataFrame, densities: pd.DataFrame, height: fl
         if part.empty:
             continue
         part = part.sort_values("age_cal_bp")
-        age = part["age_cal_bp"].to_numpy(float)
-        dens = part["density"].to_numpy(float)
+        age, dens = _thinned(part["age_cal_bp"].to_numpy(float), part["density"].to_numpy(float))
         if not np.isfinite(dens).any() or np.nanmax(dens) <= 0:
             continue
         top = row.depth_cm - height * dens / np.nanmax(dens)
@@ -128,8 +146,8 @@ def age_depth_figure(core: CoreData):
         order = np.argsort(ens_depth)
         ens_depth, ens = ens_depth[order], ens[order]
         step = max(1, ens.shape[1] // MEMBERS_DRAWN)
-        for m in range(0, ens.shape[1], step):
-            ax.plot(ens[:, m], ens_depth, color=style.SLATE, linewidth=0.35, alpha=0.35, zorder=2)
+        style.ensemble_lines(ax, ens[:, ::step], ens_depth, color=style.SLATE, linewidth=0.35,
+                             alpha=0.35, zorder=2)
         q16, q84 = np.nanquantile(ens, [0.16, 0.84], axis=1)
         ax.fill_betweenx(ens_depth, q16, q84, color=style.BAND_DARK, linewidth=0, zorder=1.5)
         handles.append(Patch(color=style.BAND_DARK, label="68 % range"))

@@ -135,12 +135,14 @@ def note_html(text: str, kind: str = "") -> str:
 
 
 def figure_html(saved: SavedFigure, number: int) -> str:
-    """A numbered figure: inline SVG, caption and relative links to the PNG and SVG files."""
+    """A numbered figure: inline SVG, caption and relative links to its SVG (and PNG) file."""
     svg = inline_svg(saved.svg_text, f"f{number}")
+    links = [("SVG", saved.svg)] + ([("PNG", saved.png)] if saved.png else [])
+    files = " · ".join(f'<a href="{esc(path)}">{name}</a>' for name, path in links)
     svg = svg.replace('role="img"', f'role="img" aria-label="{esc(saved.title)}"', 1)
     return (f'<figure class="plot" id="fig-{esc(saved.key)}" data-figure="{esc(saved.key)}">'
             f"{svg}<figcaption><b>Figure {number}. {esc(saved.title)}.</b> {esc(saved.caption)} "
-            f'Files: <a href="{esc(saved.png)}">PNG</a> · <a href="{esc(saved.svg)}">SVG</a>.'
+            f"Files: {files}."
             "</figcaption></figure>")
 
 
