@@ -317,3 +317,41 @@ def test_a_core_shows_only_the_training_sets_its_calibration_used():
         "calibration": pd.DataFrame({"proxy": ["counts"], "method": ["transfer"], "detail": ["midges"]})})
     assert training_sets_of(marine, training) == []
     assert [t.name for t in training_sets_of(lake, training)] == ["midges"]
+
+
+# --- printed numbers and tables (what a lab asked for) --------------------------------------
+
+def test_ranges_probabilities_and_headers_print_as_a_lab_reads_them():
+    """Negative ranges with true minus signs and "to"; tiny probabilities as "< 0.001";
+    unit endings of column names as units in headers."""
+    from pipelines.report import html as H
+
+    assert H.range_text(-79.2, -58.6) == "\u221279 to \u221259"
+    assert H.range_text(5048, 5201) == "5048 to 5201"
+    assert H.probability_text(3e-7) == "< 0.001" and H.probability_text(0.004) == "0.004"
+    assert H.probability_text(0.42) == "0.42" and H.probability_text(float("nan")) == "n/a"
+    assert H.header_with_units("depth_cm") == "depth [cm]"
+    assert H.header_with_units("deposition_time_yr_cm") == "deposition time [yr/cm]"
+    assert H.header_with_units("onset_median_cal_bp") == "onset median [cal BP]"
+    assert H.header_with_units("rmsep") == "rmsep"
+
+
+def test_wide_tables_scroll_in_their_own_box(report_text):
+    """Every data table sits in a box that scrolls sideways (CSS overflow-x)."""
+    assert ".table-box { max-width: 100%; overflow-x: auto;" in report_text
+    tables = report_text.count('<table class="data"')
+    assert tables and report_text.count('<div class="table-box"><table class="data"') == tables
+
+
+def test_all_negligible_outlier_probabilities_collapse_to_one_line(tmp_path):
+    """A core whose dates all have outlier probabilities below 0.001 gets one line of text
+    instead of a chart of empty bars; the dates table prints them as "< 0.001"."""
+    run = make_run_folder(tmp_path / "run")
+    path = run / "TARN-2" / "dates.parquet"
+    dates = pd.read_parquet(path)
+    dates["outlier_prob"] = 1e-5
+    atomic_write_parquet(path, dates)
+    text = write_run_report(run).read_text(encoding="utf-8")
+    assert "below 0.001 for every date (no chart drawn)" in text
+    assert not (run / "figures" / "TARN-2_outliers.svg").exists()
+    assert "&lt; 0.001" in text

@@ -18,8 +18,9 @@ from pipelines.report import html as H
 from pipelines.report import style
 from pipelines.report.figures_calibration import (analogue_figure, cv_scatter_figure,
                                                   cv_statistics, training_sets_of)
-from pipelines.report.figures_chronology import (age_depth_figure, deposition_time_figure,
-                                                 outlier_figure)
+from pipelines.report.figures_chronology import (NEGLIGIBLE_PROBABILITY, age_depth_figure,
+                                                 all_outlier_probabilities_negligible,
+                                                 deposition_time_figure, outlier_figure)
 from pipelines.report.figures_events import event_figure, event_variables
 from pipelines.report.figures_reconstruction import reconstruction_figure, stack_figure
 from pipelines.report.rundata import (CoreData, RunData, downcore_version, hpd_ranges_of,
@@ -98,9 +99,9 @@ def _summary_section(run: RunData) -> str:
     n_failed = sum(c.status.lower() in ("failed", "error") for c in run.cores)
     lead = (f"{len(run.cores)} core(s): {n_ok} finished, {n_failed} failed"
             f"{'' if n_ok + n_failed == len(run.cores) else ', others incomplete'}.")
-    table = ('<table class="data"><thead><tr><th>core</th><th>status</th><th>stage reached</th>'
-             "<th>warnings</th><th>seconds</th><th>reason / first warning</th></tr></thead>"
-             f"<tbody>{''.join(rows)}</tbody></table>")
+    table = ('<div class="table-box"><table class="data"><thead><tr><th>core</th><th>status</th>'
+             "<th>stage reached</th><th>warnings</th><th>seconds</th><th>reason / first warning</th>"
+             f"</tr></thead><tbody>{''.join(rows)}</tbody></table></div>")
     body = H.key_value_html(_manifest_items(run)) + f"<p>{H.esc(lead)}</p>" + table
     for note in run.notes:
         body += H.note_html(note, "info")
@@ -120,10 +121,12 @@ def _dates_table(core: CoreData) -> str:
         shown["calibrated median [cal BP]"] = pd.to_numeric(dates[median], errors="coerce").round()
     ranges = hpd_ranges_of(dates, "hpd95")
     if any(ranges):
-        shown["95 % HPD [cal BP]"] = ["; ".join(f"{a:.0f}–{b:.0f}" for a, b in r) or "–" for r in ranges]
-    for column, header in (("outlier_prob", "outlier probability"), ("exclude", "excluded")):
-        if column in dates.columns:
-            shown[header] = dates[column]
+        shown["95 % HPD [cal BP]"] = ["; ".join(H.range_text(a, b) for a, b in r) or "–" for r in ranges]
+    if "outlier_prob" in dates.columns:
+        shown["outlier probability"] = [H.probability_text(p) for p in
+                                        pd.to_numeric(dates["outlier_prob"], errors="coerce")]
+    if "exclude" in dates.columns:
+        shown["excluded"] = dates["exclude"]
     return "<h4>Dates</h4>" + H.table_html(shown)
 
 
@@ -142,10 +145,20 @@ def _chronology_part(core: CoreData, figs: _Figures) -> str:
         figs.add(lambda: outlier_figure(core), f"{cid}_outliers", "Date outlier probability",
                  "Posterior probability that each date is an outlier, in depth order."),
     ]
+    if all_outlier_probabilities_negligible(core.table("dates")):
+        parts.append(H.note_html(f"Outlier probability: below {NEGLIGIBLE_PROBABILITY:g} for every "
+                                 "date (no chart drawn).", "info"))
     body = "".join(parts)
     if not body:
         return H.note_html("No chronology: this core stopped before its age-depth model.")
     return body + _dates_table(core)
+
+
+def _training_units(run: RunData, name: str) -> str:
+    """The ``units`` of training set ``name`` as the run config gave them, or ``""``."""
+    resolved = ((run.manifest.get("config") or {}).get("resolved") or {})
+    entry = (resolved.get("training") or {}).get(name) or {}
+    return str(entry.get("units") or "") if isinstance(entry, dict) else ""
 
 
 def _calibration_part(core: CoreData, run: RunData, figs: _Figures) -> str:
@@ -155,7 +168,8 @@ def _calibration_part(core: CoreData, run: RunData, figs: _Figures) -> str:
     if skill is not None and len(skill):
         body += "<h4>Calibration skill</h4>" + H.table_html(skill)
     for training in training_sets_of(core, run.training):
-        body += figs.add(lambda t=training: cv_scatter_figure(t), f"{cid}_cv_{training.name}",
+        units = _training_units(run, training.name)
+        body += figs.add(lambda t=training, u=units: cv_scatter_figure(t, u), f"{cid}_cv_{training.name}",
                          f"Cross-validation of training set '{training.name}'",
                          "Cross-validated prediction against the observed value of each "
                          "modern sample (left; dashed: 1:1) and the residuals (right).")

@@ -12,13 +12,17 @@ from matplotlib.lines import Line2D
 from matplotlib.patches import Patch
 
 from pipelines.report import style
+from pipelines.report.html import probability_text
 from pipelines.report.rundata import CoreData, hpd_ranges_of, median_column, member_columns
 
 __all__ = ["age_depth_figure", "deposition_time_figure", "outlier_figure", "OUTLIER_LINE",
-           "ensemble_matrix"]
+           "ensemble_matrix", "all_outlier_probabilities_negligible", "NEGLIGIBLE_PROBABILITY"]
 
 #: outlier probability above which a date is drawn as "more likely an outlier than not"
 OUTLIER_LINE = 0.5
+
+#: below this an outlier probability is printed "< 0.001" and counts as none
+NEGLIGIBLE_PROBABILITY = 0.001
 
 #: ensemble members drawn as thin lines behind the bands
 MEMBERS_DRAWN = 25
@@ -236,10 +240,22 @@ def deposition_time_figure(core: CoreData):
     return fig
 
 
+def all_outlier_probabilities_negligible(dates: pd.DataFrame | None) -> bool:
+    """True when every date has an outlier probability below :data:`NEGLIGIBLE_PROBABILITY`
+    (the chart would be a row of empty bars: the report says so in one line instead)."""
+    if dates is None or "outlier_prob" not in dates.columns or not len(dates):
+        return False
+    prob = _outlier_prob(dates)
+    return bool(np.isfinite(prob).all() and (prob < NEGLIGIBLE_PROBABILITY).all())
+
+
 def outlier_figure(core: CoreData):
-    """Posterior outlier probability of every date, in depth order."""
+    """Posterior outlier probability of every date, in depth order (None when every one is
+    negligible, see :func:`all_outlier_probabilities_negligible`)."""
     dates = core.table("dates")
     if dates is None or "outlier_prob" not in dates.columns or not len(dates):
+        return None
+    if all_outlier_probabilities_negligible(dates):
         return None
     dates = dates.sort_values("depth_cm", kind="stable")
     prob = _outlier_prob(dates)
@@ -255,13 +271,13 @@ def outlier_figure(core: CoreData):
         ax.barh(y[high], prob[high], facecolor="white", edgecolor=style.CLAY, hatch="////",
                 height=0.6, label=f"{OUTLIER_LINE:g} or more: likely outlier")
     for yi, p in zip(y, prob):
-        ax.text(min(np.nan_to_num(p) + 0.015, 0.93), yi, "n/a" if not np.isfinite(p) else f"{p:.2f}",
+        ax.text(min(np.nan_to_num(p) + 0.015, 0.93), yi, probability_text(p),
                 va="center", fontsize=7, color=style.INK)
     ax.axvline(OUTLIER_LINE, color=style.INK, linestyle=":", linewidth=0.8)
     ax.set_yticks(y, labels)
     ax.invert_yaxis()
     ax.set_xlim(0, 1)
-    ax.set_xlabel("posterior outlier probability")
+    ax.set_xlabel("posterior outlier probability [0–1]")
     ax.grid(axis="y", visible=False)
     ax.set_title(f"{core.core_id}: date outlier probability")
     ax.legend(loc="lower right")
