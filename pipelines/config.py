@@ -11,6 +11,7 @@ file itself; :func:`check_run_config` additionally checks each listed core folde
 
 from __future__ import annotations
 
+import dataclasses
 import glob
 import importlib
 import os
@@ -20,6 +21,7 @@ from typing import Any
 
 from proxies.cores.model import Core
 from proxies.problems import InputError, Problem
+from proxies.settings_spec import setting, settings_from_mapping
 
 from pipelines.ingest import inspect_core, read_toml
 
@@ -29,17 +31,12 @@ __all__ = [
     "check_run_config",
     "stage_settings",
     "STAGE_SETTINGS",
-    "ENSEMBLE_MIN",
-    "ENSEMBLE_MAX",
+    "RunSettings",
 ]
 
-RUN_KEYS = ("seed", "ensemble", "cores")
 #: sections kept raw for the stages and the report
 RAW_SECTIONS = ("chronology", "training", "instrumental", "calibration", "reconstruction", "events", "report")
 TOP_LEVEL = ("run", "curves") + RAW_SECTIONS
-ENSEMBLE_MIN = 10
-ENSEMBLE_MAX = 100_000
-DEFAULT_ENSEMBLE = 1000
 #: stage -> "module:SettingsClass", imported only when needed
 STAGE_SETTINGS: dict[str, str] = {
     "chronology": "proxies.chronology:ChronologySettings",
@@ -47,6 +44,41 @@ STAGE_SETTINGS: dict[str, str] = {
     "reconstruction": "proxies.reconstruction:ReconstructionSettings",
     "events": "proxies.events:EventSettings",
 }
+
+
+@dataclass(frozen=True)
+class RunSettings:
+    """The ``[run]`` section (declared with :func:`proxies.settings_spec.setting`)."""
+
+    seed: int | None = setting(None, "run seed (required): every random draw derives from it and stable names",
+                               kind=int, low=0, example="20261201")
+    ensemble: int = setting(1000, "ensemble members M carried from dates to events", low=10, high=100_000)
+    cores: tuple[str, ...] | None = setting(None, "core folders or glob patterns (required), relative to this file",
+                                            kind="list[str]", example='["cores/*"]')
+
+
+def _required_run_keys(values: dict) -> list[Problem]:
+    fixes = {"seed": "add seed = <non-negative whole number>",
+             "cores": 'add cores = ["cores/*"] (folders or glob patterns, relative to this file)'}
+    problems = [Problem("", f"required key '{key}' is missing from [run]", fix, column=key)
+                for key, fix in fixes.items() if values[key] is None]
+    if values["cores"] is not None and len(values["cores"]) == 0:
+        problems.append(Problem("", "cores = [] lists no core: there is nothing to check or run",
+                                fixes["cores"].replace("add ", "write "), column="cores"))
+    return problems
+
+
+def _run_settings(run: dict, name: str, problems: list[Problem]) -> RunSettings | None:
+    """``[run]`` validated by its declarations; problems name the file and ``run.<key>``."""
+    if isinstance(run.get("cores"), str):
+        run = {**run, "cores": [run["cores"]]}  # one pattern may be written without a list
+    try:
+        return settings_from_mapping(RunSettings, run, name, _required_run_keys)
+    except InputError as error:
+        found = [p for p in error.problems  # a wrong value is not also "missing"
+                 if not (p.message.startswith("required key") and p.column in run)]
+        problems.extend(dataclasses.replace(p, file=name, column=f"run.{p.column}") for p in found)
+        return None
 
 
 @dataclass(frozen=True)
@@ -91,7 +123,8 @@ def _display(path: Path) -> str:
     return str(path) if relative.startswith("..") else relative
 
 
-def _parse(path: Path) -> tuple[RunConfig | None, list[Problem]]:
+def _parse_parts(path: Path) -> tuple[RunConfig | None, list[Problem]]:
+    """The config as far as it can be read, with every problem; ``None`` when unreadable."""
     name = str(path)
     mapping, problems = read_toml(path, name)
     if mapping is None:
@@ -104,14 +137,13 @@ def _parse(path: Path) -> tuple[RunConfig | None, list[Problem]]:
     if not isinstance(run, dict):
         problems.append(Problem(name, "the [run] section is missing", "add [run] with seed and cores", column="run"))
         run = {}
-    for key in run:
-        if key not in RUN_KEYS:
-            problems.append(Problem(name, f"unknown key '{key}' in [run]",
-                                    "remove it or correct the spelling; allowed: " + ", ".join(RUN_KEYS),
-                                    column=f"run.{key}"))
-    seed = _seed(run, name, problems)
-    ensemble = _ensemble(run, name, problems)
-    folders = _core_folders(run, path, name, problems)
+    settings = _run_settings(run, name, problems)
+    patterns = settings.cores if settings is not None else run.get("cores")
+    if isinstance(patterns, str):
+        patterns = [patterns]
+    if not isinstance(patterns, (list, tuple)) or not all(isinstance(p, str) for p in patterns):
+        patterns = ()  # reported with [run]; the cores are still checked when they can be found
+    folders = _core_folders(tuple(patterns), path, name, problems if settings is not None else [])
     curves = _curves(mapping.get("curves", {}), path, name, problems)
     sections = {}
     for key in RAW_SECTIONS:
@@ -120,50 +152,22 @@ def _parse(path: Path) -> tuple[RunConfig | None, list[Problem]]:
             problems.append(Problem(name, f"'{key}' must be a [{key}] table", f"write it as [{key}]", column=key))
             value = {}
         sections[key] = value
-    if problems:
-        return None, problems
-    return RunConfig(path=path.resolve(), seed=seed, ensemble=ensemble, core_folders=folders,
-                     curves=curves, sections=sections), []
+    config = RunConfig(path=path.resolve(), seed=getattr(settings, "seed", 0) or 0,
+                       ensemble=getattr(settings, "ensemble", 1000), core_folders=folders, curves=curves,
+                       sections=sections)
+    return config, problems
 
 
-def _seed(run: dict, name: str, problems: list[Problem]) -> int | None:
-    if "seed" not in run:
-        problems.append(Problem(name, "required key 'seed' is missing from [run]",
-                                "add seed = <non-negative whole number>", column="run.seed"))
-        return None
-    seed = run["seed"]
-    if isinstance(seed, bool) or not isinstance(seed, int) or seed < 0:
-        problems.append(Problem(name, f"seed must be a non-negative whole number, got {seed!r}",
-                                "write e.g. seed = 20261201", column="run.seed"))
-        return None
-    return seed
+def _parse(path: Path) -> tuple[RunConfig | None, list[Problem]]:
+    config, problems = _parse_parts(path)
+    return (None, problems) if problems else (config, [])
 
 
-def _ensemble(run: dict, name: str, problems: list[Problem]) -> int | None:
-    value = run.get("ensemble", DEFAULT_ENSEMBLE)
-    if isinstance(value, bool) or not isinstance(value, int) or not ENSEMBLE_MIN <= value <= ENSEMBLE_MAX:
-        problems.append(Problem(name, f"ensemble must be a whole number {ENSEMBLE_MIN}..{ENSEMBLE_MAX}, got {value!r}",
-                                f"write e.g. ensemble = {DEFAULT_ENSEMBLE}", column="run.ensemble"))
-        return None
-    return value
-
-
-def _core_folders(run: dict, path: Path, name: str, problems: list[Problem]) -> tuple[Path, ...]:
-    patterns = run.get("cores")
-    if patterns is None:
-        problems.append(Problem(name, "required key 'cores' is missing from [run]",
-                                'add cores = ["cores/*"] (folders or glob patterns, relative to this file)',
-                                column="run.cores"))
-        return ()
-    if isinstance(patterns, str):
-        patterns = [patterns]
-    if not isinstance(patterns, list) or not all(isinstance(p, str) for p in patterns):
-        problems.append(Problem(name, "cores must be a list of folder names or glob patterns",
-                                'write e.g. cores = ["cores/*"]', column="run.cores"))
-        return ()
+def _core_folders(patterns: tuple[str, ...] | None, path: Path, name: str,
+                  problems: list[Problem]) -> tuple[Path, ...]:
     base = path.resolve().parent
     found: set[Path] = set()
-    for pattern in patterns:
+    for pattern in patterns or ():
         matches = [Path(m).resolve() for m in glob.glob(os.path.join(str(base), pattern))]
         folders = [m for m in matches if m.is_dir()]
         if not folders:
@@ -231,19 +235,23 @@ def check_run_config(path: str | Path, *, year: int | None = None) -> list[Probl
 
 
 def check_run_config_by_core(
-    path: str | Path, *, year: int | None = None
+    path: str | Path, *, year: int | None = None, notes: list[str] | None = None
 ) -> dict[str, tuple[Core | None, list[Problem]]]:
     """Like :func:`check_run_config`, grouped and with the loaded cores.
 
     Returns ``{config path: (None, problems of the config), core folder: (core or None,
-    problems of that core), ...}`` in that order, core folders sorted.
+    problems of that core), ...}`` in that order, core folders sorted. Every section is
+    checked even when another has problems; the checks ``run`` makes before its first stage
+    (curve files and date ranges, age control, memory, calibration columns) are made here
+    with the same code (:mod:`pipelines.run_checks`). ``notes`` receives what reading skipped.
     """
     path = Path(path)
     name = str(path)
-    config, problems = _parse(path)
+    config, problems = _parse_parts(path)  # problems of every section together, cores still checked
     grouped: dict[str, tuple[Core | None, list[Problem]]] = {name: (None, problems)}
     if config is None:
         return grouped
+    default_curve = (config.sections.get("chronology") or {}).get("default_curve")
     for stage in STAGE_SETTINGS:
         if not config.sections.get(stage):
             continue
@@ -258,7 +266,9 @@ def check_run_config_by_core(
     ids: dict[str, str] = {}
     for folder in config.core_folders:
         shown = _display(folder)
-        core, core_problems = inspect_core(shown, year=year, curve_names=set(config.curves))
+        core, core_problems = inspect_core(shown, year=year, curve_names=set(config.curves),
+                                           default_curve=default_curve if isinstance(default_curve, str) else None,
+                                           notes=notes)
         core_id = core.id if core is not None else _declared_id(folder)
         if core_id is not None and core_id in ids:
             core_problems.append(Problem(os.path.join(shown, "core.toml"),
@@ -267,6 +277,9 @@ def check_run_config_by_core(
         elif core_id is not None:
             ids[core_id] = shown
         grouped[shown] = (core, core_problems)
+    from pipelines.run_checks import run_time_checks
+
+    run_time_checks(config, grouped, name)
     return grouped
 
 

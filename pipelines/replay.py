@@ -20,6 +20,9 @@ output with the new one:
     whose bytes differ (their global attributes name the run folder).
 ``not compared``
     Logs, timings and report files (they hold clock times).
+``error``
+    The comparison itself failed (an unreadable file, a bug): the detail names the error.
+    This is no verdict on reproducibility, and the command says so with its own exit status.
 
 Inputs are checked first: a changed or missing input file is reported and makes the replay
 fail even when the outputs agree.
@@ -38,7 +41,7 @@ import numpy as np
 import pandas as pd
 
 from pipelines.manifest import InputChange, check_inputs, read_manifest
-from pipelines.runfolder import read_parquet
+from pipelines.runfolder import ensure_writable_folder, read_parquet
 
 __all__ = ["OutputVerdict", "ReplayReport", "compare_outputs", "compare_tables", "replay_run"]
 
@@ -68,8 +71,16 @@ class ReplayReport:
 
     @property
     def ok(self) -> bool:
-        bad = {"different", "missing", "new"}
-        return not self.input_changes and not any(v.verdict in bad for v in self.verdicts)
+        """No input changed, every output compared, none differs."""
+        return not self.input_changes and not self.errors and not self.differences
+
+    @property
+    def differences(self) -> list[OutputVerdict]:
+        return [v for v in self.verdicts if v.verdict in ("different", "missing", "new")]
+
+    @property
+    def errors(self) -> list[OutputVerdict]:
+        return [v for v in self.verdicts if v.verdict == "error"]
 
     def table(self) -> pd.DataFrame:
         return pd.DataFrame([v.__dict__ for v in self.verdicts], columns=["path", "kind", "verdict", "detail"])
@@ -123,10 +134,11 @@ def _verdict(path: str, kind: str, recorded_sha: str, new: dict[str, Any], recor
 
 def _netcdf_verdict(path: str, kind: str, recorded: pathlib.Path, new: pathlib.Path) -> OutputVerdict:
     """netCDF files carry the run folder's name in their global attributes (and HDF5 object
-    headers), so their bytes differ between runs: compare their content instead."""
+    headers), so their bytes differ between runs: compare their content instead (the stored
+    numbers, time axes undecoded, so nothing depends on a calendar library)."""
     import xarray as xr
 
-    with xr.open_dataset(recorded) as a, xr.open_dataset(new) as b:
+    with xr.open_dataset(recorded, decode_times=False) as a, xr.open_dataset(new, decode_times=False) as b:
         if not a.equals(b):
             return OutputVerdict(path, kind, "different", "variables, coordinates or values differ")
         changed = sorted(k for k in set(a.attrs) | set(b.attrs) if a.attrs.get(k) != b.attrs.get(k))
@@ -134,10 +146,20 @@ def _netcdf_verdict(path: str, kind: str, recorded: pathlib.Path, new: pathlib.P
     return OutputVerdict(path, kind, "same content", detail)
 
 
+def _guarded_verdict(path: str, info: dict, new: dict, recorded_root: pathlib.Path, new_root: pathlib.Path,
+                     rtol: float, atol: float) -> OutputVerdict:
+    """:func:`_verdict`, with a failure of the comparison reported as verdict ``error``."""
+    try:
+        return _verdict(path, info["kind"], info["sha256"], new, recorded_root, new_root, rtol, atol)
+    except Exception as error:  # noqa: BLE001 - any failure to compare is reported, not a difference
+        return OutputVerdict(path, info.get("kind", "?"), "error",
+                             f"could not compare: {type(error).__name__}: {error}")
+
+
 def compare_outputs(recorded: dict, recorded_root: pathlib.Path, new: dict, new_root: pathlib.Path,
                     rtol: float = RTOL, atol: float = ATOL) -> list[OutputVerdict]:
     """Verdicts for the outputs of two manifests (recorded first)."""
-    verdicts = [_verdict(path, info["kind"], info["sha256"], new, recorded_root, new_root, rtol, atol)
+    verdicts = [_guarded_verdict(path, info, new, recorded_root, new_root, rtol, atol)
                 for path, info in sorted(recorded.items())]
     verdicts += [OutputVerdict(path, info["kind"], "new", "not in the recorded run")
                  for path, info in sorted(new.items())
@@ -169,8 +191,8 @@ def replay_run(manifest_path: str | os.PathLike[str], out_dir: str | os.PathLike
         return report
     temporary = None
     if cache_dir is None:
-        parent = pathlib.Path(out_dir).expanduser().resolve().parent
-        parent.mkdir(parents=True, exist_ok=True)
+        parent = ensure_writable_folder(pathlib.Path(out_dir).expanduser().resolve().parent,
+                                        "the folder of --out")
         temporary = pathlib.Path(tempfile.mkdtemp(prefix=".downcore-replay-cache-", dir=parent))
     try:
         outcome = execute_run(config, out_dir, choice=choice, cache_dir=cache_dir or temporary,

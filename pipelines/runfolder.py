@@ -28,10 +28,14 @@ import pandas as pd
 import pyarrow as pa
 import pyarrow.parquet as pq
 
+from pipelines.runlock import LOCK_NAME, RunBusyError, RunLock, acquire_run_lock, describe_owner
+
 __all__ = [
     "RunFolderError",
     "IN_PROGRESS_MARKER",
     "create_run_folder",
+    "release_run_folder",
+    "ensure_writable_folder",
     "atomic_write_bytes",
     "atomic_write_text",
     "atomic_write_json",
@@ -61,6 +65,9 @@ PARQUET_OPTIONS: dict[str, Any] = {
     "store_schema": False,
 }
 
+#: run locks this process holds, by absolute folder path (see :mod:`pipelines.runlock`)
+_HELD_LOCKS: dict[str, RunLock] = {}
+
 _DISK_ERRNOS = {errno.ENOSPC, getattr(errno, "EDQUOT", errno.ENOSPC), errno.EFBIG}
 _PERMISSION_ERRNOS = {errno.EACCES, errno.EPERM, errno.EROFS}
 
@@ -83,50 +90,136 @@ def _explain(error: OSError, path: pathlib.Path, action: str) -> RunFolderError:
     return RunFolderError(error.errno or 0, reason)
 
 
-def create_run_folder(path: str | os.PathLike[str], resume: bool = False) -> pathlib.Path:
-    """Create a new, empty run folder and mark it as in progress.
+def create_run_folder(path: str | os.PathLike[str], resume: bool = False,
+                      identity: dict[str, Any] | None = None) -> pathlib.Path:
+    """Create a new, empty run folder, take its run lock and mark it as in progress.
 
     Parameters
     ----------
     path : path-like
         The folder to create (parents are created too).
     resume : bool
-        Accept a folder that holds an unfinished run (its in-progress marker is present and it
-        has no ``manifest.json``); its partial content is discarded.
+        Accept a folder that holds an unfinished run whose process is gone (its in-progress
+        marker is present and it has no ``manifest.json``); its partial content is discarded.
+    identity : dict or None
+        What the run is started with (:func:`pipelines.runlock.run_identity`); recorded in
+        the lock, and a resume whose identity differs from the recorded one is refused.
 
     Returns
     -------
     pathlib.Path
-        The absolute folder path.
+        The absolute folder path. Release it with :func:`release_run_folder`.
 
     Raises
     ------
     RunFolderError
-        When the folder exists and is not empty (and is not a resumable unfinished run), or
-        cannot be created.
+        When a run is going in the folder, when it exists and is not empty (and is not a
+        resumable unfinished run of the same config), or when it cannot be created.
     """
     folder = pathlib.Path(path).expanduser().resolve()
     if folder.exists() and not folder.is_dir():
         raise RunFolderError(errno.ENOTDIR, f"{folder} exists and is not a folder -- choose "
                              "another --out folder")
-    if folder.is_dir() and any(folder.iterdir()):
-        unfinished = (folder / IN_PROGRESS_MARKER).exists() and not (folder / "manifest.json").exists()
-        if not (resume and unfinished):
-            hint = ("it holds an unfinished run: add --resume to finish it, reusing the work "
-                    "already done" if unfinished else "choose a new folder; downcore never "
-                    "overwrites a run")
-            raise RunFolderError(errno.EEXIST, f"{folder} exists and is not empty -- {hint}")
-        for child in folder.iterdir():
-            if child.name == IN_PROGRESS_MARKER:
-                continue
-            shutil.rmtree(child) if child.is_dir() and not child.is_symlink() else child.unlink()
+    if folder.is_dir() and not _unfinished(folder) and any(c.name != LOCK_NAME for c in folder.iterdir()):
+        raise _not_empty(folder)  # refused before anything is written into it
     try:
         folder.mkdir(parents=True, exist_ok=True)
-        atomic_write_text(folder / IN_PROGRESS_MARKER, f"pid {os.getpid()}\n")
-    except RunFolderError:
-        raise
+        lock = acquire_run_lock(folder)
+    except RunBusyError as error:
+        raise RunFolderError(error.errno, error.strerror) from None
     except OSError as error:
         raise _explain(error, folder, "creating the run folder") from error
+    try:
+        _claim(folder, lock, resume, identity)
+        lock.write(identity)
+        atomic_write_text(folder / IN_PROGRESS_MARKER, f"pid {os.getpid()}\n")
+    except BaseException as error:
+        lock.release(finished=not lock.previous)  # a lock file this call created goes again
+        if isinstance(error, OSError) and not isinstance(error, RunFolderError):
+            raise _explain(error, folder, "creating the run folder") from error
+        raise
+    _HELD_LOCKS[str(folder)] = lock
+    return folder
+
+
+def _unfinished(folder: pathlib.Path) -> bool:
+    return (folder / IN_PROGRESS_MARKER).exists() and not (folder / "manifest.json").exists()
+
+
+def _not_empty(folder: pathlib.Path) -> RunFolderError:
+    return RunFolderError(errno.EEXIST, f"{folder} exists and is not empty -- choose a new "
+                          "folder; downcore never overwrites a run")
+
+
+def _claim(folder: pathlib.Path, lock: RunLock, resume: bool, identity: dict[str, Any] | None) -> None:
+    """Refuse a folder with content unless it is a resumable unfinished run of the same
+    config; clear its partial content then (the lock and the marker stay)."""
+    entries = [child for child in folder.iterdir() if child.name != LOCK_NAME]
+    if not entries:
+        return
+    if not _unfinished(folder):
+        raise _not_empty(folder)
+    if not resume:
+        raise RunFolderError(errno.EEXIST, f"{folder} holds an unfinished run whose process is "
+                             f"gone ({describe_owner(lock.previous)}) -- add --resume to finish it, "
+                             "reusing the work already done, or choose a new folder")
+    recorded = {key: (lock.previous or {}).get(key) for key in ("config", "config_sha256")}
+    given = {key: (identity or {}).get(key) for key in recorded}
+    if all(recorded.values()) and all(given.values()) and recorded != given:
+        what = "another config file" if recorded["config"] != given["config"] else "a changed config"
+        raise RunFolderError(errno.EEXIST, f"{folder} holds an unfinished run of {recorded['config']} "
+                             f"(sha256 {recorded['config_sha256'][:12]}); this resume gives {what} "
+                             f"({given['config']}, sha256 {given['config_sha256'][:12]}) -- resume "
+                             "with the config the run was started with, or choose a new folder")
+    for child in entries:
+        if child.name == IN_PROGRESS_MARKER:
+            continue
+        shutil.rmtree(child) if child.is_dir() and not child.is_symlink() else child.unlink()
+
+
+def release_run_folder(folder: str | os.PathLike[str], finished: bool) -> None:
+    """Give up the run lock of a folder made by :func:`create_run_folder` in this process.
+
+    ``finished``: the run is complete (its manifest is written); the in-progress marker and
+    the lock record are removed. Otherwise both stay, so that ``--resume`` can finish it.
+    """
+    key = str(pathlib.Path(folder).expanduser().resolve())
+    lock = _HELD_LOCKS.pop(key, None)
+    if finished:
+        (pathlib.Path(key) / IN_PROGRESS_MARKER).unlink(missing_ok=True)
+    if lock is not None:
+        lock.release(finished)
+
+
+def ensure_writable_folder(path: str | os.PathLike[str], what: str) -> pathlib.Path:
+    """Create ``path`` if needed and prove that a file can be written in it (a probe file is
+    created and removed), so that a run stops at once, before anything is computed.
+
+    Parameters
+    ----------
+    path : path-like
+        The folder.
+    what : str
+        How the user names it in the message, e.g. ``"the work store (--cache-dir)"``.
+
+    Raises
+    ------
+    RunFolderError
+        With one message naming the folder, the reason and the fix.
+    """
+    folder = pathlib.Path(path).expanduser().resolve()
+    try:
+        folder.mkdir(parents=True, exist_ok=True)
+        handle, probe = tempfile.mkstemp(prefix=".downcore-probe-", dir=folder)
+        os.close(handle)
+        os.unlink(probe)
+    except OSError as error:
+        reason = {errno.EROFS: "it is on a read-only file system", errno.EACCES: "permission denied",
+                  errno.EPERM: "permission denied", errno.ENOTDIR: "a file stands where a folder belongs",
+                  errno.ENOSPC: "the disk is full"}.get(error.errno or 0, error.strerror or str(error))
+        raise RunFolderError(error.errno or 0, f"{what} {folder} cannot be written ({reason}) -- "
+                             "give a folder you can write to (or fix its permissions); nothing "
+                             "was run") from error
     return folder
 
 

@@ -17,15 +17,16 @@ __all__ = ["SECTIONS", "key_table", "refresh_readme"]
 
 
 def _sections() -> dict:
+    from pipelines.config import RunSettings
     from proxies.chronology.settings import ChronologySettings
     from proxies.events.settings import EventSettings
     from proxies.reconstruction.settings import ReconstructionSettings
-    return {"chronology": ChronologySettings, "reconstruction": ReconstructionSettings,
+    return {"run": RunSettings, "chronology": ChronologySettings, "reconstruction": ReconstructionSettings,
             "events": EventSettings}
 
 
 #: section name -> settings class (import on demand; see :func:`_sections`)
-SECTIONS = ("chronology", "reconstruction", "events")
+SECTIONS = ("run", "chronology", "reconstruction", "events")
 
 _BLOCK = re.compile(r"(<!-- keys:(?P<name>[\w.]+) -->\n)(?P<body>.*?)(<!-- /keys -->)", re.S)
 

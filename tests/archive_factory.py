@@ -75,8 +75,14 @@ def _core_toml(core_id: str, index: int) -> str:
 
 
 def write_core(folder: pathlib.Path, core_id: str, index: int, n_dates: int = 6,
-               n_samples: int = 40, broken: str | None = None) -> pathlib.Path:
-    """Write one synthetic core folder (see the module docstring)."""
+               n_samples: int = 40, broken: str | None = None,
+               sample_spacing_yr: tuple[float, float] | None = None) -> pathlib.Path:
+    """Write one synthetic core folder (see the module docstring).
+
+    ``sample_spacing_yr = (low, high)``: instead of ``n_samples`` evenly spaced samples, the
+    samples are spaced (in true age) by independent uniform draws between ``low`` and
+    ``high`` years, down the whole core (a lake core sampled every few cm).
+    """
     rng = np.random.default_rng(1000 + index)
     folder.mkdir(parents=True, exist_ok=True)
     rate_yr_cm = 8.0 + 4.0 * rng.random()           # yr per cm, the known truth
@@ -94,6 +100,11 @@ def write_core(folder: pathlib.Path, core_id: str, index: int, n_dates: int = 6,
     (folder / "dates.csv").write_text("\n".join(date_lines) + "\n", encoding="utf-8")
 
     sample_depths = np.linspace(2.0, length_cm - 2.0, n_samples)
+    if sample_spacing_yr is not None:
+        gaps_cm = rng.uniform(*sample_spacing_yr, size=int(length_cm * rate_yr_cm / sample_spacing_yr[0])) / rate_yr_cm
+        sample_depths = 2.0 + np.concatenate([[0.0], np.cumsum(gaps_cm)])
+        sample_depths = np.round(sample_depths[sample_depths <= length_cm - 2.0], 1)
+        n_samples = sample_depths.size
     ages = -65.0 + rate_yr_cm * sample_depths
     signal = 0.6 + 0.1 * np.sin(ages / 900.0) + 0.08 * (ages > 2500.0)
     uk37 = signal + rng.normal(0.0, 0.01, n_samples)
@@ -113,7 +124,7 @@ def write_core(folder: pathlib.Path, core_id: str, index: int, n_dates: int = 6,
 
 def write_archive(root: str | pathlib.Path, n_cores: int, broken: int = 0, ensemble: int = 200,
                   seed: int = 20261201, n_dates: int = 6, n_samples: int = 40,
-                  extra_config: str = "") -> pathlib.Path:
+                  extra_config: str = "", sample_spacing_yr: tuple[float, float] | None = None) -> pathlib.Path:
     """Write ``n_cores`` core folders, the invented curve and a run config; return the config.
 
     Parameters
@@ -125,6 +136,8 @@ def write_archive(root: str | pathlib.Path, n_cores: int, broken: int = 0, ensem
         How many cores (the last ones, cycling through :data:`BROKEN_KINDS`) carry a defect.
     extra_config : str
         TOML appended to the run config (e.g. a ``[reconstruction]`` section).
+    sample_spacing_yr : (float, float), optional
+        Irregular sample spacing in years (see :func:`write_core`).
     """
     root = pathlib.Path(root)
     for index in range(n_cores):
@@ -132,7 +145,7 @@ def write_archive(root: str | pathlib.Path, n_cores: int, broken: int = 0, ensem
         if index >= n_cores - broken:
             kind = BROKEN_KINDS[(index - (n_cores - broken)) % len(BROKEN_KINDS)]
         write_core(root / "cores" / f"SYN-{index:03d}", f"SYN-{index:03d}", index,
-                   n_dates=n_dates, n_samples=n_samples, broken=kind)
+                   n_dates=n_dates, n_samples=n_samples, broken=kind, sample_spacing_yr=sample_spacing_yr)
     write_curve(root / "curves" / "invented.14c")
     config = textwrap.dedent(f"""\
         [run]

@@ -1,4 +1,4 @@
-"""A small synthetic run folder written to the run-folder contract (DEVELOPERS.md).
+"""A small synthetic run folder written to the run-folder schema (pipelines/outputs_schema.py).
 
 The report and export tests use it so that they do not depend on the whole pipeline. The
 numbers come from a simple seeded model, not from fixed values:
@@ -11,8 +11,10 @@ numbers come from a simple seeded model, not from fixed values:
   member noise, anomalies against a 0-1000 cal BP reference window;
 * events and event probability around the step; a training set's cross-validation.
 
-``make_run_folder`` writes the tables with :func:`pipelines.runfolder.atomic_write_parquet`
-so the files have the same layout as a real run.
+``make_run_folder`` writes every table through :func:`_put`, which checks it against
+:mod:`pipelines.outputs_schema` (the same check the pipeline's writers make) and writes it
+with :func:`pipelines.runfolder.atomic_write_parquet`, so the files have the layout of a real
+run and a column the schema does not declare fails here.
 """
 
 from __future__ import annotations
@@ -23,10 +25,17 @@ import pathlib
 import numpy as np
 import pandas as pd
 
-from pipelines.runfolder import atomic_write_json, atomic_write_parquet
+from pipelines.outputs_schema import checked, member_names, table
+from pipelines.runfolder import atomic_write_json, atomic_write_parquet, atomic_write_text
 
 LEVELS = (0.025, 0.16, 0.5, 0.84, 0.975)
 STEP_AGE = 8200.0
+
+
+def _put(run: pathlib.Path, key: str, frame: pd.DataFrame, core: str = "", name: str = "") -> None:
+    """Write table ``key`` where the schema puts it (``<core>``, ``<name>`` filled in)."""
+    relative = table(key).path.replace("<core>", core).replace("<name>", name)
+    atomic_write_parquet(run / relative, checked(key, frame))
 
 
 def _qname(level: float) -> str:
@@ -53,12 +62,12 @@ def _truth_temperature(age: np.ndarray) -> np.ndarray:
 
 def _write_core(run: pathlib.Path, core_id: str, rng: np.random.Generator, members: int,
                 rate: float, with_calibration: bool, with_reconstruction: bool) -> None:
-    folder = run / core_id
     depth = np.arange(0.0, 301.0, 5.0)
     ens = _age_model(rng, depth, top_age=-68.0, rate=rate, members=members)
     med = np.median(ens, axis=1)
     chron = pd.DataFrame({
         "depth_cm": depth,
+        "event_free_depth_cm": depth,
         "age_median": med,
         "age_q025": np.quantile(ens, 0.025, axis=1),
         "age_q975": np.quantile(ens, 0.975, axis=1),
@@ -66,10 +75,9 @@ def _write_core(run: pathlib.Path, core_id: str, rng: np.random.Generator, membe
         "age_sd": ens.std(axis=1, ddof=1),
         "deposition_time_yr_cm": np.gradient(med, depth),
     })
-    atomic_write_parquet(folder / "chronology.parquet", chron)
-    members_df = pd.DataFrame({f"m{m:04d}": ens[:, m] for m in range(members)})
-    atomic_write_parquet(folder / "age_ensemble.parquet",
-                         pd.concat([pd.DataFrame({"depth_cm": depth}), members_df], axis=1))
+    _put(run, "chronology", chron, core_id)
+    members_df = pd.DataFrame(ens, columns=member_names(members))
+    _put(run, "age_ensemble", pd.concat([pd.DataFrame({"depth_cm": depth}), members_df], axis=1), core_id)
 
     date_depth = np.array([22.0, 71.0, 118.0, 163.0, 214.0, 262.0, 296.0])
     true_age = np.interp(date_depth, depth, med)
@@ -79,15 +87,24 @@ def _write_core(run: pathlib.Path, core_id: str, rng: np.random.Generator, membe
     outlier = np.clip(rng.uniform(0.01, 0.08, size=true_age.size), 0, 1)
     outlier[3] = 0.93
     labels = [f"{core_id}-D{i + 1}" for i in range(date_depth.size)]
-    hpd = [f"{m - 1.96 * s:.0f}-{m + 1.96 * s:.0f}" for m, s in zip(cal_median, sd)]
     dates = pd.DataFrame({
         "label": labels, "depth_cm": date_depth,
         "kind": ["radiocarbon"] * (date_depth.size - 1) + ["calendar"],
         "age": np.round(cal_median * 0.9), "error": np.round(sd * 0.8),
         "exclude": [False, False, False, False, False, True, False],
-        "cal_median": cal_median, "hpd95": hpd, "outlier_prob": outlier,
+        "source_row": np.arange(2.0, 2.0 + date_depth.size),
+        "curve_used": ["atmosphere"] * (date_depth.size - 1) + [None],
+        "event_free_depth_cm": date_depth,
+        "cal_median_bp": cal_median, "cal_mode_bp": cal_median, "cal_mean_bp": cal_median,
+        "hpd95_young_bp": cal_median - 1.96 * sd, "hpd95_old_bp": cal_median + 1.96 * sd,
+        "outlier_prob": outlier, "model_age_median_bp": true_age,
     })
-    atomic_write_parquet(folder / "dates.parquet", dates)
+    _put(run, "dates", dates, core_id)
+    ranges = pd.DataFrame([(label, level, m - z * s, m + z * s, level)
+                           for label, m, s in zip(labels, cal_median, sd)
+                           for level, z in ((0.683, 1.0), (0.954, 2.0))],
+                          columns=["label", "level", "young_cal_bp", "old_cal_bp", "probability"])
+    _put(run, "date_ranges", ranges, core_id)
     grid = np.arange(-100.0, 14000.0, 10.0)
     dens = []
     for label, m, s in zip(labels, cal_median, sd):
@@ -95,33 +112,40 @@ def _write_core(run: pathlib.Path, core_id: str, rng: np.random.Generator, membe
         keep = d > 1e-4
         dens.append(pd.DataFrame({"label": label, "age_cal_bp": grid[keep],
                                   "density": d[keep] / (d[keep].sum() * 10.0)}))
-    atomic_write_parquet(folder / "date_densities.parquet", pd.concat(dens, ignore_index=True))
+    _put(run, "date_densities", pd.concat(dens, ignore_index=True), core_id)
     if not with_calibration:
         return
 
     sample_depth = np.arange(2.0, 300.0, 4.0)
-    sample_ens = np.vstack([np.interp(d, depth, ens[:, 0]) for d in sample_depth])
     sample_age = np.array([np.interp(d, depth, med) for d in sample_depth])
     temp = _truth_temperature(sample_age)[:, None] + rng.normal(0, 0.5, (sample_depth.size, members))
     samples = pd.DataFrame({"depth_cm": sample_depth, "proxy": "mgca_mmol_mol",
-                            "variable": "sst", "units": "degC"})
-    samples = pd.concat([samples, pd.DataFrame(_bands(temp, "value"))], axis=1)
-    atomic_write_parquet(folder / "calibrated_samples.parquet", samples)
-    del sample_ens
+                            "variable": "sst", "units": "degC", "method": "exponential equation"})
+    q = np.quantile(temp, [0.5, 0.025, 0.975], axis=1)
+    samples = samples.assign(value_median=q[0], value_q025=q[1], value_q975=q[2],
+                             value_mean=temp.mean(axis=1), value_sd=temp.std(axis=1, ddof=1),
+                             source_row=np.arange(2, 2 + sample_depth.size))
+    _put(run, "calibrated_samples", samples, core_id)
     skill = pd.DataFrame({"proxy": ["mgca_mmol_mol", "pollen"], "variable": ["sst", "tjul"],
+                          "units": ["degC", "degC"],
                           "method": ["exponential equation", "WA-PLS"],
                           "reference": ["equation A", "training set 'meadows'"],
-                          "training": ["", "meadows"],
                           "r2": [0.71, 0.64], "rmse": [0.93, 1.21],
-                          "RE": [0.42, np.nan], "CE": [0.31, np.nan]})
-    atomic_write_parquet(folder / "calibration.parquet", skill)
+                          "re": [0.42, np.nan], "ce": [0.31, np.nan]})
+    _put(run, "calibration", skill, core_id)
     distance = rng.gamma(4.0, 0.05, sample_depth.size) + 0.25 * (sample_age > STEP_AGE)
-    diagnostics = pd.DataFrame({"depth_cm": sample_depth, "proxy": "pollen",
-                                "min_distance": distance,
-                                "distance_threshold_good": 0.2,
-                                "distance_threshold_poor": 0.45,
-                                "missing_taxa_share": rng.uniform(0, 0.1, sample_depth.size)})
-    atomic_write_parquet(folder / "calibration_diagnostics.parquet", diagnostics)
+    missing = rng.uniform(0, 10, sample_depth.size)
+    diagnostics = pd.DataFrame({"depth_cm": sample_depth, "proxy": "pollen", "training": "meadows",
+                                "prediction": _truth_temperature(sample_age),
+                                "prediction_error": 1.2,
+                                "nearest_analogue_distance": distance,
+                                "good_analogue_limit": 0.2,
+                                "no_analogue_limit": 0.45,
+                                "analogue_quality": np.where(distance < 0.2, "good",
+                                                             np.where(distance < 0.45, "fair", "none")),
+                                "missing_taxa_percent": missing,
+                                "n_missing_taxa": np.round(missing / 2).astype(np.int64)})
+    _put(run, "calibration_diagnostics", diagnostics, core_id)
     if not with_reconstruction:
         return
 
@@ -139,16 +163,17 @@ def _write_core(run: pathlib.Path, core_id: str, rng: np.random.Generator, membe
                        pd.DataFrame({"n_samples": np.where(ages < 11000, 2, 0),
                                      "reference_young_cal_bp": 0.0,
                                      "reference_old_cal_bp": 1000.0})], axis=1)
-    atomic_write_parquet(folder / "reconstruction.parquet", recon)
+    _put(run, "reconstruction", recon, core_id)
     ens_df = pd.concat([
         pd.concat([pd.DataFrame({"age_cal_bp": ages, "variable": "sst", "quantity": quantity}),
-                   pd.DataFrame({f"m{m:04d}": ens[:, m] for m in range(members)})], axis=1)
+                   pd.DataFrame(ens, columns=member_names(members))], axis=1)
         for quantity, ens in (("value", values), ("anomaly", anomalies))], ignore_index=True)
-    atomic_write_parquet(folder / "reconstruction_ensemble.parquet", ens_df)
+    _put(run, "reconstruction_ensemble", ens_df, core_id)
 
     onsets = STEP_AGE + shift + rng.normal(0, 40, members)
     events = pd.DataFrame({
-        "event_id": [1, 2], "variable": ["sst", "sst"], "kind": ["ramp", "change point"],
+        "core_id": core_id, "event_id": [f"{core_id}-E1", f"{core_id}-E2"], "variable": ["sst", "sst"],
+        "kind": ["ramp", "change point"], "direction": ["down", "up"],
         "onset_median": [np.median(onsets), 4100.0],
         "onset_q025": [np.quantile(onsets, 0.025), 3700.0],
         "onset_q975": [np.quantile(onsets, 0.975), 4600.0],
@@ -160,12 +185,15 @@ def _write_core(run: pathlib.Path, core_id: str, rng: np.random.Generator, membe
         "amplitude_median": [1.5, 0.3], "amplitude_q025": [1.2, 0.05],
         "amplitude_q975": [1.8, 0.6],
         "probability": [0.97, 0.22], "p_value": [0.002, 0.31], "significant": [True, False],
+        "n_members": [members, members // 5], "tau_yr": [120.0, 120.0],
     })
-    atomic_write_parquet(folder / "events.parquet", events)
+    _put(run, "events", events, core_id)
     hist, edges = np.histogram(onsets, bins=np.arange(0.0, 12051.0, 50.0))
     prob = pd.DataFrame({"age_cal_bp": ages, "variable": "sst",
                          "probability": np.clip(np.interp(ages, edges[:-1] + 25, hist / members) * 3, 0, 1)})
-    atomic_write_parquet(folder / "event_probability.parquet", prob)
+    _put(run, "event_probability", prob, core_id)
+    _put(run, "event_onsets", pd.DataFrame({"event_id": f"{core_id}-E1", "member": np.arange(members),
+                                            "onset_cal_bp": onsets}), core_id)
 
 
 def make_run_folder(run: pathlib.Path, seed: int = 7, members: int = 40,
@@ -182,40 +210,47 @@ def make_run_folder(run: pathlib.Path, seed: int = 7, members: int = 40,
     _write_core(run, "TARN-2", rng, members, 38.0, True, True)
     _write_core(run, "FJORD-7", rng, members, 45.0, True, False)
     _write_core(run, "BOG-3", rng, members, 30.0, False, False)
+    warning = "chronology: date 'TARN-2-D4' is probably an outlier (posterior probability 0.93)"
     rows = [
-        {"core_id": "TARN-2", "status": "ok", "stage_reached": "events",
-         "warnings": ["date TARN-2-D4 is probably an outlier (p = 0.93)"], "seconds": 4.2},
-        {"core_id": "FJORD-7", "status": "ok", "stage_reached": "calibration",
-         "warnings": [], "seconds": 2.1},
-        {"core_id": "BOG-3", "status": "ok", "stage_reached": "chronology",
-         "warnings": [], "seconds": 1.0},
+        {"core_id": "TARN-2", "folder": "/data/study/cores/TARN-2", "status": "ok", "stage_reached": "events",
+         "n_warnings": 1, "warnings": warning, "notes": "", "error": ""},
+        {"core_id": "FJORD-7", "folder": "/data/study/cores/FJORD-7", "status": "ok",
+         "stage_reached": "calibration", "n_warnings": 0, "warnings": "",
+         "notes": "reconstruction skipped: no calibrated record", "error": ""},
+        {"core_id": "BOG-3", "folder": "/data/study/cores/BOG-3", "status": "ok", "stage_reached": "chronology",
+         "n_warnings": 0, "warnings": "", "notes": "", "error": ""},
     ]
     if with_failed_core:
-        rows.append({"core_id": "MIRE-9", "status": "failed", "stage_reached": "ingest",
-                     "warnings": [], "seconds": 0.1,
-                     "error": "dates.csv, row 4, column 'error': must be > 0 -- fix: give "
+        rows.append({"core_id": "MIRE-9", "folder": "/data/study/cores/MIRE-9", "status": "failed",
+                     "stage_reached": "none", "n_warnings": 0, "warnings": "", "notes": "",
+                     "error": "ingest: dates.csv, row 4, column 'error': must be > 0 -- fix: give "
                               "the 1-sigma error in 14C yr"})
-    summary = pd.DataFrame(rows)
-    summary["warnings"] = summary["warnings"].map(lambda w: "\n".join(w))
-    atomic_write_parquet(run / "summary.parquet", summary)
+    _put(run, "summary", pd.DataFrame(rows))
+    seconds = {"TARN-2": 4.2, "FJORD-7": 2.1, "BOG-3": 1.0, "MIRE-9": 0.1}
+    timings = pd.DataFrame([{"core_id": r["core_id"], "stage": "ingest", "seconds": seconds[r["core_id"]],
+                             "reused": False} for r in rows], columns=list(table("timings").names))
+    atomic_write_text(run / table("timings").path, timings.to_csv(index=False))
 
     ages = np.arange(0.0, 12001.0, 100.0)
     stack_members = _truth_temperature(ages[:, None]) + rng.normal(0, 0.3, (ages.size, members))
     stack_members -= stack_members[ages <= 9000].mean(axis=0)  # departures from the window mean
-    stack = pd.DataFrame({"age_cal_bp": ages, "variable": "sst", "method": "anomaly",
-                          "value_median": np.median(stack_members, axis=1),
-                          "value_q025": np.quantile(stack_members, 0.025, axis=1),
-                          "value_q975": np.quantile(stack_members, 0.975, axis=1),
-                          "n_records": np.where(ages < 9000, 2, 1),
-                          "stack_young_cal_bp": 0.0, "stack_old_cal_bp": 9000.0})
-    atomic_write_parquet(run / "stack.parquet", stack)
+    stack = pd.concat([pd.DataFrame({"age_cal_bp": ages, "variable": "sst", "method": "anomaly"}),
+                       pd.DataFrame(_bands(stack_members, "value")),
+                       pd.DataFrame({"n_records": np.where(ages < 9000, 2, 1),
+                                     "stack_young_cal_bp": 0.0, "stack_old_cal_bp": 9000.0})], axis=1)
+    _put(run, "stack", stack)
 
     observed = rng.uniform(6.0, 18.0, 80)
-    cv = pd.DataFrame({"observed": observed, "predicted": observed + rng.normal(0, 1.1, 80)})
-    atomic_write_parquet(run / "training" / "meadows_cv.parquet", cv)
-    perf = pd.DataFrame({"component": [1, 2], "rmsep": [1.21, 1.18], "r2": [0.62, 0.64],
-                         "max_bias": [1.9, 1.7]})
-    atomic_write_parquet(run / "training" / "meadows_skill.parquet", perf)
+    predicted = observed + rng.normal(0, 1.1, 80)
+    cv = pd.DataFrame({"id": [f"site-{i:02d}" for i in range(80)], "observed": observed,
+                       "predicted": predicted, "residual": predicted - observed, "n_components": 2})
+    _put(run, "training_cv", cv, name="meadows")
+    skill = pd.DataFrame({"training": "meadows", "model": "wapls", "validation": "loo",
+                          "n_components": [1, 2], "rmse_apparent": [1.05, 0.98], "rmsep": [1.21, 1.18],
+                          "r2_apparent": [0.70, 0.73], "r2_cv": [0.62, 0.64],
+                          "mean_bias_cv": [0.02, 0.01], "segment_bias_cv": [1.9, 1.7],
+                          "rmsep_vs_fewer_percent": [np.nan, -2.5], "chosen": [False, True]})
+    _put(run, "training_skill", skill, name="meadows")
 
     manifest = {
         "format": "downcore-manifest/1",

@@ -49,8 +49,10 @@ def _tiny_problem(seed=3):
     size = 20
     mass = rng.random((3, size)) ** 4
     mass /= mass.sum(axis=1, keepdims=True)
+    broad = 0.2 * rng.random((3, size)) / size  # a non-flat outlier part, not normalised to the grid
     return AccumulationProblem(np.array([0.0, 5.0, 5.0, 12.0]), np.array([False, True, False]),
-                               np.array([0, 3, 3]), mass, np.array([0.1, 0.2, 0.05]), 0.0, 10.0, 5.0)
+                               np.array([0, 3, 3]), mass, np.array([0.1, 0.2, 0.05]), 0.0, 10.0, 5.0,
+                               outlier_mass=broad)
 
 
 def _enumerate(problem, kernels):
@@ -70,11 +72,12 @@ def _enumerate(problem, kernels):
         if w == 0.0:
             continue
         like = np.array([per[d, path[k]] for d, k in enumerate(problem.date_node)])
+        broad = np.array([problem.outlier_likelihoods()[d, path[k]] for d, k in enumerate(problem.date_node)])
         w *= like.prod()
         total += w
         for k in range(problem.n_nodes):
             post[k, path[k]] += w
-        outlier += w * (problem.outlier_prior / size) / like
+        outlier += w * problem.outlier_prior * broad / like
     return np.log(total), post / total, outlier / total
 
 
@@ -122,14 +125,16 @@ def test_gamma_process_kernels_add_up():
 
 
 def test_node_placement():
-    nodes, gap = place_nodes(0.0, 20.0, 5.0, [3.0, 7.5, 7.5], [12.0])
-    np.testing.assert_array_equal(nodes, [0, 3, 5, 7.5, 10, 12, 12, 15, 20])
+    nodes, gap = place_nodes(0.0, 20.0, 5.0, [3.0, 7.5, 7.5, 16.0], [12.0])
+    # the ladder node at 15 cm gives way to the date at 16 cm (closer than 5/3 cm)
+    np.testing.assert_array_equal(nodes, [0, 3, 5, 7.5, 10, 12, 12, 16, 20])
     assert list(np.flatnonzero(gap)) == [5]
 
 
 def test_quantiles_agree_with_emcee():
     """Continuous model sampled by emcee vs our 1-yr grid: node-age quantiles within 4 yr."""
-    emcee = pytest.importorskip("emcee")
+    import emcee
+
     nodes = np.array([0.0, 10.0, 20.0, 30.0])
     dates = np.array([[40.0, 15.0], [190.0, 25.0], [260.0, 30.0]])  # age, sd at nodes 0, 2, 3
     date_node = np.array([0, 2, 3])
@@ -261,8 +266,14 @@ def test_stage_outputs_and_reproducibility(model):
     dates = a.dates
     assert dates["label"].iloc[0] == "core top" and dates["age"].iloc[0] == -68.0
     assert dates["error"].iloc[0] == 5.0  # settings default: core.toml gives no top_age_error
-    for column in ("cal_median_bp", "hpd95_ranges", "hpd95_young_bp", "hpd95_old_bp", "outlier_prob", "source_row"):
+    for column in ("cal_median_bp", "hpd95_young_bp", "hpd95_old_bp", "outlier_prob", "source_row"):
         assert column in dates
+    ranges = a.date_ranges
+    assert set(ranges["label"]) == set(dates["label"]) and set(ranges["level"]) == {0.683, 0.954}
+    wide = ranges[ranges["level"] == 0.954].groupby("label", sort=False)
+    np.testing.assert_allclose(wide["young_cal_bp"].min()[dates["label"]], dates["hpd95_young_bp"])
+    np.testing.assert_allclose(wide["old_cal_bp"].max()[dates["label"]], dates["hpd95_old_bp"])
+    assert (wide["probability"].sum() >= 0.954 - 0.01).all()
     assert dates["outlier_prob"].between(0, 1).all()
     np.testing.assert_allclose(a.age_at([60.0])[0], a.ensemble[60])
 
@@ -305,14 +316,14 @@ def test_stage_reports_bad_curves_with_rows():
 
 def test_settings_from_mapping():
     settings = ChronologySettings.from_mapping({"model": "interpolation", "join": "smooth", "grid_step_yr": "auto",
-                                                "rate_shapes": [2, 4], "outlier_prior": 0})
-    assert settings.model == "interpolation" and settings.rate_shapes == (2.0, 4.0)
+                                                "rate_variability": [0.5, 1], "outlier_prior": 0})
+    assert settings.model == "interpolation" and settings.rate_variability == (0.5, 1.0)
     assert settings.grid_step_yr is None and settings.outlier_prior == 0.0
     with pytest.raises(InputError) as caught:
         ChronologySettings.from_mapping({"model": "magic", "node_spacing_cm": -1, "bogus": 1,
-                                         "student_t": "yes", "rate_multipliers": []}, where="run.toml [chronology]")
+                                         "student_t": "yes", "mean_rate_factors": []}, where="run.toml [chronology]")
     columns = {p.column for p in caught.value.problems}
-    assert columns == {"model", "node_spacing_cm", "bogus", "student_t", "rate_multipliers"}
+    assert columns == {"model", "node_spacing_cm", "bogus", "student_t", "mean_rate_factors"}
     assert all(p.file == "run.toml [chronology]" for p in caught.value.problems)
 
 

@@ -12,7 +12,8 @@ from proxies.events.changepoints import bic_penalty, optimal_partitioning, pelt,
 @pytest.fixture(scope="module")
 def nile():
     """Annual flow of the Nile at Aswan 1871-1970 (statsmodels.datasets.nile)."""
-    datasets = pytest.importorskip("statsmodels.datasets")
+    from statsmodels import datasets
+
     data = datasets.nile.load_pandas().data
     return data["year"].to_numpy(), data["volume"].to_numpy(dtype=float)
 

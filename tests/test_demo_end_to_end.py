@@ -54,6 +54,14 @@ def _parquet_bytes(run: pathlib.Path) -> dict[str, bytes]:
     return {p.relative_to(run).as_posix(): p.read_bytes() for p in sorted(run.rglob("*.parquet"))}
 
 
+
+def test_demo_tables_fit_the_schema(demo_runs):
+    """Every Parquet file of the demo run is declared in pipelines/outputs_schema.py and
+    holds no undeclared column."""
+    from pipelines.outputs_schema import run_folder_problems
+
+    assert run_folder_problems(demo_runs[0]) == []
+
 def test_two_demo_runs_give_byte_identical_parquet(demo_runs):
     a, b, _ = demo_runs
     bytes_a, bytes_b = _parquet_bytes(a), _parquet_bytes(b)
@@ -65,6 +73,10 @@ def test_replay_of_the_demo_manifest_exits_zero(demo_runs):
     a, _, root = demo_runs
     replay = _downcore("replay", str(a / "manifest.json"), "--out", str(root / "replayed"), "-q")
     assert replay.returncode == 0, replay.stdout[-3000:] + replay.stderr[-3000:]
+    table = pd.read_csv(root / "replayed-replay.csv")  # the replay table is written
+    assert len(table) >= 40 and set(table["verdict"]) <= {"identical", "within tolerance",
+                                                          "same content", "not compared"}
+    assert (table["verdict"] == "identical").sum() >= 40
 
 
 @pytest.mark.parametrize("core_id", ["ULLA-1", "TEL-07", "CORV-3", "TEL-12"])
@@ -140,3 +152,5 @@ def test_report_and_netcdf_of_the_demo(demo_runs):
     with xr.open_dataset(a / "reconstructions.nc") as data:
         assert len(data.data_vars) > 0
         assert all("units" in data[name].attrs for name in data.data_vars)
+        years = [when.year for when in data["time"].values]  # decoded with cftime (declared)
+        assert years == [int(np.floor(1950.0 - age)) for age in data["age"].values]

@@ -145,7 +145,8 @@ def test_invented_curves_parse_like_the_published_intcal20_file(intcal20_path):
     """The project's curve reader reads our file and the published IntCal20 file (Reimer et al.
     2020, doi:10.1017/RDC.2020.41) alike; the invented curve is plausible (within 400 14C yr of
     IntCal20 between 4 and 10 ka) but is NOT the real curve (more than 500 yr off at 14 ka)."""
-    curves = pytest.importorskip("proxies.chronology.curves")
+    from proxies.chronology import curves
+
     ours = curves.parse_curve_text((DEMO / "curves" / "invented_atmosphere.14c").read_text(), "atmosphere")
     real = curves.parse_curve_text(intcal20_path.read_text(), "intcal20")
     grid = np.arange(4000.0, 10001.0, 50.0)
@@ -371,7 +372,8 @@ def test_instrumental_series_is_truth_plus_station_noise():
 
 @pytest.mark.parametrize("core_id", ["ULLA-1", "TEL-07", "CORV-3", "TEL-12"])
 def test_core_folder_passes_ingest_and_composite_depths_match_truth(core_id):
-    ingest = pytest.importorskip("pipelines.ingest")
+    from pipelines import ingest
+
     core, problems = ingest.inspect_core(DEMO / "cores" / core_id, year=2026,
                                          curve_names={"atmosphere", "marine"})
     assert problems == [] and core is not None
@@ -382,7 +384,8 @@ def test_core_folder_passes_ingest_and_composite_depths_match_truth(core_id):
 
 @pytest.mark.parametrize("name", ["run.toml", "run_minimal.toml"])
 def test_run_configs_pass_the_check(name):
-    config = pytest.importorskip("pipelines.config")
+    from pipelines import config
+
     assert config.check_run_config(DEMO / name, year=2026) == []
     loaded = config.load_run_config(DEMO / name)
     assert loaded.ensemble == 300 and len(loaded.core_folders) == 4

@@ -20,7 +20,8 @@ from pipelines.runfolder import RunFolderError, read_parquet
 
 pytestmark = pytest.mark.usefixtures("prefect_harness")
 
-CORE_FILES = {"chronology.parquet", "age_ensemble.parquet", "dates.parquet", "date_densities.parquet", "calibration.parquet",
+CORE_FILES = {"chronology.parquet", "age_ensemble.parquet", "dates.parquet", "date_ranges.parquet",
+              "date_densities.parquet", "hyperparameters.parquet", "calibration.parquet",
               "calibrated_samples.parquet", "calibration_diagnostics.parquet",
               "reconstruction.parquet", "reconstruction_ensemble.parquet", "events.parquet",
               "event_probability.parquet", "event_onsets.parquet", "log.txt"}
@@ -47,6 +48,19 @@ def small_archive(tmp_path_factory):
 def first_run(small_archive):
     root, config = small_archive
     return _run(config, root / "runs" / "first", root / "cache")
+
+
+def test_every_table_the_pipeline_writes_fits_the_schema(first_run):
+    """A real run (chronology to events, training set, stack, a failed core): every Parquet
+    file is declared in pipelines/outputs_schema.py, with no undeclared column, every
+    required column and the declared dtypes; so is timings.csv."""
+    from pipelines.outputs_schema import TABLES, file_problems, run_folder_problems
+
+    run = first_run.run_dir
+    assert run_folder_problems(run) == []
+    assert file_problems(run / "timings.csv", TABLES["timings"]) == []
+    written = {p.relative_to(run).as_posix() for p in run.rglob("*.parquet")}
+    assert "SYN-000/date_ranges.parquet" in written and "stack.parquet" in written
 
 
 def test_failing_core_is_isolated_and_reported(first_run):
@@ -118,11 +132,12 @@ def test_changed_core_file_recomputes_only_that_core(tmp_path):
 
 
 def test_minimal_config_runs_with_defaults_and_notes_skipped_stages(tmp_path):
-    """[run] and [curves] only: chronology runs; calibration has nothing to do (noted)."""
+    """[run] and [curves] only: chronology runs; calibration has nothing to do (noted); the
+    core is "dated", not "ok"."""
     config = write_archive(tmp_path, n_cores=1, ensemble=30, n_dates=4, n_samples=12)
     outcome = _run(config, tmp_path / "r", tmp_path / "cache")
     row = outcome.summary.iloc[0]
-    assert row["status"] == "ok" and row["stage_reached"] == "calibration"
+    assert row["status"] == "dated" and row["stage_reached"] == "calibration"
     assert "reconstruction skipped" in row["notes"]
     assert (outcome.run_dir / "SYN-000" / "age_ensemble.parquet").is_file()
     ensemble = read_parquet(outcome.run_dir / "SYN-000" / "age_ensemble.parquet")

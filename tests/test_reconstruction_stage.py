@@ -29,8 +29,13 @@ def test_table_has_the_contract_columns_and_ordered_bands(synthetic):
     bands = table[["value_q025", "value_q160", "value_median", "value_q840", "value_q975"]].dropna()
     assert len(bands) > 100 and (np.diff(bands.to_numpy(), axis=1) >= 0).all()
     grid = result.series["temperature"].age_cal_bp
-    assert np.all(np.diff(grid) == 50.0) and len(table) == grid.size
+    # grid_step_yr = "auto": samples every 1 cm at 20 yr/cm -> median spacing ~20 yr -> 20 yr
+    assert np.all(np.diff(grid) == 20.0) and len(table) == grid.size
+    assert any("every 20 yr (median sample spacing 20 yr" in n for n in result.notes)
     assert table["n_samples"].dtype == np.int64 and table["n_samples"].min() >= 0
+    given = reconstruct_core(core, chron, cal, ReconstructionSettings(grid_step_yr=50.0),
+                             np.random.default_rng(0))
+    assert np.all(np.diff(given.series["temperature"].age_cal_bp) == 50.0)
 
 
 def test_member_m_pairs_values_with_age_path_m(synthetic):
@@ -40,7 +45,8 @@ def test_member_m_pairs_values_with_age_path_m(synthetic):
     record = cal.records[0]
     ages = chron.age_at(record.depth_cm)
     spy = CalibratedRecord("age_probe", "age_probe", "yr", "test", "none", record.depth_cm, ages.copy())
-    result = reconstruct_core(core, chron, FakeCalibration([spy]), ReconstructionSettings(grid_step_yr=100.0),
+    result = reconstruct_core(core, chron, FakeCalibration([spy]), ReconstructionSettings(grid_step_yr=100.0,
+                                                                                    binning="bin"),
                               np.random.default_rng(0))
     s = result.series["age_probe"]
     centre = s.age_cal_bp[:, None]
@@ -66,16 +72,32 @@ def test_ensemble_table_holds_every_member(synthetic):
 def test_interpolation_mode_and_empty_cells(synthetic):
     core, chron, cal, _, _ = synthetic
     # 10-yr cells with 20-yr sample spacing: about half the cells are empty when binning.
-    fine = ReconstructionSettings(grid_step_yr=10.0)
+    fine = ReconstructionSettings(grid_step_yr=10.0, binning="bin")
     binned = reconstruct_core(core, chron, cal, fine, np.random.default_rng(0))
     s = binned.series["temperature"]
     assert 0.3 < s.n_empty / s.age_cal_bp.size < 0.7
     assert binned.table.loc[binned.table["n_samples"] == 0, "value_median"].isna().all()
-    assert any("left empty" in w for w in binned.warnings)
-    interp = reconstruct_core(core, chron, cal, ReconstructionSettings(grid_step_yr=10.0, binning="interpolate"),
-                              np.random.default_rng(0))
-    inner = interp.table.iloc[5:-5]
-    assert inner["value_median"].notna().all()
+    assert any("left empty" in n for n in binned.notes)
+    for binning in ("interpolate", "filled"):
+        interp = reconstruct_core(core, chron, cal, ReconstructionSettings(grid_step_yr=10.0, binning=binning),
+                                  np.random.default_rng(0))
+        inner = interp.table.iloc[5:-5]
+        assert inner["value_median"].notna().all()
+        # the notes say what was done: interpolated, not "left empty"
+        assert any("between neighbouring samples they are interpolated" in n for n in interp.notes)
+        assert not any("left empty" in n for n in interp.notes) and not interp.thin
+
+
+def test_filled_keeps_cell_means_where_samples_are(synthetic):
+    """binning = 'filled': cells holding samples carry exactly the cell means of 'bin'; the
+    other cells inside the record carry the interpolation of 'interpolate'."""
+    core, chron, cal, _, _ = synthetic
+    results = {b: reconstruct_core(core, chron, cal, ReconstructionSettings(grid_step_yr=10.0, binning=b),
+                                   np.random.default_rng(0)).series["temperature"].values
+               for b in ("bin", "interpolate", "filled")}
+    has_mean = np.isfinite(results["bin"])
+    np.testing.assert_array_equal(results["filled"][has_mean], results["bin"][has_mean])
+    np.testing.assert_array_equal(results["filled"][~has_mean], results["interpolate"][~has_mean])
 
 
 def test_same_inputs_same_table_and_two_records_of_one_variable(synthetic):

@@ -21,8 +21,7 @@ from pipelines.report.figures_chronology import (OUTLIER_LINE, deposition_time_f
 from pipelines.report.figures_events import event_figure
 from pipelines.report.style import without_embedded_pictures
 from pipelines.report.figures_reconstruction import band_pairs, reconstruction_figure
-from pipelines.report.rundata import (_warning_list, hpd_ranges_of, read_run,
-                                      reconstruction_series)
+from pipelines.report.rundata import _warning_list, read_run, reconstruction_series
 from pipelines.runfolder import atomic_write_parquet
 from run_folder_factory import make_run_folder
 
@@ -213,14 +212,14 @@ def test_analogue_figure_plots_distances_against_median_age(run_dir):
     core = _core(run_dir, "TARN-2")
     fig = analogue_figure(core)
     ax = fig.axes[0]
-    assert ax.get_ylabel() == "min distance"
+    assert ax.get_ylabel() == "nearest analogue distance"
     diag = core.table("calibration_diagnostics")
     chron = core.table("chronology")
     expected_age = np.interp(diag["depth_cm"], chron["depth_cm"], chron["age_median"])
     line = ax.lines[0]
     order = np.argsort(expected_age)
     np.testing.assert_allclose(line.get_xdata(), expected_age[order])
-    np.testing.assert_allclose(line.get_ydata(), diag["min_distance"].to_numpy()[order])
+    np.testing.assert_allclose(line.get_ydata(), diag["nearest_analogue_distance"].to_numpy()[order])
     levels = sorted(ln.get_ydata()[0] for ln in ax.lines[1:])
     assert levels == [0.2, 0.45]  # the two thresholds of the table
     assert ax.xaxis_inverted()  # older ages to the left
@@ -274,28 +273,23 @@ def test_palette_survives_greyscale():
 
 # --- reading helpers --------------------------------------------------------------------------
 
-@pytest.mark.parametrize("cell, expected", [
-    ("4870-5120; 5150-5200", [(4870, 5120), (5150, 5200)]),
-    ("-50–120", [(-50, 120)]),
-    ("5048 to 5201 (62.7%); 5209 to 5310 (32.9%)", [(5048, 5201), (5209, 5310)]),
-    (json.dumps([[4870, 5120, 0.91], [5150, 5200, 0.04]]), [(4870, 5120), (5150, 5200)]),
-    (None, []),
-])
-def test_hpd_ranges_from_text(cell, expected):
-    dates = pd.DataFrame({"label": ["a"], "depth_cm": [1.0], "hpd95": pd.Series([cell], dtype=object)})
-    assert hpd_ranges_of(dates) == [expected]
+def test_hpd_ranges_come_from_the_numeric_range_table():
+    """Ranges are read as numbers from date_ranges.parquet, by label and level, in the row
+    order of dates.parquet; a date without a range row has none (nothing is parsed)."""
+    from pipelines.report.rundata import CoreData
 
-
-def test_hpd_ranges_from_column_pair():
-    dates = pd.DataFrame({"label": ["a", "b"], "hpd95_young": [100.0, np.nan],
-                          "hpd95_old": [300.0, 5.0]})
-    assert hpd_ranges_of(dates) == [[(100.0, 300.0)], []]
+    dates = pd.DataFrame({"label": ["b", "a", "c"], "depth_cm": [1.0, 2.0, 3.0]})
+    ranges = pd.DataFrame({"label": ["a", "a", "a", "b"], "level": [0.683, 0.954, 0.954, 0.954],
+                           "young_cal_bp": [4900.0, 4870.0, 5150.0, 100.0],
+                           "old_cal_bp": [5100.0, 5120.0, 5200.0, 300.0],
+                           "probability": [0.683, 0.91, 0.044, 0.954]})
+    core = CoreData(core_id="X", tables={"dates": dates, "date_ranges": ranges})
+    assert core.hpd_ranges(0.954) == [[(100.0, 300.0)], [(4870.0, 5120.0), (5150.0, 5200.0)], []]
+    assert core.hpd_ranges(0.683) == [[], [(4900.0, 5100.0)], []]
 
 
 @pytest.mark.parametrize("cell, expected", [
-    (["a", "b"], ["a", "b"]), ("one\ntwo", ["one", "two"]), ('["x"]', ["x"]),
-    ("first | second", ["first", "second"]),
-    (0, []), (3, ["3 warning(s); see log.txt"]), (None, []), (float("nan"), []),
+    ("first | second", ["first", "second"]), ("only one", ["only one"]), ("", []), (None, []),
 ])
 def test_warning_cells(cell, expected):
     assert _warning_list(cell) == expected

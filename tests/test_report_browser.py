@@ -130,7 +130,8 @@ def _debug_port(profile: pathlib.Path, process: subprocess.Popen) -> int:
 def chromium(tmp_path):
     if not CHROMIUM.exists():
         pytest.skip("/usr/bin/chromium is not installed (apt-get install chromium)")
-    pytest.importorskip("websockets.sync.client")
+    import websockets.sync.client  # noqa: F401 - declared in the test extra: fail, never skip
+
     profile = tmp_path / "chromium-profile"
     profile.mkdir()
     process = subprocess.Popen([str(CHROMIUM), *FLAGS, f"--user-data-dir={profile}", "about:blank"],

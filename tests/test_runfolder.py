@@ -11,9 +11,10 @@ import pandas as pd
 import pytest
 
 from pipelines import runfolder
+from readonly import read_only_folder
 from pipelines.runfolder import (IN_PROGRESS_MARKER, RunFolderError, atomic_write_bytes,
                                  atomic_write_json, atomic_write_parquet, create_run_folder,
-                                 parquet_bytes, read_parquet, sha256_file)
+                                 parquet_bytes, read_parquet, release_run_folder, sha256_file)
 
 
 def _table(seed: int = 0) -> pd.DataFrame:
@@ -43,10 +44,12 @@ def test_non_empty_folder_is_refused(tmp_path):
 def test_unfinished_run_needs_resume_and_finished_run_is_never_reused(tmp_path):
     folder = create_run_folder(tmp_path / "run")
     (folder / "half.parquet").write_bytes(b"x")
+    release_run_folder(folder, finished=False)  # as if the run had died
     with pytest.raises(RunFolderError, match="--resume"):
         create_run_folder(folder)
     create_run_folder(folder, resume=True)
     assert not (folder / "half.parquet").exists()
+    release_run_folder(folder, finished=False)
     (folder / "manifest.json").write_text("{}")
     with pytest.raises(RunFolderError, match="never overwrites"):
         create_run_folder(folder, resume=True)
@@ -100,16 +103,10 @@ def test_disk_full_and_permission_errors_are_clear_and_leave_nothing(tmp_path, m
     assert sorted(p.name for p in tmp_path.iterdir()) == ["out.parquet"]
 
 
-@pytest.mark.skipif(os.geteuid() == 0, reason="root ignores file permissions")
 def test_read_only_folder_gives_permission_error(tmp_path):
-    folder = tmp_path / "ro"
-    folder.mkdir()
-    folder.chmod(0o555)
-    try:
+    with read_only_folder(tmp_path / "ro") as folder:
         with pytest.raises(RunFolderError, match="permission denied"):
             atomic_write_bytes(folder / "x.bin", b"1")
-    finally:
-        folder.chmod(0o755)
 
 
 def test_publish_folder_keeps_first_copy(tmp_path):

@@ -6,7 +6,7 @@ import numpy as np
 import pytest
 
 from proxies.reconstruction import GridSeries, ReconstructionSettings, stack_records
-from proxies.reconstruction.stack import standardise_over_window
+from proxies.reconstruction.stack import coarsen_series, standardise_over_window
 
 
 class _Result:
@@ -60,17 +60,45 @@ def test_zscore_has_unit_spread_over_the_window():
     np.testing.assert_allclose(z.std(axis=0, ddof=1), 1.0)
 
 
-def test_different_ensemble_sizes_are_resampled_and_grid_steps_must_agree():
+def test_different_ensemble_sizes_are_resampled_and_finer_grids_are_coarsened():
     rng = np.random.default_rng(3)
     ages = np.arange(0.0, 501.0, 50.0)
     results = {"A": _Result({"t": _series(ages, rng.normal(size=(ages.size, 30)), "t")}),
                "B": _Result({"t": _series(ages, rng.normal(size=(ages.size, 80)), "t")})}
     stack = stack_records(results, ReconstructionSettings(), rng)
     assert len(stack) == ages.size and stack["value_median"].notna().all()
+    # a core whose automatic grid step is 25 yr joins on the coarsest step, 50 yr
     other = np.arange(0.0, 501.0, 25.0)
     results["C"] = _Result({"t": _series(other, rng.normal(size=(other.size, 30)), "t")})
-    with pytest.raises(ValueError, match="grid steps"):
-        stack_records(results, ReconstructionSettings(), rng)
+    with pytest.warns(UserWarning, match="stacked on the coarsest, 50 yr"):
+        stack = stack_records(results, ReconstructionSettings(), rng)
+    np.testing.assert_array_equal(stack["age_cal_bp"], ages)
+    assert (stack["n_records"] == 3).all()
+
+
+def test_coarsen_series_is_the_mean_of_the_fine_cells_in_each_coarse_cell():
+    """Brute force: coarse cell k (centre 50 k, half-open [50 k - 25, 50 k + 25)) holds the
+    fine 10-yr cells whose centres fall inside it."""
+    fine = np.arange(0.0, 301.0, 10.0)
+    values = np.random.default_rng(5).normal(size=(fine.size, 4))
+    values[7, 2] = np.nan
+    coarse, means = coarsen_series(fine, values, 50.0)
+    np.testing.assert_array_equal(coarse, np.arange(0.0, 301.0, 50.0))
+    for k, centre in enumerate(coarse):
+        inside = (fine >= centre - 25) & (fine < centre + 25)
+        np.testing.assert_allclose(means[k], np.nanmean(values[inside], axis=0))
+
+
+def test_records_without_values_are_not_counted():
+    """An empty record (no value at all) is left out: the composite is the other record's and
+    n_records counts 1, not 2."""
+    rng = np.random.default_rng(6)
+    ages = np.arange(0.0, 501.0, 50.0)
+    full = rng.normal(size=(ages.size, 20))
+    results = {"A": _Result({"t": _series(ages, full, "t")}),
+               "E": _Result({"t": _series(ages, np.full((ages.size, 20), np.nan), "t")})}
+    stack = stack_records(results, ReconstructionSettings(), rng)
+    assert (stack["n_records"] == 1).all() and stack["value_median"].notna().all()
 
 
 def test_records_are_grouped_by_climate_variable():

@@ -77,11 +77,12 @@ def test_parquet_rows_are_numbered_as_if_the_header_were_row_1(tmp_path):
 @pytest.mark.parametrize(
     "name, content, words",
     [
-        ("t.txt", b"a,b\n1,2\n", "unknown table format"),
+        ("t.dat", b"a,b\n1,2\n", "unknown table format"),
         ("t.csv", b"", "empty"),
         ("t.csv", b"\n\n", "empty"),
         ("t.csv", b"depth_cm,uk37\n", "no data rows"),
-        ("t.csv", b"\x89PNG\r\n\x1a\n\x00\xff", "not a readable text table"),
+        ("t.csv", b"\x89PNG\r\n\x1a\n\x00\xff", "not a text file"),
+        ("t.csv", b"depth_cm,note\n1,caf\xe9\n", "not UTF-8 text"),
         ("t.csv", b"a,a\n1,2\n", "appears twice"),
         ("t.csv", b"a,,b\n1,2,3\n", "has no name"),
         ("t.csv", b"a,b\n1,2,3\n", "3 cells"),

@@ -72,3 +72,37 @@ def test_fill_gaps_interpolates_inside_and_holds_edges():
     filled = fill_gaps(x)
     np.testing.assert_allclose(filled[:, 0], [2.0, 2.0, 4.0, 6.0])
     np.testing.assert_allclose(filled[:, 1], [1.0, 2.0, 3.0, 3.0])
+
+
+def test_automatic_step_follows_the_sample_spacing():
+    """Median spacing rounded to the nearest 1-2-5 step on a log scale (common practice for
+    bin widths); coarsened when the grid would exceed MAX_GRID_CELLS cells."""
+    from proxies.reconstruction.grid import (MAX_GRID_CELLS, auto_grid_step_yr,
+                                             median_sample_spacing_yr, round_to_standard_step)
+
+    ages = np.cumsum(np.random.default_rng(1).uniform(100.0, 300.0, 60))
+    spacing = median_sample_spacing_yr(ages[::-1])  # order does not matter
+    assert 150.0 < spacing < 250.0 and round_to_standard_step(spacing) == 200.0
+    assert [round_to_standard_step(v) for v in (0.4, 1.4, 1.5, 3.2, 7.0, 14.0, 15.0, 35.0, 70.0, 72.0)] == \
+        [1.0, 1.0, 2.0, 5.0, 5.0, 10.0, 20.0, 50.0, 50.0, 100.0]
+    assert np.isnan(median_sample_spacing_yr([5.0, np.nan]))
+    assert auto_grid_step_yr(200.0, 9000.0) == 200.0
+    step = auto_grid_step_yr(1.0, 12000.0)
+    assert 12000.0 / step <= MAX_GRID_CELLS and step == 5.0
+
+
+def test_filled_bridges_short_gaps_only():
+    """One member, samples at 0, 100, 200 and 800 yr: with max_gap_yr = 300 the cells between
+    200 and 800 stay empty, the others get cell means or the straight line between samples."""
+    from proxies.reconstruction.grid import bin_means_filled
+
+    ages = np.array([[0.0], [100.0], [200.0], [800.0]])
+    values = np.array([[0.0], [1.0], [2.0], [8.0]])
+    grid = regular_grid(0.0, 800.0, 50.0)
+    filled, counts = bin_means_filled(ages, values, grid, max_gap_yr=300.0)
+    col = filled[:, 0]
+    np.testing.assert_allclose(col[grid <= 200.0], grid[grid <= 200.0] / 100.0)
+    assert np.isnan(col[(grid > 200.0) & (grid < 800.0)]).all() and col[-1] == 8.0
+    assert counts[:, 0].sum() == 4
+    everything, _ = bin_means_filled(ages, values, grid)
+    np.testing.assert_allclose(everything[:, 0], grid / 100.0)

@@ -20,6 +20,7 @@ SUBCOMMANDS: dict[str, str] = {
     "compare": "compare",
     "radiocarbon": "radiocarbon",
     "report": "report",
+    "new-core": "new_core",
 }
 
 #: one-line help shown by ``downcore --help`` without importing every command's module
@@ -28,6 +29,7 @@ SHORT_HELP: dict[str, str] = {
     "demo": "Run the invented demo cores offline and print where the results are.",
     "replay": "Re-run a recorded run from its manifest and compare every output.",
     "compare": "Per core, how chronology, reconstruction and events moved between two runs.",
+    "new-core": "Start a new core folder from a commented template.",
 }
 
 

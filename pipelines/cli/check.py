@@ -5,8 +5,11 @@ and every core it lists are checked, including the dates' curve names against ``
 or a folder holding core folders (each core folder below it is checked). Other files and
 folders without cores are listed as skipped, so ``downcore check demo_cores/*`` checks the
 demo's cores and configs; a call with nothing to check at all is a usage error.
-Prints one line per problem grouped per core, the number of rejected table rows and a
-summary. Exit code 0 when everything is clean, 1 when any problem was found, 2 for usage
+Prints one line per problem grouped per core, in row order, the same problem on several rows
+of a file folded into one line with the rows and their count; then notes on what reading
+skipped (comment lines, title rows, the sheet read), the number of rejected table rows and
+a summary. A run config is checked as ``run`` would meet it (curve files, date ranges, age
+control, memory; :mod:`pipelines.run_checks`). Exit code 0 when everything is clean, 1 when any problem was found, 2 for usage
 errors. Nothing is written.
 """
 
@@ -22,7 +25,7 @@ from rich.text import Text
 
 from proxies.problems import InputError, Problem
 
-__all__ = ["command", "rejected_rows"]
+__all__ = ["command", "rejected_rows", "folded", "in_row_order"]
 
 
 @dataclass
@@ -33,6 +36,7 @@ class _Group:
     problems: list[Problem] = field(default_factory=list)
     summary: str = ""
     is_core: bool = True
+    notes: list[str] = field(default_factory=list)
 
 
 def rejected_rows(problems: list[Problem]) -> int:
@@ -59,17 +63,63 @@ def _core_group(title: str, core, problems: list[Problem]) -> _Group:
 def _check_core(path: Path) -> _Group:
     from pipelines.ingest import inspect_core
 
-    core, problems = inspect_core(str(path))
-    return _core_group(str(path), core, problems)
+    notes: list[str] = []
+    core, problems = inspect_core(str(path), notes=notes)
+    group = _core_group(str(path), core, problems)
+    group.notes = notes
+    return group
 
 
 def _check_config(path: Path) -> list[_Group]:
     from pipelines.config import check_run_config_by_core
 
-    (config_title, (_, config_problems)), *cores = check_run_config_by_core(path).items()
+    notes: list[str] = []
+    (config_title, (_, config_problems)), *cores = check_run_config_by_core(path, notes=notes).items()
     groups = [_Group(title=f"run config {config_title}", problems=config_problems, is_core=False)]
     groups.extend(_core_group(title, core, problems) for title, (core, problems) in cores)
+    for group in groups[1:]:
+        folder = group.title.split("(")[-1].rstrip(")")
+        group.notes = [note for note in notes if note.startswith(folder + "/") or note.startswith(folder + "\\")]
     return groups
+
+
+def in_row_order(problems: list[Problem]) -> list[Problem]:
+    """Problems file by file (in the order the files were first named), each file by row."""
+    first = {}
+    for problem in problems:
+        first.setdefault(problem.file, len(first))
+    return sorted(problems, key=lambda p: (first[p.file], p.row if p.row is not None else 0))
+
+
+def _rows_text(rows: list[int]) -> str:
+    """``[2, 3, 4, 9]`` -> ``"2-4, 9"`` (at most eight spans)."""
+    spans: list[list[int]] = []
+    for row in rows:
+        if spans and row == spans[-1][1] + 1:
+            spans[-1][1] = row
+        else:
+            spans.append([row, row])
+    text = [str(a) if a == b else f"{a}-{b}" for a, b in spans]
+    return ", ".join(text[:8]) + (", ..." if len(text) > 8 else "")
+
+
+def folded(problems: list[Problem]) -> list[str]:
+    """One line per problem, problems repeated on several rows of one file folded into one
+    line naming the rows and their count."""
+    groups: dict[tuple, list[Problem]] = {}
+    for problem in in_row_order(problems):
+        groups.setdefault((problem.file, problem.column, problem.message, problem.fix), []).append(problem)
+    lines = []
+    for (file, column, message, fix), members in groups.items():
+        rows = sorted({p.row for p in members if p.row is not None})
+        if len(members) == 1 or len(rows) < 2:
+            lines.append(str(members[0]))
+            continue
+        where = f"{file}, rows {_rows_text(rows)} ({len(rows)} rows)"
+        if column is not None:
+            where += f", column '{column}'"
+        lines.append(f"{where}: {message}" + (f" -- fix: {fix}" if fix else ""))
+    return lines
 
 
 def _targets(paths: tuple[Path, ...]) -> tuple[list[Path], list[Path], list[Path]]:
@@ -130,8 +180,10 @@ def _print_group(console: Console, group: _Group) -> None:
     elif group.summary:
         line.append(f": {group.summary}")
     console.print(line)
-    for problem in group.problems:
-        console.print(Text("  - " + str(problem)))
+    for note in group.notes:
+        console.print(Text("  note: " + note, style="dim"))
+    for line in folded(group.problems):
+        console.print(Text("  - " + line))
 
 
 @click.command("check")

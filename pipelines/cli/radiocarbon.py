@@ -62,7 +62,8 @@ def ranges_table(inputs, values, errors, median, mode, mean, levels):
 @click.option("--f14c", "as_f14c", is_flag=True, help="Read the ages as F14C:ERROR values.")
 @click.option("--student-t", "student_t", is_flag=True,
               help="Student-t likelihood (Christen & Perez 2009) instead of the normal.")
-@click.option("--step", default=1.0, show_default=True, type=float, help="Calendar grid step [yr].")
+@click.option("--step", default=1.0, show_default=True, type=click.FloatRange(min=0.0, max=100.0, min_open=True),
+              help="Calendar grid step [yr], > 0 and at most 100.")
 @click.option("--csv", "csv_path", default=None, type=click.Path(dir_okay=False),
               help="Also write the results as CSV (one row per HPD range) to this file.")
 def command(ages, curve_path, reservoir, as_f14c, student_t, step, csv_path):

@@ -1,9 +1,11 @@
 """``downcore replay MANIFEST --out DIR``: re-run a recorded run and report, per output,
 identical or different.
 
-Exit status: 0 every output identical (or within the documented tolerance) and no input
-changed; 1 an output differs, is missing or is new; 2 an input changed or is missing (or the
-manifest cannot be read).
+Exit status (README, "Runs, demo, replay and compare"): 0 every output identical (or within
+the documented tolerance, or of the same content) and no input changed; 1 an output differs,
+is missing or is new; 2 an input changed or is missing, the manifest cannot be read or
+``--out`` is refused; 4 the replay could not be completed or an output could not be compared
+(the error is named; this says nothing about reproducibility).
 """
 
 from __future__ import annotations
@@ -13,7 +15,9 @@ import sys
 
 import click
 
-from pipelines.cli.run import executor_options, make_choice
+from pipelines.cli.run import exit_on_input_errors, executor_options, make_choice
+
+EXIT_SAME, EXIT_DIFFERENT, EXIT_INPUT, EXIT_REPLAY_ERROR = 0, 1, 2, 4
 
 
 @click.command(name="replay")
@@ -25,6 +29,13 @@ from pipelines.cli.run import executor_options, make_choice
 def command(manifest, out, show_all, workers, dask_address, dask_local, cache_dir, recompute, quiet) -> None:
     """Re-run the run recorded in MANIFEST (a manifest.json or its run folder) from scratch and
     compare every output with the recorded one."""
+    from pipelines.manifest import read_manifest
+
+    try:
+        read_manifest(manifest)
+    except (ValueError, OSError) as error:
+        click.echo(f"downcore replay: {error}", err=True)
+        sys.exit(EXIT_INPUT)
     from pipelines.flows.runners import apply_environment_defaults
 
     applied = apply_environment_defaults()
@@ -37,16 +48,17 @@ def command(manifest, out, show_all, workers, dask_address, dask_local, cache_di
     server = LocalServer.start_if_needed()
     from pipelines.progress import RunProgress
     from pipelines.replay import replay_run
-    from pipelines.runfolder import RunFolderError, atomic_write_text
-    from proxies.problems import InputError
+    from pipelines.runfolder import atomic_write_text
 
     del recompute  # a replay always recomputes (empty work store unless --cache-dir is given)
     try:
-        report = replay_run(manifest, out, choice=make_choice(workers, dask_address, dask_local),
-                            cache_dir=cache_dir, progress=RunProgress(quiet=quiet), local_server=server)
-    except (ValueError, FileNotFoundError, InputError, RunFolderError) as error:
-        click.echo(f"downcore replay: {error}", err=True)
-        sys.exit(2)
+        with exit_on_input_errors("downcore replay"):
+            report = replay_run(manifest, out, choice=make_choice(workers, dask_address, dask_local),
+                                cache_dir=cache_dir, progress=RunProgress(quiet=quiet), local_server=server)
+    except Exception as error:  # noqa: BLE001 - a failed replay is an error, never "different"
+        click.echo(f"downcore replay: the replay failed ({type(error).__name__}: {error}); "
+                   "nothing was compared", err=True)
+        sys.exit(EXIT_REPLAY_ERROR)
     finally:
         if server is not None:
             server.stop()
@@ -54,7 +66,7 @@ def command(manifest, out, show_all, workers, dask_address, dask_local, cache_di
         click.echo(f"INPUT {change}", err=True)
     if report.replay_dir is None:
         click.echo("downcore replay: the recorded run config is gone; nothing was re-run", err=True)
-        sys.exit(2)
+        sys.exit(EXIT_INPUT)
     table = report.table()
     atomic_write_text(report.replay_dir.parent / f"{report.replay_dir.name}-replay.csv", table.to_csv(index=False))
     counts = table["verdict"].value_counts().to_dict()
@@ -65,6 +77,15 @@ def command(manifest, out, show_all, workers, dask_address, dask_local, cache_di
         click.echo(f"version of {name}: recorded {was}, now {now}")
     click.echo("replay: " + ", ".join(f"{n} {v}" for v, n in sorted(counts.items()))
                + f"; report {report.replay_dir.parent / (report.replay_dir.name + '-replay.csv')}")
+    for row in report.errors:
+        click.echo(f"downcore replay: {row.path}: {row.detail}", err=True)
+    sys.exit(exit_status(report))
+
+
+def exit_status(report) -> int:
+    """The documented exit status of a replay report (see the module docstring)."""
     if report.input_changes:
-        sys.exit(2)
-    sys.exit(0 if report.ok else 1)
+        return EXIT_INPUT
+    if report.errors:
+        return EXIT_REPLAY_ERROR
+    return EXIT_DIFFERENT if report.differences else EXIT_SAME

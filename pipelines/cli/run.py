@@ -6,10 +6,11 @@ summary); 2 bad input (the config, or the output folder); 1 anything else.
 
 from __future__ import annotations
 
+import contextlib
 import os
 import pathlib
 import sys
-from typing import Any, Callable
+from typing import Any, Callable, Iterator
 
 import click
 
@@ -49,8 +50,13 @@ def make_choice(workers: int | None, dask_address: str | None, dask_local: bool)
 
 
 def print_summary(outcome: Any, quiet: bool) -> None:
-    """The per-core table (status, stage reached, warnings, seconds) and where the results are."""
+    """The per-core table (status, stage reached, warnings, seconds) and where the results are;
+    with ``quiet`` only one line on the error stream when cores failed."""
     if quiet:
+        if outcome.failed:
+            click.echo(f"downcore: {len(outcome.failed)} of {len(outcome.summary)} cores failed "
+                       f"({', '.join(outcome.failed[:5])}{', ...' if len(outcome.failed) > 5 else ''}); "
+                       f"see {outcome.run_dir / 'summary.parquet'}", err=True)
         return
     seconds = outcome.timings.groupby("core_id")["seconds"].sum() if len(outcome.timings) else {}
     rows = []
@@ -82,6 +88,22 @@ def _silence_task_failures() -> None:
         os.environ.setdefault(f"PREFECT_LOGGING_LOGGERS_PREFECT_{logger}_LEVEL", "CRITICAL")
 
 
+@contextlib.contextmanager
+def exit_on_input_errors(prefix: str) -> Iterator[None]:
+    """Bad input (config, cores) and a refused or unwritable folder: one message, exit 2."""
+    from pipelines.runfolder import RunFolderError
+    from proxies.problems import InputError
+
+    try:
+        yield
+    except InputError as error:
+        click.echo(f"{prefix}: the input has problems:\n{error}", err=True)
+        sys.exit(EXIT_INPUT)
+    except RunFolderError as error:
+        click.echo(f"{prefix}: {error.strerror or error}", err=True)
+        sys.exit(EXIT_INPUT)
+
+
 def execute(config: pathlib.Path, out: pathlib.Path, *, workers, dask_address, dask_local,
             cache_dir, recompute, quiet, resume: bool = False, report: bool = True) -> Any:
     """Run and print; exit with the documented status on errors."""
@@ -96,19 +118,12 @@ def execute(config: pathlib.Path, out: pathlib.Path, *, workers, dask_address, d
     server = LocalServer.start_if_needed()  # starts while the config is read and inputs hashed
     from pipelines.flows.run import execute_run
     from pipelines.progress import RunProgress
-    from pipelines.runfolder import RunFolderError
-    from proxies.problems import InputError
 
     try:
-        outcome = execute_run(config, out, choice=choice, cache_dir=cache_dir, recompute=recompute,
-                              resume=resume, progress=RunProgress(quiet=quiet), report=report,
-                              local_server=server)
-    except InputError as error:
-        click.echo(f"downcore: the input has problems:\n{error}", err=True)
-        sys.exit(EXIT_INPUT)
-    except RunFolderError as error:
-        click.echo(f"downcore: {error.strerror or error}", err=True)
-        sys.exit(EXIT_INPUT)
+        with exit_on_input_errors("downcore"):
+            outcome = execute_run(config, out, choice=choice, cache_dir=cache_dir, recompute=recompute,
+                                  resume=resume, progress=RunProgress(quiet=quiet), report=report,
+                                  local_server=server)
     finally:
         if server is not None:
             server.stop()

@@ -24,6 +24,7 @@ from prefect import flow
 
 from pipelines.flows import stages, tasks
 from pipelines.flows.plan import RunPlan
+from pipelines.flows.status import RECONSTRUCTED, finished_status
 from pipelines.flows.store import WorkStore
 
 __all__ = ["archive_flow", "core_flow", "CoreTrack", "register_observer", "unregister_observer"]
@@ -243,7 +244,7 @@ class _Driver:
 
     def _publish(self, track: CoreTrack) -> None:
         if track.status == "running":
-            track.status = "ok"
+            track.status = finished_status(track.entries)
         track.say(f"finished: {track.status}, stage reached {track.reached or 'none'}")
         entries = [track.entries[s] for s in CORE_STAGES if s in track.entries and s != "ingest"]
         self._submit(track, "outputs", tasks.outputs_task, run_dir=self.run_dir, label=track.name,
@@ -370,7 +371,7 @@ def archive_flow(plan: RunPlan, run_dir: str, cache_dir: str, recompute: bool = 
     tracks = driver.run()
     notes = [f"training set {n}: {m}" for n, m in sorted(driver.training_failed.items())]
     reconstructions = {t.name: t.entries["reconstruction"] for t in tracks
-                       if t.status == "ok" and "reconstruction" in t.entries}
+                       if t.status in RECONSTRUCTED and "reconstruction" in t.entries}
     stack = None
     if reconstructions:
         result = None if recompute else stages.probe(stages.run_stack, plan=plan, reconstructions=reconstructions,
@@ -385,10 +386,26 @@ def archive_flow(plan: RunPlan, run_dir: str, cache_dir: str, recompute: bool = 
             notes.append(result["skipped"])
         else:
             stack = result
+    archive_events = _archive_events(plan, tracks, store, recompute, notes)
     timings = [{"core_id": t.name, "stage": s, "seconds": t.seconds[s], "reused": t.cached.get(s, False)}
                for t in tracks for s in CORE_STAGES if s in t.seconds]
     return {"cores": [t.row() for t in tracks], "timings": timings, "training": driver.training,
-            "stack": stack, "notes": notes, "known_hashes": driver.known_hashes}
+            "stack": stack, "archive_events": archive_events, "notes": notes,
+            "known_hashes": driver.known_hashes}
+
+
+def _archive_events(plan: RunPlan, tracks, store: WorkStore, recompute: bool, notes: list[str]) -> dict | None:
+    """The run-level events tables (inline: light work on small tables)."""
+    events = {t.name: t.entries["events"] for t in tracks if "events" in t.entries}
+    if not events:
+        return None
+    try:
+        return stages.run_archive_events(plan, events, store, recompute)
+    except stages.StageSkipped as skipped:
+        notes.append(str(skipped))
+    except Exception as error:  # noqa: BLE001 - the per-core outputs stay valid
+        notes.append(f"archive events failed: {stages.problem_text(error)}")
+    return None
 
 
 @flow(name="downcore-core", validate_parameters=False, persist_result=False, log_prints=False)

@@ -21,6 +21,8 @@ import time
 import urllib.error
 import urllib.request
 
+from pipelines.lifeline import spawn_tied_to_parent
+
 __all__ = ["LocalServer"]
 
 
@@ -77,7 +79,7 @@ class LocalServer:
         self._app_dir = app_dir
         if getattr(self, "_log", None) is None:
             self._log = open(self._log_path(), "ab")  # noqa: SIM115 - closed in stop()
-        self.process = subprocess.Popen(
+        self.process = spawn_tied_to_parent(  # stopped with downcore, even after kill -9
             [sys.executable, "-m", "uvicorn", "--app-dir", app_dir, "--factory",
              "prefect.server.api.server:create_app", "--host", "127.0.0.1", "--port", str(self.port),
              "--log-level", "error", "--lifespan", "on"],

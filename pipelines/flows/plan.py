@@ -131,7 +131,9 @@ def build_plan(config_path: str | os.PathLike[str]) -> RunPlan:
     path = pathlib.Path(config_path).expanduser().resolve()
     if not path.is_file():
         raise InputError(Problem(str(path), "run config not found", "give the path of a run config (.toml)"))
-    text = path.read_text(encoding="utf-8")
+    from pipelines.textfiles import read_text
+
+    text = read_text(path, str(path))  # UTF-8 (a byte-order mark accepted); else an InputError
     try:
         raw = tomllib.loads(text)
     except tomllib.TOMLDecodeError as error:

@@ -23,7 +23,10 @@ from pipelines.flows.plan import RunPlan, build_plan
 from pipelines.flows.runners import ExecutorChoice, prefect_run_settings, task_runner_for
 from pipelines.manifest import build_manifest, collect_input_files, hash_inputs, write_manifest
 from pipelines.runfolder import (IN_PROGRESS_MARKER, atomic_copy, atomic_write_json, atomic_write_parquet,
-                                 atomic_write_text, create_run_folder)
+                                 atomic_write_text, create_run_folder, ensure_writable_folder,
+                                 release_run_folder)
+from pipelines.runlock import run_identity
+from pipelines.runpaths import check_run_locations
 
 __all__ = ["RunOutcome", "execute_run", "default_cache_dir", "resolved_config"]
 
@@ -94,6 +97,9 @@ def _write_run_tables(run_dir: pathlib.Path, result: dict) -> None:
                 atomic_copy(entry["paths"][part], run_dir / "training" / f"{name}_{part}.parquet")
     if result.get("stack"):
         atomic_copy(result["stack"]["paths"]["stack.parquet"], run_dir / "stack.parquet")
+    for name in ("archive_events.parquet", "lead_lag.parquet"):
+        if result.get("archive_events") and name in result["archive_events"].get("paths", {}):
+            atomic_copy(result["archive_events"]["paths"][name], run_dir / name)
 
 
 def _write_report(run_dir: pathlib.Path, notes: list[str]) -> None:
@@ -155,15 +161,30 @@ def execute_run(config_path: str | os.PathLike[str], out_dir: str | os.PathLike[
     pipelines.runfolder.RunFolderError
         When the run folder cannot be created or written.
     """
-    from pipelines.flows.archive import archive_flow, register_observer, unregister_observer
-
     choice = choice or ExecutorChoice()
     started_utc = _dt.datetime.now(_dt.timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
     started = time.perf_counter()
     plan = plan or build_plan(config_path)
+    cache = pathlib.Path(cache_dir).expanduser().resolve() if cache_dir else default_cache_dir(out_dir)
+    check_run_locations(plan, out_dir, cache)
+    ensure_writable_folder(cache, "the work store (--cache-dir)")
     inputs = hash_inputs(collect_input_files(plan.config_path, plan.raw, plan.core_folders))
-    run_dir = create_run_folder(out_dir, resume=resume)
-    cache = pathlib.Path(cache_dir).expanduser().resolve() if cache_dir else default_cache_dir(run_dir)
+    run_dir = create_run_folder(out_dir, resume=resume, identity=run_identity(plan.config_path, plan.config_text))
+    try:
+        return _run_into(run_dir, plan, inputs, cache, choice=choice, recompute=recompute, resume=resume,
+                         progress=progress, report=report, local_server=local_server,
+                         started=(started, started_utc))
+    finally:
+        release_run_folder(run_dir, finished=(run_dir / "manifest.json").is_file())
+
+
+def _run_into(run_dir: pathlib.Path, plan: RunPlan, inputs: list, cache: pathlib.Path, *, choice: ExecutorChoice,
+              recompute: bool, resume: bool, progress: Any, report: bool, local_server: Any,
+              started: tuple[float, str]) -> RunOutcome:
+    """The run itself, in a run folder whose lock this process holds."""
+    from pipelines.flows.archive import archive_flow, register_observer, unregister_observer
+
+    started, started_utc = started
     runner = task_runner_for(choice, cache / "dask-scratch")
     observer_id = register_observer(progress) if progress is not None else None
     try:
@@ -213,6 +234,5 @@ def execute_run(config_path: str | os.PathLike[str], out_dir: str | os.PathLike[
     manifest = manifest_now()
     seconds = manifest["seconds"]
     write_manifest(run_dir, manifest)
-    (run_dir / IN_PROGRESS_MARKER).unlink(missing_ok=True)
     return RunOutcome(run_dir=run_dir, summary=pd.DataFrame(result["cores"]),
                       timings=pd.DataFrame(result["timings"]), notes=notes, seconds=seconds)

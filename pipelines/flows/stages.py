@@ -24,12 +24,13 @@ import pandas as pd
 from pipelines.flows.keys import content_key
 from pipelines.flows.plan import RunPlan
 from pipelines.flows.store import WorkStore, load_object, save_object
+from pipelines.outputs_schema import checked, member_names, table as output_table
 from pipelines.runfolder import atomic_write_parquet, sha256_file
 from proxies.problems import InputError
 from proxies.seeding import rng_for
 
 __all__ = ["StageSkipped", "NotCached", "probe", "run_ingest", "run_training", "run_chronology", "run_calibration",
-           "run_reconstruction", "run_events", "run_stack", "pin_blas_threads", "member_columns"]
+           "run_reconstruction", "run_events", "run_archive_events", "run_stack", "pin_blas_threads", "write_tables"]
 
 
 class StageSkipped(Exception):
@@ -109,19 +110,19 @@ def _collect_warnings():
 
 # --- helpers -------------------------------------------------------------------------------
 
-def write_table(path: pathlib.Path, table: pd.DataFrame) -> pathlib.Path:
-    """Deterministic Parquet into a staging folder (synced once when published)."""
-    return atomic_write_parquet(path, table, sync_folder=False)
+def write_tables(staged: pathlib.Path, tables: dict[str, pd.DataFrame]) -> dict[str, str]:
+    """Write run-folder tables (schema key -> frame) as deterministic Parquet into a staging
+    folder (synced once when published), each checked against
+    :mod:`pipelines.outputs_schema` first; returns ``{file name: file name}`` for the entry."""
+    files = {}
+    for key, frame in tables.items():
+        name = output_table(key).file_name
+        atomic_write_parquet(staged / name, checked(key, _table(frame)), sync_folder=False)
+        files[name] = name
+    return files
 
 
-def member_columns(n_members: int) -> list[str]:
-    """Member column names m0000, m0001, ... (run-folder contract)."""
-    return [f"m{m:04d}" for m in range(n_members)]
-
-
-def _table(frame: pd.DataFrame | None) -> pd.DataFrame:
-    if frame is None:
-        return pd.DataFrame()
+def _table(frame: pd.DataFrame) -> pd.DataFrame:
     if not isinstance(frame.index, pd.RangeIndex) or frame.index.name is not None:
         frame = frame.reset_index()
     return frame
@@ -163,10 +164,9 @@ def run_ingest(plan: RunPlan, folder: str, store: WorkStore, recompute: bool = F
         from pipelines.ingest import load_core
 
         with _collect_warnings() as caught:
-            loaded = load_core(folder)
-        core, problems = loaded if isinstance(loaded, tuple) else (loaded, [])
+            core = load_core(folder)
         return {"files": {"result": save_object(staged, core)}, "core_id": core.id,
-                "warnings": _unique(caught + [str(p) for p in problems or []])}
+                "warnings": _unique(caught)}
 
     entry = _cached_or_build(store, "ingest", key, produce, {"folder": folder}, recompute)
     return entry
@@ -189,27 +189,16 @@ def run_training(plan: RunPlan, name: str, store: WorkStore, recompute: bool = F
         from proxies.calibration import fit_transfer_function
 
         with _collect_warnings() as caught:
-            training, training_spec = _read_training(read_training_set, plan, name)
+            training, training_spec = read_training_set(plan.config, name)
             fitted = fit_transfer_function(training, training_spec, rng_for(plan.run_seed, "calibration", f"training:{name}"))
-        write_table(staged / "cv.parquet", _table(getattr(fitted, "cv", None)))
-        write_table(staged / "skill.parquet", _table(getattr(fitted, "skill", None)))
+        atomic_write_parquet(staged / "cv.parquet", checked("training_cv", _table(fitted.cv)), sync_folder=False)
+        atomic_write_parquet(staged / "skill.parquet", checked("training_skill", _table(fitted.skill)),
+                             sync_folder=False)
         return {"files": {"result": save_object(staged, fitted), "cv": "cv.parquet",
                           "skill": "skill.parquet"},
-                "warnings": _unique(caught + list(getattr(fitted, "warnings", []) or []))}
+                "warnings": _unique(caught)}
 
     return _cached_or_build(store, "training", key, produce, {"name": name}, recompute)
-
-
-def _read_training(reader, plan: RunPlan, name: str):
-    """Call :func:`pipelines.auxiliary.read_training_set` for one configured set.
-
-    Returns ``(training_set, spec)``; the reader returns either the set alone (then the spec
-    is the raw ``[training.<name>]`` table) or the pair.
-    """
-    got = reader(plan.config, name)
-    if isinstance(got, tuple) and len(got) == 2:
-        return got
-    return got, _training_specs(plan).get(name)
 
 
 # --- chronology ------------------------------------------------------------------------------
@@ -226,18 +215,11 @@ def _load_curves(plan: RunPlan) -> dict[str, Any]:
         with _CURVE_LOCK:
             curve = _CURVE_CACHE.get((path, digest))
         if curve is None:
-            curve = _read_curve(read_curve_file, path, name)
+            curve = read_curve_file(path, name=name)
             with _CURVE_LOCK:
                 _CURVE_CACHE[(path, digest)] = curve
         curves[name] = curve
     return curves
-
-
-def _read_curve(reader, path: str, name: str):
-    try:
-        return reader(path, name=name)
-    except TypeError:
-        return reader(path)
 
 
 def run_chronology(plan: RunPlan, ingest: dict, store: WorkStore, recompute: bool = False) -> dict:
@@ -254,18 +236,14 @@ def run_chronology(plan: RunPlan, ingest: dict, store: WorkStore, recompute: boo
             result = build_chronology(core, _load_curves(plan), plan.settings["chronology"],
                                       plan.ensemble, rng_for(plan.run_seed, "chronology", core_id))
         ensemble = np.asarray(result.ensemble, dtype=float)
-        members = pd.DataFrame(ensemble, columns=member_columns(ensemble.shape[1]))
+        members = pd.DataFrame(ensemble, columns=member_names(ensemble.shape[1]))
         members.insert(0, "depth_cm", np.asarray(result.depth_cm, dtype=float))
-        write_table(staged / "chronology.parquet", _table(result.summary))
-        write_table(staged / "age_ensemble.parquet", members)
-        write_table(staged / "dates.parquet", _table(result.dates))
-        write_table(staged / "date_densities.parquet", _table(getattr(result, "date_densities", None)))
-        return {"files": {"result": save_object(staged, result),
-                          "chronology.parquet": "chronology.parquet",
-                          "age_ensemble.parquet": "age_ensemble.parquet",
-                          "dates.parquet": "dates.parquet",
-                          "date_densities.parquet": "date_densities.parquet"},
-                "warnings": _unique(caught + list(result.warnings or []))}
+        files = write_tables(staged, {"chronology": result.summary, "age_ensemble": members,
+                                      "dates": result.dates, "date_ranges": result.date_ranges,
+                                      "date_densities": result.date_densities,
+                                      "hyperparameters": result.hyperparameters})
+        return {"files": {"result": save_object(staged, result), **files},
+                "warnings": _unique(caught + list(result.warnings))}
 
     return _cached_or_build(store, "chronology", key, produce, {"core_id": core_id}, recompute)
 
@@ -312,16 +290,11 @@ def run_calibration(plan: RunPlan, ingest: dict, chronology: dict, training: dic
                     raise
                 raise StageSkipped(f"calibration skipped (no [calibration] section and the "
                                    f"defaults do not apply): {error}") from error
-        files = {"result": save_object(staged, result)}
-        for name, frame in (("calibration.parquet", result.skill),
-                            ("calibrated_samples.parquet", result.samples),
-                            ("calibration_diagnostics.parquet", getattr(result, "diagnostics", None))):
-            if frame is not None:
-                write_table(staged / name, _table(frame))
-                files[name] = name
+        files = write_tables(staged, {"calibration": result.skill, "calibrated_samples": result.samples,
+                                      "calibration_diagnostics": result.diagnostics})
         notes = [] if result.records else ["no proxy could be calibrated with these settings"]
-        return {"files": files, "n_records": len(result.records), "notes": notes,
-                "warnings": _unique(caught + list(result.warnings or []))}
+        return {"files": {"result": save_object(staged, result), **files}, "n_records": len(result.records),
+                "notes": notes, "warnings": _unique(caught + list(result.warnings))}
 
     return _cached_or_build(store, "calibration", key, produce, {"core_id": core_id}, recompute)
 
@@ -344,14 +317,11 @@ def run_reconstruction(plan: RunPlan, ingest: dict, chronology: dict, calibratio
         with _collect_warnings() as caught:
             result = reconstruct_core(core, chron, cal, plan.settings["reconstruction"],
                                       rng_for(plan.run_seed, "reconstruction", core_id))
-        write_table(staged / "reconstruction.parquet", _table(result.table))
-        files = {"result": save_object(staged, result), "reconstruction.parquet": "reconstruction.parquet"}
-        ensemble = getattr(result, "ensemble", None)
-        if ensemble is not None:
-            write_table(staged / "reconstruction_ensemble.parquet", _table(ensemble))
-            files["reconstruction_ensemble.parquet"] = "reconstruction_ensemble.parquet"
-        return {"files": files, "n_series": len(result.series),
-                "warnings": _unique(caught + list(getattr(result, "warnings", []) or []))}
+        files = write_tables(staged, {"reconstruction": result.table,
+                                      "reconstruction_ensemble": result.ensemble})
+        return {"files": {"result": save_object(staged, result), **files}, "n_series": len(result.series),
+                "filled": dict(result.filled), "thin": list(result.thin), "notes": list(result.notes),
+                "warnings": _unique(caught + list(result.warnings))}
 
     return _cached_or_build(store, "reconstruction", key, produce, {"core_id": core_id}, recompute)
 
@@ -372,15 +342,34 @@ def run_events(plan: RunPlan, reconstruction: dict, store: WorkStore, recompute:
         rec = load_object(reconstruction)
         with _collect_warnings() as caught:
             result = detect_core_events(rec, plan.settings["events"], rng_for(plan.run_seed, "events", core_id))
-        write_table(staged / "events.parquet", _table(result.events))
-        write_table(staged / "event_probability.parquet", _table(result.probability))
-        write_table(staged / "event_onsets.parquet", _table(getattr(result, "onsets", None)))
-        return {"files": {"result": save_object(staged, result), "events.parquet": "events.parquet",
-                          "event_probability.parquet": "event_probability.parquet",
-                          "event_onsets.parquet": "event_onsets.parquet"},
-                "warnings": _unique(caught + list(getattr(result, "warnings", []) or []))}
+        files = write_tables(staged, {"events": result.events, "event_probability": result.probability,
+                                      "event_onsets": result.onsets})
+        return {"files": {"result": save_object(staged, result), **files},
+                "warnings": _unique(caught + list(result.warnings))}
 
     return _cached_or_build(store, "events", key, produce, {"core_id": core_id}, recompute)
+
+
+# --- run-level events: archive-wide FDR and lead/lag ------------------------------------------
+
+def run_archive_events(plan: RunPlan, events: dict[str, dict], store: WorkStore,
+                       recompute: bool = False) -> dict:
+    """All cores' events with Benjamini-Hochberg q-values (``archive_events.parquet``) and
+    the lead/lag of events found in several cores (``lead_lag.parquet``)."""
+    usable = {cid: e for cid, e in sorted(events.items()) if e.get("paths")}
+    if not usable:
+        raise StageSkipped("archive events skipped: no core has events")
+    key = content_key("archive_events", plan.fingerprint, {cid: e["key"] for cid, e in usable.items()},
+                      plan.settings_key("events"))
+
+    def produce(staged: pathlib.Path) -> dict:
+        from proxies.events.archive_events import run_event_tables
+
+        results = {cid: load_object(e) for cid, e in usable.items()}
+        archive, lead_lag = run_event_tables(results, plan.settings["events"])
+        return {"files": write_tables(staged, {"archive_events": archive, "lead_lag": lead_lag})}
+
+    return _cached_or_build(store, "archive_events", key, produce, {"core_id": None}, recompute)
 
 
 # --- regional stack ---------------------------------------------------------------------------
@@ -404,8 +393,7 @@ def run_stack(plan: RunPlan, reconstructions: dict[str, dict], store: WorkStore,
         with _collect_warnings() as caught:
             table = stack_records(results, plan.settings["reconstruction"],
                                   rng_for(plan.run_seed, "stack", STACK_STREAM))
-        write_table(staged / "stack.parquet", _table(table))
-        return {"files": {"stack.parquet": "stack.parquet"}, "warnings": _unique(caught)}
+        return {"files": write_tables(staged, {"stack": table}), "warnings": _unique(caught)}
 
     return _cached_or_build(store, "stack", key, produce, {"core_id": None}, recompute)
 

@@ -20,11 +20,11 @@ from pipelines.report.figures_calibration import (analogue_figure, cv_scatter_fi
                                                   cv_statistics, training_sets_of)
 from pipelines.report.figures_chronology import (NEGLIGIBLE_PROBABILITY, age_depth_figure,
                                                  all_outlier_probabilities_negligible,
-                                                 deposition_time_figure, outlier_figure)
+                                                 deposition_time_figure, hyperparameter_figure,
+                                                 outlier_figure)
 from pipelines.report.figures_events import event_figure, event_variables
 from pipelines.report.figures_reconstruction import reconstruction_figure, stack_figure
-from pipelines.report.rundata import (CoreData, RunData, downcore_version, hpd_ranges_of,
-                                      median_column, read_run, reconstruction_series)
+from pipelines.report.rundata import CoreData, RunData, downcore_version, read_run, reconstruction_series
 from pipelines.runfolder import atomic_write_text
 
 __all__ = ["write_run_report", "REPORT_NAME"]
@@ -83,6 +83,10 @@ def _status_cell(core: CoreData) -> str:
         return '<span class="status ok">✓ ok</span>'
     if core.status.lower() in ("failed", "error"):
         return '<span class="status failed">✗ failed</span>'
+    if core.status.lower() == "thin":
+        return '<span class="status thin" title="reconstruction empty or mostly empty">◐ thin</span>'
+    if core.status.lower() == "dated":
+        return '<span class="status dated" title="dated only: nothing calibrated">○ dated only</span>'
     return f'<span class="status">{H.esc(core.status)}</span>'
 
 
@@ -97,8 +101,12 @@ def _summary_section(run: RunData) -> str:
             f'<td class="num">{H.esc(H.fmt(core.seconds))}</td><td>{H.esc(reason or "–")}</td></tr>')
     n_ok = sum(c.ok for c in run.cores)
     n_failed = sum(c.status.lower() in ("failed", "error") for c in run.cores)
-    lead = (f"{len(run.cores)} core(s): {n_ok} finished, {n_failed} failed"
-            f"{'' if n_ok + n_failed == len(run.cores) else ', others incomplete'}.")
+    n_thin = sum(c.status.lower() == "thin" for c in run.cores)
+    n_dated = sum(c.status.lower() == "dated" for c in run.cores)
+    shown = n_ok + n_failed + n_thin + n_dated
+    lead = (f"{len(run.cores)} core(s): {n_ok} ok, {n_thin} thin (reconstruction mostly empty), "
+            f"{n_dated} dated only, {n_failed} failed"
+            f"{'' if shown == len(run.cores) else ', others incomplete'}.")
     table = ('<div class="table-box"><table class="data"><thead><tr><th>core</th><th>status</th>'
              "<th>stage reached</th><th>warnings</th><th>seconds</th><th>reason / first warning</th>"
              f"</tr></thead><tbody>{''.join(rows)}</tbody></table></div>")
@@ -116,10 +124,8 @@ def _dates_table(core: CoreData) -> str:
     for column, header in (("kind", "kind"), ("age", "age"), ("error", "± 1σ")):
         if column in dates.columns:
             shown[header] = dates[column]
-    median = median_column(dates)
-    if median is not None:
-        shown["calibrated median [cal BP]"] = pd.to_numeric(dates[median], errors="coerce").round()
-    ranges = hpd_ranges_of(dates, "hpd95")
+    shown["calibrated median [cal BP]"] = dates["cal_median_bp"].round()
+    ranges = core.hpd_ranges(0.954)
     if any(ranges):
         shown["95 % HPD [cal BP]"] = ["; ".join(H.range_text(a, b) for a, b in r) or "–" for r in ranges]
     if "outlier_prob" in dates.columns:
@@ -137,13 +143,19 @@ def _chronology_part(core: CoreData, figs: _Figures) -> str:
                  "Median age (solid line) with its 68 % and 95 % ranges and a few ensemble "
                  "members; each date is drawn as its calibrated probability density above its "
                  "depth (or as its 95 % HPD range when densities were not stored). Hatched "
-                 "dashed dates are more likely outliers than not; dotted dates were excluded."),
+                 "dashed dates are more likely outliers than not; dotted dates were excluded; a "
+                 "dash-dot line marks a hiatus with its median gap."),
         figs.add(lambda: deposition_time_figure(core), f"{cid}_deposition_time", "Deposition time",
                  "Years per centimetre between neighbouring depths, over the age ensemble "
                  "(median and 68 %/95 % ranges); the dashed line is the slope of the median "
-                 "age."),
+                 "age. The interval across a hiatus is left out (dash-dot line: its gap is "
+                 "written beside it), so its spike does not flatten the rest."),
         figs.add(lambda: outlier_figure(core), f"{cid}_outliers", "Date outlier probability",
                  "Posterior probability that each date is an outlier, in depth order."),
+        figs.add(lambda: hyperparameter_figure(core), f"{cid}_accumulation_prior", "Accumulation prior",
+                 "Posterior weight of each value of the accumulation model's hyper-parameters (mean "
+                 "deposition time, rate variability and, with memory, the persistence of the rate), "
+                 "from their exact evidence."),
     ]
     if all_outlier_probabilities_negligible(core.table("dates")):
         parts.append(H.note_html(f"Outlier probability: below {NEGLIGIBLE_PROBABILITY:g} for every "

@@ -13,10 +13,11 @@ from matplotlib.patches import Patch
 
 from pipelines.report import style
 from pipelines.report.html import probability_text
-from pipelines.report.rundata import CoreData, hpd_ranges_of, median_column, member_columns
+from pipelines.report.rundata import CoreData, member_columns
 
-__all__ = ["age_depth_figure", "deposition_time_figure", "outlier_figure", "OUTLIER_LINE",
-           "ensemble_matrix", "all_outlier_probabilities_negligible", "NEGLIGIBLE_PROBABILITY"]
+__all__ = ["age_depth_figure", "deposition_time_figure", "outlier_figure", "hyperparameter_figure",
+           "OUTLIER_LINE", "ensemble_matrix", "hiatus_marks", "all_outlier_probabilities_negligible",
+           "NEGLIGIBLE_PROBABILITY"]
 
 #: outlier probability above which a date is drawn as "more likely an outlier than not"
 OUTLIER_LINE = 0.5
@@ -36,6 +37,25 @@ def ensemble_matrix(table: pd.DataFrame | None) -> np.ndarray | None:
     if not columns:
         return None
     return table[columns].to_numpy(dtype=float)
+
+
+def hiatus_marks(chron: pd.DataFrame | None) -> list[tuple[float, float]]:
+    """(depth [cm], median gap [yr]) of each hiatus recorded in ``chronology.parquet``."""
+    if chron is None or "hiatus_gap_yr" not in chron.columns:
+        return []
+    gaps = pd.to_numeric(chron["hiatus_gap_yr"], errors="coerce")
+    rows = chron[gaps.notna()]
+    return [(float(d), float(g)) for d, g in zip(rows["depth_cm"], gaps[gaps.notna()])]
+
+
+def _draw_hiatuses(ax, marks, handles: list | None = None) -> None:
+    """A hiatus is a dash-dot line across the panel with its median gap written beside it."""
+    for depth, gap in marks:
+        ax.axhline(depth, color=style.CLAY, linestyle="-.", linewidth=1.0, zorder=6)
+        ax.annotate(f"hiatus, ~{gap:,.0f} yr", xy=(0.99, depth), xycoords=("axes fraction", "data"),
+                    ha="right", va="bottom", fontsize=7, color=style.CLAY)
+    if marks and handles is not None:
+        handles.append(Line2D([], [], color=style.CLAY, linestyle="-.", label="hiatus"))
 
 
 def _flag(dates: pd.DataFrame, column: str) -> np.ndarray:
@@ -105,10 +125,10 @@ def _draw_densities(ax, dates: pd.DataFrame, densities: pd.DataFrame, height: fl
     return drawn
 
 
-def _draw_hpd_bars(ax, dates: pd.DataFrame) -> bool:
+def _draw_hpd_bars(ax, core: CoreData) -> bool:
     """Fallback: 95 % HPD ranges as bars and the calibrated median as a tick."""
-    ranges = hpd_ranges_of(dates, "hpd95")
-    median_col = median_column(dates)
+    dates = core.table("dates")
+    ranges = core.hpd_ranges(0.954)
     outlier = _outlier_prob(dates)
     excluded = _flag(dates, "exclude")
     drawn = False
@@ -120,12 +140,11 @@ def _draw_hpd_bars(ax, dates: pd.DataFrame) -> bool:
             ax.plot([young, old], [row.depth_cm, row.depth_cm], color=colour, linestyle=ls,
                     linewidth=3.0, solid_capstyle="butt", zorder=4)
             drawn = True
-        if median_col is not None:
-            value = pd.to_numeric(pd.Series([getattr(row, median_col)]), errors="coerce").iloc[0]
-            if np.isfinite(value):
-                ax.plot([value], [row.depth_cm], marker="D" if is_outlier else "o",
-                        markersize=4, markerfacecolor="white", markeredgecolor=colour, zorder=5)
-                drawn = True
+        value = float(row.cal_median_bp)
+        if np.isfinite(value):
+            ax.plot([value], [row.depth_cm], marker="D" if is_outlier else "o",
+                    markersize=4, markerfacecolor="white", markeredgecolor=colour, zorder=5)
+            drawn = True
     return drawn
 
 
@@ -169,7 +188,7 @@ def age_depth_figure(core: CoreData):
         if densities is not None and _draw_densities(ax, dates, densities, height):
             handles.append(Patch(facecolor=style.SAND, edgecolor=style.INK,
                                  label="calibrated date density"))
-        elif _draw_hpd_bars(ax, dates):
+        elif _draw_hpd_bars(ax, core):
             handles.append(Line2D([], [], color=style.INK, linewidth=3,
                                   label="date, 95 % HPD range"))
         if np.any(_outlier_prob(dates) >= OUTLIER_LINE):
@@ -178,6 +197,7 @@ def age_depth_figure(core: CoreData):
         if _flag(dates, "exclude").any():
             handles.append(Patch(facecolor="none", edgecolor=style.INK, linestyle=":",
                                  label="excluded from the model"))
+    _draw_hiatuses(ax, hiatus_marks(chron), handles)
     ax.set_ylim(np.nanmax(depth) * 1.02 + 1, np.nanmin(depth) - _date_glyph_height(depth) * 1.3)
     ax.set_xlabel("age [cal BP]")
     ax.set_ylabel("depth [cm]")
@@ -186,7 +206,9 @@ def age_depth_figure(core: CoreData):
     return fig
 
 
-def _rate_ensemble(core: CoreData) -> tuple[np.ndarray, np.ndarray] | None:
+def _rate_ensemble(core: CoreData, hiatus_depths=()) -> tuple[np.ndarray, np.ndarray] | None:
+    """Deposition time of every member between neighbouring depths; intervals that cross a
+    hiatus are left out (their spike is the gap, not a deposition time)."""
     table = core.table("age_ensemble")
     ens = ensemble_matrix(table)
     if ens is None or table is None or ens.shape[0] < 2:
@@ -196,6 +218,8 @@ def _rate_ensemble(core: CoreData) -> tuple[np.ndarray, np.ndarray] | None:
     depth, ens = depth[order], ens[order]
     thick = np.diff(depth)
     keep = thick > 0
+    for h in hiatus_depths:
+        keep &= ~((depth[:-1] <= h) & (depth[1:] > h))
     rate = np.diff(ens, axis=0)[keep] / thick[keep, None]
     mid = 0.5 * (depth[1:] + depth[:-1])[keep]
     return mid, rate
@@ -207,7 +231,8 @@ def deposition_time_figure(core: CoreData):
     a hiatus does not flatten the rest), ensemble median with 68 % and 95 % ranges (from
     ``age_ensemble.parquet``), else the chronology's ``deposition_time_yr_cm``."""
     chron = core.table("chronology")
-    from_ens = _rate_ensemble(core)
+    marks = hiatus_marks(chron)
+    from_ens = _rate_ensemble(core, [d for d, _ in marks])
     if from_ens is None and (chron is None or "deposition_time_yr_cm" not in chron.columns):
         return None
     fig, ax = style.new_figure(4.8, 4.6)
@@ -223,15 +248,20 @@ def deposition_time_figure(core: CoreData):
         shown.append(q[2])
     if chron is not None and "deposition_time_yr_cm" in chron.columns:
         chron = chron.sort_values("depth_cm")
-        ax.plot(chron["deposition_time_yr_cm"], chron["depth_cm"], color=style.CLAY, linestyle="--",
+        slope = chron["deposition_time_yr_cm"].to_numpy(dtype=float).copy()
+        chron_depth = chron["depth_cm"].to_numpy(dtype=float)
+        for h, _ in marks:  # the rows whose slope straddles the hiatus
+            slope[np.abs(chron_depth - h) <= np.min(np.abs(np.diff(chron_depth)), initial=1.0) * 1.01] = np.nan
+        ax.plot(slope, chron_depth, color=style.CLAY, linestyle="--",
                 linewidth=1.0, label="slope of the median age")
-        shown.append(chron["deposition_time_yr_cm"].to_numpy(dtype=float))
+        shown.append(slope)
     values = np.concatenate([np.asarray(v, dtype=float).ravel() for v in shown])
     values = values[np.isfinite(values) & (values > 0)]
     if values.size:
         low, high = np.quantile(values, [0.02, 0.98])
         ax.set_xscale("log")
         ax.set_xlim(max(low / 2.0, 1e-3), high * 2.0)
+    _draw_hiatuses(ax, marks)
     ax.invert_yaxis()
     ax.set_ylabel("depth [cm]")
     ax.set_xlabel("deposition time [yr/cm, log scale]")
@@ -281,4 +311,31 @@ def outlier_figure(core: CoreData):
     ax.grid(axis="y", visible=False)
     ax.set_title(f"{core.core_id}: date outlier probability")
     ax.legend(loc="lower right")
+    return fig
+
+
+def hyperparameter_figure(core: CoreData):
+    """Posterior weight of the accumulation prior's hyper-parameters, one panel each.
+
+    From ``hyperparameters.parquet``: the weights of the grid points summed over the other
+    hyper-parameters (mean rate, rate variability and, for the memory model, memory).
+    """
+    table = core.table("hyperparameters")
+    if table is None or not len(table):
+        return None
+    panels = [("mean_rate_yr_cm", "mean deposition time [yr/cm]"), ("rate_variability", "rate variability (CV)")]
+    if "rate_memory" in table.columns and table["rate_memory"].nunique() > 1:
+        panels.append(("rate_memory", "rate memory (persistence)"))
+    fig, axes = style.new_figure(2.6 * len(panels), 2.4, ncols=len(panels))
+    axes = np.atleast_1d(axes)
+    for ax, (column, label) in zip(axes, panels):
+        marginal = table.groupby(column)["weight"].sum().sort_index()
+        positions = np.arange(marginal.size)
+        ax.bar(positions, marginal.to_numpy(float), color=style.MOSS, width=0.7)
+        ax.set_xticks(positions, [f"{v:.3g}" for v in marginal.index], rotation=45, fontsize=7)
+        ax.set_xlabel(label)
+        ax.set_ylim(0, 1)
+        ax.grid(axis="x", visible=False)
+    axes[0].set_ylabel("posterior weight")
+    fig.suptitle(f"{core.core_id}: accumulation prior, posterior weights", fontsize=9)
     return fig

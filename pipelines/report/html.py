@@ -60,6 +60,7 @@ table.data td:first-child { white-space: nowrap; }
 .status { font-weight: 700; white-space: nowrap; }
 .status.ok { color: var(--ok); }
 .status.failed { color: var(--warn); text-decoration: underline; }
+.status.thin, .status.dated { color: var(--warn); font-style: italic; }
 figure.plot { margin: 1rem 0 1.6rem; padding: .6rem; background: #fff;
               border: 1px solid var(--rule); page-break-inside: avoid; }
 figure.plot svg { width: 100%; height: auto; display: block; }

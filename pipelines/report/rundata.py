@@ -1,11 +1,10 @@
-"""Read a finished run folder for the report and the exports, defensively.
+"""Read a finished run folder for the report and the exports.
 
 The report must open whatever a run left behind: a core that stopped after its chronology,
-a failed core with nothing but its summary row, a table written by a newer stage with extra
-columns. Each table is checked only for the columns the run-folder contract requires
-(DEVELOPERS.md, "The run folder"); a table that is missing, unreadable or lacks a required
-column is recorded in :attr:`CoreData.notes` and treated as absent, so the figure that needs
-it is left out with a sentence saying why.
+a failed core with nothing but its summary row. The tables and their columns are those that
+:mod:`pipelines.outputs_schema` declares (no name is guessed); a table that is missing,
+unreadable or lacks a required column is recorded in :attr:`CoreData.notes` and treated as
+absent, so the figure that needs it is left out with a sentence saying why.
 """
 
 from __future__ import annotations
@@ -21,6 +20,7 @@ import numpy as np
 import pandas as pd
 import pyarrow.parquet as pq
 
+from pipelines.outputs_schema import CORE_TABLES, TABLES, member_columns
 from pipelines.runfolder import IN_PROGRESS_MARKER
 
 __all__ = [
@@ -31,39 +31,18 @@ __all__ = [
     "read_run",
     "quantile_columns",
     "member_columns",
-    "hpd_ranges_of",
-    "median_column",
     "Series",
     "units_of",
     "reconstruction_series",
     "downcore_version",
 ]
 
-#: columns each per-core table must hold for the report to use it (the run-folder contract)
-REQUIRED_COLUMNS: dict[str, tuple[str, ...]] = {
-    "chronology": ("depth_cm", "age_median", "age_q025", "age_q975"),
-    "age_ensemble": ("depth_cm",),
-    "dates": ("label", "depth_cm"),
-    "date_densities": ("label", "age_cal_bp", "density"),
-    "calibration": (),
-    "calibrated_samples": ("depth_cm", "variable", "value_median"),
-    "calibration_diagnostics": ("depth_cm",),
-    "reconstruction": ("age_cal_bp", "variable", "value_median"),
-    "reconstruction_ensemble": ("age_cal_bp", "variable"),
-    "events": ("variable", "onset_median", "onset_q025", "onset_q975"),
-    "event_probability": ("age_cal_bp", "variable", "probability"),
-    # optional, not in the contract yet: per-member event onsets and date densities
-    "event_onsets": ("event_id", "onset_cal_bp"),
-}
-
-#: run-level tables
-STACK_COLUMNS = ("age_cal_bp", "variable", "value_median", "value_q025", "value_q975")
-CV_COLUMNS = ("observed", "predicted")
+#: columns each per-core table must hold for the report to use it (from the run-folder schema)
+REQUIRED_COLUMNS: dict[str, tuple[str, ...]] = {key: TABLES[key].required for key in CORE_TABLES}
 
 #: folders inside a run folder that are not cores
 NOT_CORE_FOLDERS = {"training", "figures"}
 
-_MEMBER = re.compile(r"^m\d+$")
 _QUANTILE = re.compile(r"^q(\d{3})$")
 
 
@@ -95,7 +74,21 @@ class CoreData:
 
     @property
     def ok(self) -> bool:
-        return self.status.lower() in ("ok", "done", "success", "finished", "complete", "completed")
+        return self.status == "ok"
+
+    def hpd_ranges(self, level: float = 0.954) -> list[list[tuple[float, float]]]:
+        """Each date's HPD ranges ``[(young, old), ...]`` [cal BP] at ``level``, in the row
+        order of ``dates.parquet`` (from ``date_ranges.parquet``; empty lists without it)."""
+        dates, ranges = self.table("dates"), self.table("date_ranges")
+        if dates is None:
+            return []
+        if ranges is None:
+            return [[] for _ in range(len(dates))]
+        rows = ranges[np.isclose(ranges["level"].to_numpy(float), level)]
+        by_label: dict[str, list[tuple[float, float]]] = {}
+        for label, young, old in zip(rows["label"], rows["young_cal_bp"], rows["old_cal_bp"]):
+            by_label.setdefault(str(label), []).append((float(young), float(old)))
+        return [by_label.get(str(label), []) for label in dates["label"]]
 
 
 @dataclass
@@ -140,50 +133,15 @@ def _text(value: Any) -> str:
 
 
 def _warning_list(value: Any) -> list[str]:
-    """Normalise a summary ``warnings`` cell (list, array, JSON text, text or count)."""
-    if value is None:
-        return []
-    if isinstance(value, (list, tuple, np.ndarray)):
-        return [str(v) for v in value if _text(v)]
-    if isinstance(value, (int, np.integer)):
-        return [f"{int(value)} warning(s); see log.txt"] if value else []
-    if isinstance(value, float):
-        if math.isnan(value) or value == 0:
-            return []
-        return [f"{int(value)} warning(s); see log.txt"]
-    text = str(value).strip()
-    if not text:
-        return []
-    if text.startswith("["):
-        try:
-            return [str(v) for v in json.loads(text)]
-        except ValueError:
-            pass
-    return [part.strip() for line in text.splitlines() for part in line.split(" | ")
-            if part.strip()]
-
-
-def _first_present(row: pd.Series, names: tuple[str, ...]) -> Any:
-    for name in names:
-        if name in row.index and _text(row[name]):
-            return row[name]
-    return None
+    """The warnings of a summary row (``warnings`` is text, separated by ``' | '``)."""
+    return [part.strip() for part in _text(value).split(" | ") if part.strip()]
 
 
 def _core_from_summary(row: pd.Series) -> CoreData:
-    seconds = _first_present(row, ("seconds", "duration_s", "elapsed_s"))
-    try:
-        seconds = float(seconds) if seconds is not None else None
-    except (TypeError, ValueError):
-        seconds = None
-    return CoreData(
-        core_id=str(row["core_id"]),
-        status=_text(_first_present(row, ("status",))) or "unknown",
-        stage=_text(_first_present(row, ("stage_reached", "stage", "last_stage"))),
-        reason=_text(_first_present(row, ("reason", "error", "message", "failure"))),
-        warnings=_warning_list(_first_present(row, ("warnings", "warning"))),
-        seconds=seconds,
-    )
+    """A core as ``summary.parquet`` (see :mod:`pipelines.outputs_schema`) lists it."""
+    return CoreData(core_id=str(row["core_id"]), status=_text(row["status"]) or "unknown",
+                    stage=_text(row["stage_reached"]), reason=_text(row["error"]),
+                    warnings=_warning_list(row["warnings"]))
 
 
 def _core_seconds(path: pathlib.Path) -> dict[str, float]:
@@ -229,8 +187,8 @@ def _read_training(folder: pathlib.Path, notes: list[str]) -> list[TrainingData]
                    | {p.name[: -len("_skill.parquet")]
                       for p in training_dir.glob("*_skill.parquet")})
     return [TrainingData(name,
-                         _load(training_dir / f"{name}_cv.parquet", CV_COLUMNS, notes),
-                         _load(training_dir / f"{name}_skill.parquet", (), notes))
+                         _load(training_dir / f"{name}_cv.parquet", TABLES["training_cv"].required, notes),
+                         _load(training_dir / f"{name}_skill.parquet", TABLES["training_skill"].required, notes))
             for name in names]
 
 
@@ -258,8 +216,8 @@ def read_run(run_dir: str | pathlib.Path) -> RunData:
                                 "(it holds manifest.json and summary.parquet)")
     notes: list[str] = []
     manifest = _read_manifest(folder, notes)
-    summary = _load(folder / "summary.parquet", ("core_id",), notes)
-    stack = _load(folder / "stack.parquet", STACK_COLUMNS, notes)
+    summary = _load(folder / TABLES["summary"].path, TABLES["summary"].required, notes)
+    stack = _load(folder / TABLES["stack"].path, TABLES["stack"].required, notes)
     cores: dict[str, CoreData] = {}
     if summary is not None:
         for _, row in summary.iterrows():
@@ -285,11 +243,6 @@ def read_run(run_dir: str | pathlib.Path) -> RunData:
                    notes=notes)
 
 
-def member_columns(table: pd.DataFrame) -> list[str]:
-    """Ensemble member columns (``m0000``, ``m0001``, ...) in file order."""
-    return [c for c in table.columns if _MEMBER.match(str(c))]
-
-
 def quantile_columns(table: pd.DataFrame, prefix: str) -> dict[float, str]:
     """Quantile columns ``<prefix>_median`` and ``<prefix>_qNNN`` (per mille) by probability.
 
@@ -309,80 +262,6 @@ def quantile_columns(table: pd.DataFrame, prefix: str) -> dict[float, str]:
         if match:
             found[int(match.group(1)) / 1000.0] = name
     return dict(sorted(found.items()))
-
-
-_MEDIAN_NAMES = ("cal_median_bp", "age_cal_median", "cal_bp_median", "calibrated_median",
-                 "median_cal_bp", "cal_median", "age_median", "median")
-
-
-def median_column(dates: pd.DataFrame) -> str | None:
-    """The column of ``dates.parquet`` holding the calibrated median [cal BP], if any."""
-    for name in _MEDIAN_NAMES:
-        if name in dates.columns:
-            return name
-    for column in dates.columns:
-        if "median" in str(column).lower():
-            return str(column)
-    return None
-
-
-_NUMBER = r"-?\d+(?:\.\d+)?"
-_RANGE = re.compile(rf"({_NUMBER})\s*(?:–|—|\.\.|to|,|-)\s*({_NUMBER})")
-
-
-def _ranges_from_value(value: Any) -> list[tuple[float, float]]:
-    if value is None:
-        return []
-    if isinstance(value, float) and math.isnan(value):
-        return []
-    if isinstance(value, (list, tuple, np.ndarray)):
-        items = list(value)
-        if items and all(isinstance(v, (int, float, np.number)) for v in items):
-            return [(float(items[0]), float(items[1]))] if len(items) >= 2 else []
-        out: list[tuple[float, float]] = []
-        for item in items:
-            if isinstance(item, dict):
-                keys = [k for k in item if isinstance(item[k], (int, float, np.number))]
-                if len(keys) >= 2:
-                    out.append((float(item[keys[0]]), float(item[keys[1]])))
-            else:
-                out.extend(_ranges_from_value(item))
-        return out
-    text = str(value).strip()
-    if text.startswith("["):
-        try:
-            return _ranges_from_value(json.loads(text))
-        except ValueError:
-            pass
-    return [(float(a), float(b)) for a, b in _RANGE.findall(text)]
-
-
-def hpd_ranges_of(dates: pd.DataFrame, level: str = "hpd95") -> list[list[tuple[float, float]]]:
-    """The HPD ranges of each date as ``[(young, old), ...]`` [cal BP].
-
-    Accepts what a chronology stage may write: one text/JSON/list column named with
-    ``level`` (e.g. ``"4870-5120; 5150-5200"`` or ``[[4870, 5120, 0.91], ...]``), or a pair
-    of numeric columns ``<level>_young``/``<level>_old`` (also ``_from/_to``, ``_min/_max``,
-    ``_lo/_hi``). Returns empty lists when nothing is found.
-    """
-    n = len(dates)
-    columns = [str(c) for c in dates.columns if level in str(c).lower()]
-    for low, high in (("young", "old"), ("from", "to"), ("min", "max"), ("lo", "hi"),
-                      ("start", "end"), ("q_low", "q_high")):
-        lo = [c for c in columns if c.endswith("_" + low)]
-        hi = [c for c in columns if c.endswith("_" + high)]
-        if lo and hi:
-            a = pd.to_numeric(dates[lo[0]], errors="coerce").to_numpy(float)
-            b = pd.to_numeric(dates[hi[0]], errors="coerce").to_numpy(float)
-            return [[(min(x, y), max(x, y))] if np.isfinite(x) and np.isfinite(y) else []
-                    for x, y in zip(a, b)]
-    for column in columns:
-        if dates[column].dtype == object or pd.api.types.is_string_dtype(dates[column]):
-            out = []
-            for value in dates[column].tolist():
-                out.append([(min(a, b), max(a, b)) for a, b in _ranges_from_value(value)])
-            return out
-    return [[] for _ in range(n)]
 
 
 @dataclass(frozen=True)

@@ -12,8 +12,11 @@ see DESIGN.md section 4):
   [yr/cm] is Gamma(shape alpha, mean m); across a hiatus x_k gets an additional gap
   ~ Exponential(mean ``gap_mean``) [yr] (a wide gap prior);
 - a date d at node k (every date depth is a node) has likelihood
-  L_d(a) = (1 - p_d) f_d(a) + p_d / n_grid, with f_d its calibrated density (mass per grid
-  cell) and p_d its prior outlier probability: the outlier part is flat over the grid.
+  L_d(a) = (1 - p_d) f_d(a) + p_d o_d(a), with f_d its calibrated density (mass per grid
+  cell), p_d its prior outlier probability and o_d a broad outlier density centred on the
+  date (mass per grid cell, not renormalised to the grid, so that it does not depend on the
+  grid's extent; see :func:`proxies.chronology.outliers.outlier_density`). A date with
+  p_d = 0 (the core top) is a plain constraint.
 
 The increments are discretised to grid cells (``P(x in [(t - 1/2) step, (t + 1/2) step))``),
 so the transition from node k to k+1 is a discrete convolution, done by FFT. Forward filtering
@@ -74,6 +77,9 @@ class AccumulationProblem:
         Calibrated mass of each date per grid cell (rows sum to <= 1).
     outlier_prior : ndarray, shape (n,)
         Prior outlier probability of each date, in [0, 1).
+    outlier_mass : ndarray, shape (n, G), optional
+        Outlier density of each date as mass per grid cell; ``None`` means flat over the
+        grid (1 / G, kept for small exactness tests only).
     grid_origin : float
         Calendar age of grid cell 0 [cal BP].
     grid_step : float
@@ -90,7 +96,8 @@ class AccumulationProblem:
     outlier_prior: np.ndarray
     grid_origin: float
     grid_step: float
-    reference_cm: float = 5.0
+    reference_cm: float = 10.0
+    outlier_mass: np.ndarray | None = None
 
     @property
     def n_grid(self) -> int:
@@ -104,10 +111,16 @@ class AccumulationProblem:
         """Calendar age of each grid cell [cal BP]."""
         return self.grid_origin + self.grid_step * np.arange(self.n_grid)
 
+    def outlier_likelihoods(self) -> np.ndarray:
+        """o_d, the outlier part of each date's likelihood (mass per cell), shape (n, G)."""
+        if self.outlier_mass is None:
+            return np.full(self.date_mass.shape, 1.0 / self.n_grid)
+        return self.outlier_mass
+
     def date_likelihoods(self) -> np.ndarray:
-        """L_d = (1 - p_d) f_d + p_d / G, shape (n, G)."""
+        """L_d = (1 - p_d) f_d + p_d o_d, shape (n, G)."""
         p = self.outlier_prior[:, None]
-        return (1.0 - p) * self.date_mass + p / self.n_grid
+        return (1.0 - p) * self.date_mass + p * self.outlier_likelihoods()
 
     def node_likelihoods(self) -> np.ndarray:
         """Product of the likelihoods of the dates at each node, shape (K, G)."""
@@ -351,13 +364,14 @@ def _outlier_posterior(problem: AccumulationProblem, predicted, beta, per_date) 
     """
     out = np.empty(len(problem.date_node))
     p = problem.outlier_prior
+    outlier_part = problem.outlier_likelihoods()
     for d, k in enumerate(problem.date_node):
         others = np.ones(problem.n_grid)
         for e in np.flatnonzero(problem.date_node == k):
             if e != d:
                 others = others * per_date[e]
         base = predicted[k] * beta[k] * others
-        numerator = p[d] / problem.n_grid * base.sum()
+        numerator = p[d] * float(np.dot(base, outlier_part[d]))
         out[d] = numerator / max(float(np.dot(base, per_date[d])), 1e-300)
     return out
 
@@ -427,6 +441,9 @@ def place_nodes(top_cm: float, bottom_cm: float, spacing_cm: float, date_depths_
                 hiatus_depths_cm=()) -> tuple[np.ndarray, np.ndarray]:
     """Node depths: a regular ladder plus every date depth, and each hiatus twice.
 
+    Ladder nodes closer than a third of the spacing to a date depth are left out (the date's
+    node takes their place), so dates do not split intervals into slivers.
+
     Parameters
     ----------
     top_cm, bottom_cm : float
@@ -448,8 +465,12 @@ def place_nodes(top_cm: float, bottom_cm: float, spacing_cm: float, date_depths_
         raise ValueError(f"node spacing must be positive, got {spacing_cm}")
     ladder = np.arange(top_cm, bottom_cm + spacing_cm * 0.999, spacing_cm)
     hiatus = np.asarray(sorted(h for h in hiatus_depths_cm if top_cm < h < bottom_cm), dtype=float)
-    depths = np.unique(np.concatenate([ladder, [top_cm, bottom_cm], np.asarray(date_depths_cm, dtype=float),
-                                       hiatus]))
+    dated = np.unique(np.asarray(date_depths_cm, dtype=float))
+    if dated.size:
+        # a ladder node within a third of the spacing of a date gives way to the date's node
+        nearest = np.min(np.abs(ladder[:, None] - dated[None, :]), axis=1)
+        ladder = ladder[nearest >= spacing_cm / 3]
+    depths = np.unique(np.concatenate([ladder, [top_cm, bottom_cm], dated, hiatus]))
     # merge nodes closer than 1e-6 cm
     depths = depths[np.concatenate([[True], np.diff(depths) > 1e-6])]
     depths = np.sort(np.concatenate([depths, hiatus]))

@@ -5,7 +5,9 @@ density, join the draws by a curve through depth and keep the draw only if ages 
 with depth. Here each date is also, independently and with its prior outlier probability,
 left out of a draw; the accepted draws are then samples of the calibrated ages and outlier
 flags conditioned on monotonicity, and a date's posterior outlier probability is the share
-of accepted draws that left it out.
+of accepted draws that left it out. Several dates at one depth all count: in each draw one of
+those not left out is picked at random (each equally likely) to give that depth its age, so
+the result does not depend on the order of the rows.
 
 Two curves join the dates: straight lines (``linear``) or a monotone piecewise-cubic Hermite
 curve (``smooth``; Fritsch & Carlson 1980, as scipy's PchipInterpolator). Beyond the first
@@ -71,24 +73,30 @@ def monotone_draws(date_depth_cm, draw_ages, members: int, outlier_prior, rng,
     -------
     ages : ndarray, shape (n, members)
     left_out : ndarray of bool, shape (n, members)
+        The outlier flags.
+    unused : ndarray of bool, shape (n, members)
+        Dates not giving their depth its age in a draw: left out, or not picked among several
+        kept dates at the same depth.
     acceptance : float
     """
     depth = np.asarray(date_depth_cm, dtype=float)
     n = depth.size
-    kept_ages, kept_out, accepted, proposed = [], [], 0, 0
+    _, group = np.unique(depth, return_inverse=True)
+    kept_ages, kept_out, kept_unused, accepted, proposed = [], [], [], 0, 0
     for _ in range(max_batches):
         ages = draw_ages(batch)
         out = rng.random((n, batch)) < np.asarray(outlier_prior)[:, None]
         out[:, out.all(axis=0)] = False  # keep at least one date in every draw
-        # monotone over the kept dates: running maximum of kept ages never exceeds the next
-        masked = np.where(out, -np.inf, ages)
+        unused = _pick_one_per_depth(group, out, rng)
+        # monotone over the used dates: running maximum of used ages never exceeds the next
+        masked = np.where(unused, -np.inf, ages)
         running = np.maximum.accumulate(masked, axis=0)
         previous = np.vstack([np.full((1, batch), -np.inf), running[:-1]])
-        same_depth = np.concatenate([[False], np.diff(depth) == 0])[:, None]
-        ok = np.all(out | (ages >= previous) | same_depth, axis=0)
+        ok = np.all(unused | (ages >= previous), axis=0)
         proposed += batch
         kept_ages.append(ages[:, ok])
         kept_out.append(out[:, ok])
+        kept_unused.append(unused[:, ok])
         accepted += int(ok.sum())
         if accepted >= members:
             break
@@ -97,7 +105,21 @@ def monotone_draws(date_depth_cm, draw_ages, members: int, outlier_prior, rng,
                          "are strongly reversed: use the accumulation model or mark outliers as excluded")
     ages = np.concatenate(kept_ages, axis=1)[:, :members]
     left_out = np.concatenate(kept_out, axis=1)[:, :members]
-    return ages, left_out, accepted / proposed
+    unused = np.concatenate(kept_unused, axis=1)[:, :members]
+    return ages, left_out, unused, accepted / proposed
+
+
+def _pick_one_per_depth(group: np.ndarray, out: np.ndarray, rng) -> np.ndarray:
+    """Mark all but one randomly picked kept date of each depth as unused, shape (n, B).
+
+    ``group`` (n,) numbers the distinct depths; ``out`` (n, B) are the outlier flags. Among
+    the kept dates of a depth each is picked with equal probability (a random key per date,
+    the largest kept key wins); a depth whose dates are all left out stays unused.
+    """
+    key = np.where(out, -1.0, rng.random(out.shape))
+    best = np.full((group.max() + 1, out.shape[1]), -1.0)
+    np.maximum.at(best, group, key)
+    return out | (key < best[group])
 
 
 def interpolate_paths(date_depth_cm, ages, left_out, depth_cm, sections, smooth: bool,
@@ -109,6 +131,7 @@ def interpolate_paths(date_depth_cm, ages, left_out, depth_cm, sections, smooth:
     date_depth_cm : ndarray, shape (n,)
     ages : ndarray, shape (n, M)
     left_out : ndarray of bool, shape (n, M)
+        Dates not used by each draw (at most one date per depth is used).
     depth_cm : ndarray, shape (k,)
         Requested depths [cm, event-free].
     sections : ndarray of int
@@ -133,8 +156,6 @@ def interpolate_paths(date_depth_cm, ages, left_out, depth_cm, sections, smooth:
             z, a = date_depth_cm[use], ages[use, m]
             if z.size == 0:
                 continue
-            z, first = np.unique(z, return_index=True)
-            a = a[first]
             target = depth_cm[rows]
             if z.size == 1:
                 out[rows, m] = a[0] + fallback_rate * (target - z[0])
@@ -181,7 +202,7 @@ def fit_interpolation(date_depth_cm, draw_ages, depth_cm, hiatus_depths_cm, outl
     depth_cm = np.asarray(depth_cm, dtype=float)
     if np.any(np.diff(date_depth_cm) < 0):
         raise ValueError("date depths must be sorted increasing")
-    ages, left_out, acceptance = monotone_draws(date_depth_cm, draw_ages, members, outlier_prior, rng)
+    ages, left_out, unused, acceptance = monotone_draws(date_depth_cm, draw_ages, members, outlier_prior, rng)
     if acceptance < 0.01:
         warnings.warn(f"monotonic rejection accepted only {acceptance:.1%} of the draws", stacklevel=2)
     edges = np.sort(np.asarray(hiatus_depths_cm, dtype=float))
@@ -191,7 +212,7 @@ def fit_interpolation(date_depth_cm, draw_ages, depth_cm, hiatus_depths_cm, outl
     if empty:
         raise ValueError("a hiatus-bounded section of the core holds no date; the interpolation model "
                          "cannot date it (use the accumulation model)")
-    paths = interpolate_paths(date_depth_cm, ages, left_out, depth_cm, sections, smooth, fallback_rate)
+    paths = interpolate_paths(date_depth_cm, ages, unused, depth_cm, sections, smooth, fallback_rate)
     # a younger age below an older one can only come from extrapolation; keep paths monotone
     paths = np.maximum.accumulate(paths, axis=0)
     return InterpolationFit(paths, left_out.mean(axis=1), acceptance)

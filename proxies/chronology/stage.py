@@ -16,25 +16,26 @@ import numpy as np
 import pandas as pd
 from scipy import stats
 
-from proxies.chronology.accumulation import AccumulationProblem, fit_accumulation, place_nodes
 from proxies.chronology.calibrate import (
     CalibratedDates,
-    CurveRangeError,
     calibrate_calendar,
-    calibrate_radiocarbon,
     stack_calibrated,
 )
 from proxies.chronology.curves import CalibrationCurve
-from proxies.chronology.interpolation import fit_interpolation
+from proxies.chronology.date_curves import calibrate_radiocarbon_rows
+from proxies.chronology.model_runs import HYPERPARAMETER_COLUMNS, run_accumulation, run_interpolation
 from proxies.chronology.settings import ChronologySettings
+from proxies.cores.datability import (age_control_problems, event_layer_problems, grid_memory_problems,
+                                      machine_memory_bytes)
 from proxies.problems import InputError, Problem
 
-__all__ = ["ChronologyResult", "build_chronology", "calibrate_core_dates", "date_density_table", "format_ranges",
+__all__ = ["ChronologyResult", "build_chronology", "calibrate_core_dates", "date_density_table", "date_range_table", "format_ranges",
            "mean_rate_from_dates", "CORE_TOP_LABEL"]
 
 #: label of the core-top pseudo-date added when ``core_top`` is on
 CORE_TOP_LABEL = "core top"
-_NICE_STEPS = (1, 2, 5, 10, 20, 50, 100)
+#: HPD levels reported for every date (common practice: 68.3 % and 95.4 %)
+HPD_LEVELS = (0.683, 0.954)
 
 
 @dataclass(frozen=True, eq=False)
@@ -60,10 +61,14 @@ class ChronologyResult:
     model : str
         Model used.
     hyperparameters : pandas.DataFrame
-        Accumulation model: mean_rate_yr_cm, shape, log_evidence, weight per grid point.
+        Accumulation models: model, mean_rate_yr_cm, rate_variability, rate_memory,
+        log_evidence, weight per hyper-parameter point (``hyperparameters.parquet``).
     date_densities : pandas.DataFrame
         ``date_densities.parquet``: label, age_cal_bp, density [1/yr] of each calibrated date
         (before the age model), thinned for plotting (see :func:`date_density_table`).
+    date_ranges : pandas.DataFrame
+        ``date_ranges.parquet``: the 68.3 % and 95.4 % HPD ranges of each date as numbers
+        (see :func:`date_range_table`).
     """
 
     depth_cm: np.ndarray
@@ -77,6 +82,7 @@ class ChronologyResult:
     depth_scale: object = None
     hyperparameters: pd.DataFrame = field(default_factory=pd.DataFrame)
     date_densities: pd.DataFrame = field(default_factory=pd.DataFrame)
+    date_ranges: pd.DataFrame = field(default_factory=pd.DataFrame)
 
     def age_at(self, depth_cm) -> np.ndarray:
         """Ensemble ages at composite depths [cm], shape (k, M) [cal BP].
@@ -109,19 +115,10 @@ def _event_free(depth_scale, depth: np.ndarray) -> np.ndarray:
     return np.asarray(depth_scale.event_free_depth(depth), dtype=float)
 
 
-def _curve_name(cell, settings: ChronologySettings, curves: dict) -> str | None:
-    if cell is not None and not (isinstance(cell, float) and math.isnan(cell)) and str(cell).strip():
-        return str(cell).strip()
-    if settings.default_curve:
-        return settings.default_curve
-    if len(curves) == 1:
-        return next(iter(curves))
-    if "atmosphere" in curves:
-        return "atmosphere"
-    return None
-
-
 def _dates_file(core) -> str:
+    files = getattr(core, "files", None) or {}
+    if "dates" in files:
+        return files["dates"]
     folder = getattr(core, "folder", "") or ""
     return f"{folder}/dates" if folder else f"dates of core {getattr(core, 'id', '?')}"
 
@@ -147,57 +144,27 @@ def calibrate_core_dates(core, curves: dict[str, CalibrationCurve], settings: Ch
                             ("reservoir_error", 0.0), ("exclude", False), ("source_row", np.nan)):
         if column not in table.columns:
             table[column] = default
-    if settings.core_top:
-        error = getattr(core, "top_age_error", None) or settings.top_age_error_yr
+    table["constraint"] = False
+    if top_is_surface(core, settings):
+        error = core.top_age_error or settings.top_age_error_yr
         top = {c: None for c in table.columns}
         top.update(label=CORE_TOP_LABEL, depth_cm=0.0, kind="calendar", age=float(core.top_age_cal_bp),
                    error=float(error), thickness_cm=0.0, reservoir_offset=0.0, reservoir_error=0.0,
-                   exclude=False, source_row=np.nan)
+                   exclude=False, source_row=np.nan, constraint=True)
         table = pd.concat([pd.DataFrame([top]), table], ignore_index=True)
+    table["constraint"] = table["constraint"].astype(bool)
     table["reservoir_offset"] = pd.to_numeric(table["reservoir_offset"]).fillna(0.0)
     table["reservoir_error"] = pd.to_numeric(table["reservoir_error"]).fillna(0.0)
     table["exclude"] = table["exclude"].fillna(False).astype(bool)
     kinds = table["kind"].astype(str).str.lower().to_numpy()
     file = _dates_file(core)
-    problems: list[Problem] = []
     step = settings.calibration_step_yr
     used = [None] * len(table)
-    parts = []
     radiocarbon = np.flatnonzero(kinds == "radiocarbon")
-    groups: dict[str, list[int]] = {}
-    for i in radiocarbon:
-        name = _curve_name(table.at[i, "curve"], settings, curves)
-        row = _row(table, i)
-        if name is None:
-            problems.append(Problem(file, f"date {table.at[i, 'label']!r} needs a calibration curve but none "
-                                          "is given", "add a [curves] entry to the run config, or set "
-                                    "[chronology] default_curve", row=row, column="curve"))
-        elif name not in curves:
-            problems.append(Problem(file, f"curve {name!r} of date {table.at[i, 'label']!r} is not in [curves]",
-                                    f"use one of: {', '.join(sorted(curves)) or '(none)'}", row=row,
-                                    column="curve"))
-        else:
-            groups.setdefault(name, []).append(int(i))
-            used[i] = name
-    for name, rows in groups.items():
-        curve = curves[name].on_grid(step)
-        rows = np.asarray(rows)
-        try:
-            part = calibrate_radiocarbon(
-                table["age"].to_numpy(float)[rows], table["error"].to_numpy(float)[rows], curve,
-                table["reservoir_offset"].to_numpy(float)[rows], table["reservoir_error"].to_numpy(float)[rows],
-                student_t=settings.student_t, error_multiplier_prior=settings.error_multiplier_prior,
-                labels=table["label"].astype(str).to_numpy()[rows])
-        except CurveRangeError as error:
-            for j in error.index:
-                i = rows[j]
-                problems.append(Problem(
-                    file, f"radiocarbon age {table.at[i, 'age']:g} of date {table.at[i, 'label']!r} is outside "
-                          f"curve {name!r} ({curve.c14_range()[0]:g}-{curve.c14_range()[1]:g} 14C yr BP)",
-                    "check the age and its reservoir offset, or use a curve that covers it",
-                    row=_row(table, i), column="age"))
-            continue
-        parts.append((rows, part))
+    parts, used_keys, problems = calibrate_radiocarbon_rows(table, radiocarbon, curves, settings, file,
+                                                            lambda i: _row(table, i))
+    for i, key in used_keys.items():
+        used[i] = key
     calendar = np.flatnonzero(kinds == "calendar")
     if calendar.size:
         parts.append((calendar, calibrate_calendar(table["age"].to_numpy(float)[calendar],
@@ -210,6 +177,19 @@ def calibrate_core_dates(core, curves: dict[str, CalibrationCurve], settings: Ch
         raise InputError(problems)
     table["curve_used"] = used
     return table, stack_calibrated(parts, len(table))
+
+
+def top_is_surface(core, settings: ChronologySettings) -> bool:
+    """Whether the core top is the sediment surface of the collection year (a constraint).
+
+    ``core.toml``'s ``top_intact`` decides when given; otherwise ``[chronology] core_top``.
+    """
+    return settings.core_top if core.top_intact is None else bool(core.top_intact)
+
+
+def outlier_priors(table: pd.DataFrame, settings: ChronologySettings) -> np.ndarray:
+    """Prior outlier probability of each date: ``outlier_prior``, 0 for constraints (core top)."""
+    return np.where(table["constraint"].to_numpy(bool), 0.0, settings.outlier_prior)
 
 
 def _row(table: pd.DataFrame, i: int) -> int | None:
@@ -241,14 +221,6 @@ def mean_rate_from_dates(depth_cm, median_cal_bp) -> float | None:
     return float(slope) if np.isfinite(slope) and slope > 0 else None
 
 
-def _nice_step(span: float) -> float:
-    raw = span / 4000.0
-    for step in _NICE_STEPS:
-        if raw <= step:
-            return float(step)
-    return float(math.ceil(raw / 100.0) * 100)
-
-
 def build_chronology(core, curves: dict[str, CalibrationCurve], settings: ChronologySettings,
                      ensemble: int, rng: np.random.Generator) -> ChronologyResult:
     """Calibrate a core's dates and build its age-depth ensemble.
@@ -271,6 +243,10 @@ def build_chronology(core, curves: dict[str, CalibrationCurve], settings: Chrono
     """
     if ensemble < 1:
         raise ValueError(f"ensemble must be >= 1, got {ensemble}")
+    refused = (age_control_problems(core, top_is_surface(core, settings)) + event_layer_problems(core)
+               + grid_memory_problems(core, settings, None, ensemble, machine_memory_bytes(), "run config"))
+    if refused:
+        raise InputError(refused)
     messages: list[str] = []
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
@@ -294,23 +270,51 @@ def build_chronology(core, curves: dict[str, CalibrationCurve], settings: Chrono
         messages.append("mean accumulation rate could not be estimated from the dates; 10 yr/cm assumed")
     top, bottom = float(min(free_out.min(), z.min())), float(max(free_out.max(), z.max()))
     outlier = np.full(len(table), np.nan)
-    hyper = pd.DataFrame()
-    if settings.model == "accumulation":
-        nodes, paths, outlier_used, hyper = _run_accumulation(
-            table, calibrated, use, z, hiatuses, top, bottom, centre, core, settings, ensemble, rng)
+    hyper = pd.DataFrame({c: pd.Series(dtype="string" if c == "model" else float) for c in HYPERPARAMETER_COLUMNS})
+    priors = outlier_priors(table, settings)
+    if settings.model in ("memory", "accumulation"):
+        pinned = table["constraint"].to_numpy(bool) & use & (table["kind"].astype(str).str.lower() == "calendar")
+        constraints = [(z[i], float(table.at[i, "age"]), float(table.at[i, "error"])) for i in np.flatnonzero(pinned)]
+        nodes, paths, outlier_used, hyper = run_accumulation(
+            calibrated, use, z, priors, hiatuses, top, bottom, centre, core, settings, ensemble, rng, constraints)
     else:
-        nodes, paths, outlier_used = _run_interpolation(
-            calibrated, use, z, hiatuses, free_out, centre, settings, ensemble, rng)
+        nodes, paths, outlier_used = run_interpolation(
+            calibrated, use, z, priors, hiatuses, free_out, centre, settings, ensemble, rng)
     outlier[use] = outlier_used
     result_ensemble = interpolate_nodes(nodes, paths, free_out)
     summary = _summary(out_depth, free_out, result_ensemble)
+    summary["hiatus_gap_yr"] = _hiatus_gaps(out_depth, getattr(core, "hiatuses_cm", ()) or (), depth_scale,
+                                            nodes, paths)
     dates = _dates_table(table, calibrated, medians, outlier, interpolate_nodes(nodes, paths, z))
     for label, p in zip(dates["label"], dates["outlier_prob"]):
         if np.isfinite(p) and p > 0.5:
             messages.append(f"date {label!r} is probably an outlier (posterior probability {p:.2f})")
     return ChronologyResult(out_depth, result_ensemble, summary, dates, messages, nodes, paths,
                             settings.model, depth_scale, hyper,
-                            date_density_table(table["label"].tolist(), calibrated))
+                            date_density_table(table["label"].tolist(), calibrated),
+                            date_range_table(table["label"].tolist(), calibrated))
+
+
+def date_range_table(labels: list[str], calibrated: CalibratedDates,
+                     levels: tuple[float, ...] = HPD_LEVELS) -> pd.DataFrame:
+    """HPD ranges of the calibrated dates as numbers, one row per range.
+
+    Returns
+    -------
+    pandas.DataFrame
+        ``date_ranges.parquet``: label, level, young_cal_bp, old_cal_bp [cal BP], probability
+        (mass inside the range), dates in input order, levels ascending, ranges young to old.
+    """
+    rows = [(label, level, young, old, mass)
+            for level in sorted(levels)
+            for label, ranges in zip(labels, calibrated.hpd(level))
+            for young, old, mass in ranges]
+    frame = pd.DataFrame(rows, columns=["label", "level", "young_cal_bp", "old_cal_bp", "probability"])
+    order = {label: i for i, label in enumerate(labels)}
+    frame["_date"] = frame["label"].map(order)
+    frame = frame.sort_values(["_date", "level"], kind="stable").drop(columns="_date")
+    return frame.astype({"level": float, "young_cal_bp": float, "old_cal_bp": float,
+                         "probability": float}).reset_index(drop=True)
 
 
 def date_density_table(labels: list[str], calibrated: CalibratedDates, max_points: int = 400,
@@ -365,62 +369,17 @@ def _output_depths(core, table: pd.DataFrame, settings: ChronologySettings) -> n
     return depth
 
 
-def _run_accumulation(table, calibrated: CalibratedDates, use, z, hiatuses, top, bottom, centre, core,
-                      settings: ChronologySettings, ensemble: int, rng):
-    spacing = max(settings.node_spacing_cm, (bottom - top) / settings.max_nodes)
-    inside = tuple(h for h in hiatuses if top < h < bottom)
-    nodes, gap_after = place_nodes(top, bottom, spacing, z[use], inside)
-    rates = centre * np.asarray(settings.rate_multipliers)
-    used = calibrated.take(np.flatnonzero(use))
-    lows, highs = used.quantile(0.0005), used.quantile(0.9995)
-    z_used = z[use]
-    young = float(lows.min() - max(0.0, z_used.min() - top) * rates.max() * 3 - 100)
-    top_age = getattr(core, "top_age_cal_bp", None)
-    if top_age is not None:
-        error = getattr(core, "top_age_error", None) or settings.top_age_error_yr
-        # a core cannot be younger than its collection year: the grid starts there
-        young = float(min(lows.min(), top_age - 4 * error))
-    old = float(highs.max() + max(0.0, bottom - z_used.max()) * rates.max() * 3
-                + len(inside) * settings.hiatus_gap_yr * 10 + 2 * spacing * rates.max() + 100)
-    step = settings.grid_step_yr or _nice_step(old - young)
-    size = int(math.ceil((old - young) / step)) + 1
-    if size > 20000:
-        step = _nice_step((old - young) * 2000 / 20000)
-        size = int(math.ceil((old - young) / step)) + 1
-    origin = math.floor(young / step) * step
-    mass = used.on_grid(origin, step, size)
-    node_of = np.searchsorted(nodes, z_used - 1e-6, side="left")
-    prior = np.full(z_used.size, settings.outlier_prior)
-    problem = AccumulationProblem(nodes, gap_after, node_of, mass, prior, float(origin), float(step),
-                                  float(settings.node_spacing_cm))
-    mult, shape = np.meshgrid(rates, np.asarray(settings.rate_shapes), indexing="ij")
-    fit = fit_accumulation(problem, mult.ravel(), shape.ravel(), settings.hiatus_gap_yr, ensemble, rng)
-    hyper = pd.DataFrame({"mean_rate_yr_cm": fit.mean_rates, "shape": fit.shapes,
-                          "log_evidence": fit.log_evidence, "weight": fit.weights})
-    return nodes, fit.paths, fit.outlier_posterior, hyper
-
-
-def _run_interpolation(calibrated: CalibratedDates, use, z, hiatuses, free_out, centre,
-                       settings: ChronologySettings, ensemble: int, rng):
-    index = np.flatnonzero(use)
-    index = index[np.argsort(z[index], kind="stable")]
-    chosen = calibrated.take(index)
-    depths = z[index]
-    prior = np.full(index.size, settings.outlier_prior)
-    edges = sorted(h for h in hiatuses)
-    ladder = np.unique(np.concatenate([free_out, depths]))
-    nodes = np.sort(np.concatenate([ladder, [h for h in edges if ladder[0] < h < ladder[-1]]]))
-    # the second copy of a hiatus depth belongs to the section below it
-    query = nodes.copy()
-    for h in edges:
-        copies = np.flatnonzero(nodes == h)
-        if copies.size == 2:
-            query[copies[1]] = h + 1e-9
-    fit = fit_interpolation(depths, lambda size: chosen.sample(size, rng), query, edges, prior, ensemble, rng,
-                            smooth=settings.join == "smooth", fallback_rate=centre)
-    outlier = np.full(z.size, np.nan)
-    outlier[index] = fit.outlier_posterior
-    return nodes, fit.paths, outlier[use]
+def _hiatus_gaps(out_depth, hiatuses_cm, depth_scale, nodes, paths) -> np.ndarray:
+    """Median age jump across each hiatus [yr], at the output depth just above it (else NaN)."""
+    gaps = np.full(out_depth.size, np.nan)
+    for h in hiatuses_cm:
+        if not out_depth[0] <= h <= out_depth[-1]:
+            continue
+        free = _event_free(depth_scale, np.array([h, h + 1e-6]))
+        above, below = interpolate_nodes(nodes, paths, free)
+        row = int(np.searchsorted(out_depth, h + 1e-9, side="right")) - 1
+        gaps[row] = float(np.median(below - above))
+    return gaps
 
 
 def _summary(depth_cm, free, ensemble) -> pd.DataFrame:
@@ -437,14 +396,12 @@ def _summary(depth_cm, free, ensemble) -> pd.DataFrame:
 
 def _dates_table(table, calibrated: CalibratedDates, medians, outlier, model_ages) -> pd.DataFrame:
     out = table.copy()
-    hpd95, hpd68 = calibrated.hpd(0.954), calibrated.hpd(0.683)
+    hpd95 = calibrated.hpd(0.954)
     out["cal_median_bp"] = medians
     out["cal_mode_bp"] = calibrated.mode()
     out["cal_mean_bp"] = calibrated.mean()
     out["hpd95_young_bp"] = [r[0][0] for r in hpd95]
     out["hpd95_old_bp"] = [r[-1][1] for r in hpd95]
-    out["hpd95_ranges"] = [format_ranges(r) for r in hpd95]
-    out["hpd68_ranges"] = [format_ranges(r) for r in hpd68]
     out["outlier_prob"] = outlier
     out["model_age_median_bp"] = np.median(model_ages, axis=1)
     out["curve"] = out["curve"].astype(object).where(out["curve"].notna(), None)

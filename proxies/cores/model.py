@@ -102,6 +102,13 @@ class Core:
         Composite depths of hiatuses [cm], sorted.
     folder : str
         The core folder as given.
+    files : dict of str to str
+        ``samples``/``dates``/``counts`` -> the file as problems name it
+        (``<folder>/dates.csv``).
+    top_intact : bool or None
+        ``core.toml``'s ``top_intact``: ``True`` when the core top is the sediment surface of
+        the collection year, ``False`` for a lost or older top; ``None`` when not given (the
+        run's ``[chronology] core_top`` decides).
     """
 
     id: str
@@ -118,6 +125,8 @@ class Core:
     event_layers: tuple[EventLayer, ...] = ()
     hiatuses_cm: tuple[float, ...] = ()
     folder: str = ""
+    files: dict = field(default_factory=dict, repr=False)
+    top_intact: bool | None = None
 
     @property
     def top_age_cal_bp(self) -> float:

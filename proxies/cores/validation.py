@@ -1,4 +1,4 @@
-"""Validation of core inputs that have already been read: ``core.toml`` mappings and tables.
+"""Validation of core tables that have already been read (``core.toml``: :mod:`.core_file`).
 
 Every check here is pure (no file I/O) and collects *all* problems instead of stopping at the
 first: each function returns the converted value (or ``None`` when it cannot be built) and a
@@ -16,23 +16,26 @@ Range rules and why
   allowed for slightly post-bomb material; the practical radiocarbon limit is about 50-55 kyr
   (common practice). Older or strongly post-bomb material should be given as ``calendar``.
 - calendar ages [cal BP] may be negative (after 1950 CE) but not younger than the core top
-  (``1950 - collected``) by more than :data:`CALENDAR_TOP_SLACK_YR` years.
+  (``1950 - collected``) by more than :data:`CALENDAR_TOP_SLACK_YR` years, nor older than
+  :data:`CALENDAR_MAX_CAL_BP` (a 5e8 typed for 5e3 would otherwise drag every other date).
 - errors > 0; thicknesses, counts and proxy errors >= 0; depths >= 0.
 """
 
 from __future__ import annotations
 
 import math
-import re
-from dataclasses import dataclass, field
-from datetime import date
 from typing import Any
 
 import numpy as np
 import pandas as pd
 
-from proxies.cores.model import ERROR_SUFFIX, EventLayer, Section
+from proxies.cores.cells import BadCell, cell_to_float, cell_to_text, parse_bool  # noqa: F401 (re-export)
+from proxies.cores.core_file import (  # noqa: F401 (re-exported names of the core.toml rules)
+    ARCHIVES, CORE_KEYS, DEPTH_UNITS, FILE_KEYS, ID_PATTERN, TOP_LEVEL_KEYS, CoreSpec, check_core_mapping, current_year)
+from proxies.cores.model import ERROR_SUFFIX, Section
+from proxies.chronology.curve_cells import BLEND_PREFIX, curve_cell_problem
 from proxies.problems import Problem
+from proxies.settings_spec import did_you_mean
 
 __all__ = [
     "ARCHIVES",
@@ -46,394 +49,33 @@ __all__ = [
     "check_dates",
     "check_counts",
     "check_curve_names",
+    "resolve_curve_name",
     "check_measurements",
     "parse_bool",
 ]
 
-ARCHIVES = ("lake", "marine", "peat", "speleothem", "other")
 DATE_KINDS = ("radiocarbon", "calendar")
-#: depth unit -> factor to cm
-DEPTH_UNITS = {"cm": 1.0, "mm": 0.1, "m": 100.0}
 #: columns kept as text in samples and counts (every other column must be numeric)
 TEXT_COLUMNS = frozenset({"label", "sample_id", "sample", "lab_id", "note", "notes", "comment", "comments"})
-#: text cells read as a missing value (besides empty cells)
-MISSING_MARKERS = frozenset({"na", "nan", "n/a"})
-RADIOCARBON_MIN_14C_YR = -1000.0
+#: post-bomb ages (F14C up to ~3.5) are accepted; they need a post-bomb curve in [curves]
+RADIOCARBON_MIN_14C_YR = -10000.0
 RADIOCARBON_MAX_14C_YR = 55000.0
+#: oldest accepted calendar age [cal BP] (10 Myr: far beyond any core this program dates)
+CALENDAR_MAX_CAL_BP = 10_000_000.0
 #: a calendar age may be this many years younger than the core top [yr]
 CALENDAR_TOP_SLACK_YR = 5.0
-#: earliest accepted collection year [yr CE]
-EARLIEST_COLLECTION_CE = 1850
-ID_PATTERN = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_-]{0,63}$")
-TOP_LEVEL_KEYS = ("core", "files", "sections", "event_layers", "hiatuses")
-CORE_KEYS = ("id", "archive", "latitude", "longitude", "collected", "depth_unit", "site", "top_age_error")
-FILE_KEYS = ("samples", "dates", "counts")
-TRUE_WORDS = frozenset({"true", "yes", "1", "y"})
-FALSE_WORDS = frozenset({"false", "no", "0", "n"})
-
-
-def current_year() -> int:
-    """This year [CE], from the system clock (injectable everywhere as ``current_year=``)."""
-    return date.today().year
-
-
-@dataclass(frozen=True)
-class CoreSpec:
-    """The contents of a valid ``core.toml``, depths already in cm.
-
-    Attributes mirror :class:`proxies.cores.model.Core`; ``depth_unit`` is the unit the
-    tables are written in, ``files`` maps ``samples``/``dates``/``counts`` to file names.
-    """
-
-    id: str
-    archive: str
-    latitude: float
-    longitude: float
-    collected_ce: int
-    site: str
-    top_age_error: float | None
-    depth_unit: str
-    files: dict[str, str]
-    sections: tuple[Section, ...] = ()
-    event_layers: tuple[EventLayer, ...] = ()
-    hiatuses_cm: tuple[float, ...] = ()
-
-    @property
-    def depth_factor(self) -> float:
-        """Multiply a table depth by this to get cm."""
-        return DEPTH_UNITS[self.depth_unit]
-
-    @property
-    def top_age_cal_bp(self) -> float:
-        return 1950.0 - self.collected_ce
-
-
-# ---------------------------------------------------------------------------------------------
-# core.toml
-# ---------------------------------------------------------------------------------------------
-@dataclass
-class _Collector:
-    file: str
-    problems: list[Problem] = field(default_factory=list)
-
-    def add(self, message: str, fix: str, column: str | None = None, row: int | None = None) -> None:
-        self.problems.append(Problem(self.file, message, fix, row=row, column=column))
-
-
-def _is_number(value: Any) -> bool:
-    return isinstance(value, (int, float)) and not isinstance(value, bool) and math.isfinite(value)
-
-
-def _number(
-    where: _Collector, table: dict, key: str, path: str, *, required: bool, lo: float | None = None,
-    hi: float | None = None, unit: str = "", fix: str = "",
-) -> float | None:
-    if key not in table:
-        if required:
-            where.add(f"required key '{key}' is missing", fix or f"add {key} = <number> {unit}".rstrip(), path)
-        return None
-    value = table[key]
-    if not _is_number(value):
-        where.add(f"'{key}' must be a number, got {value!r}", fix or f"write {key} = <number>", path)
-        return None
-    if (lo is not None and value < lo) or (hi is not None and value > hi):
-        bounds = f"{lo if lo is not None else '-inf'} to {hi if hi is not None else 'inf'}"
-        where.add(f"'{key}' = {value} is outside {bounds} {unit}".rstrip(), fix or f"give {key} within {bounds}", path)
-        return None
-    return float(value)
-
-
-def _text(where: _Collector, table: dict, key: str, path: str, *, required: bool) -> str | None:
-    if key not in table:
-        if required:
-            where.add(f"required key '{key}' is missing", f'add {key} = "..."', path)
-        return None
-    value = table[key]
-    if not isinstance(value, str):
-        where.add(f"'{key}' must be text, got {value!r}", f'write {key} = "..." in quotes', path)
-        return None
-    return value
-
-
-def _unknown_keys(where: _Collector, table: dict, allowed: tuple[str, ...], path: str) -> None:
-    for key in table:
-        if key not in allowed:
-            where.add(
-                f"unknown key '{key}'",
-                "remove it or correct the spelling; allowed: " + ", ".join(allowed),
-                f"{path}.{key}" if path else key,
-            )
-
-
-def _table(where: _Collector, mapping: dict, key: str, *, required: bool) -> dict:
-    if key not in mapping:
-        if required:
-            where.add(f"the [{key}] table is missing", f"add a [{key}] table (see the core-folder format)", key)
-        return {}
-    value = mapping[key]
-    if not isinstance(value, dict):
-        where.add(f"'{key}' must be a [{key}] table", f"write it as a [{key}] table", key)
-        return {}
-    return value
-
-
-def _array_of_tables(where: _Collector, mapping: dict, key: str) -> list[dict]:
-    value = mapping.get(key, [])
-    if not isinstance(value, list) or not all(isinstance(item, dict) for item in value):
-        where.add(f"'{key}' must be a list of [[{key}]] tables", f"write each entry as a [[{key}]] table", key)
-        return []
-    return value
-
-
-def check_core_mapping(
-    mapping: dict, file: str, *, year: int | None = None
-) -> tuple[CoreSpec | None, list[Problem]]:
-    """Validate a parsed ``core.toml``.
-
-    Parameters
-    ----------
-    mapping : dict
-        The parsed TOML document.
-    file : str
-        How problems name the file.
-    year : int, optional
-        The current year [CE] (default: :func:`current_year`), for the "collected in the
-        future" check.
-
-    Returns
-    -------
-    spec : CoreSpec or None
-        ``None`` when any problem was found.
-    problems : list of Problem
-    """
-    year = current_year() if year is None else year
-    where = _Collector(file)
-    _unknown_keys(where, mapping, TOP_LEVEL_KEYS, "")
-    core = _table(where, mapping, "core", required=True)
-    _unknown_keys(where, core, CORE_KEYS, "core")
-
-    core_id = _text(where, core, "id", "core.id", required=True)
-    if core_id is not None and not ID_PATTERN.match(core_id):
-        where.add(
-            f"core id {core_id!r} is not safe as a folder name",
-            "use 1-64 letters, digits, '-' or '_', starting with a letter or digit (e.g. TARN-2)",
-            "core.id",
-        )
-        core_id = None
-    archive = _text(where, core, "archive", "core.archive", required=True)
-    if archive is not None and archive not in ARCHIVES:
-        where.add(f"unknown archive {archive!r}", "use one of: " + ", ".join(ARCHIVES), "core.archive")
-        archive = None
-    latitude = _number(where, core, "latitude", "core.latitude", required=True, lo=-90, hi=90, unit="decimal degrees")
-    longitude = _number(
-        where, core, "longitude", "core.longitude", required=True, lo=-180, hi=180, unit="decimal degrees"
-    )
-    collected = _collected_year(where, core, year)
-    depth_unit = core.get("depth_unit", "cm")
-    if depth_unit not in DEPTH_UNITS:
-        where.add(
-            f"unknown depth_unit {depth_unit!r}", "use one of: " + ", ".join(DEPTH_UNITS), "core.depth_unit"
-        )
-        depth_unit = None
-    site = _text(where, core, "site", "core.site", required=False) or ""
-    top_age_error = _number(where, core, "top_age_error", "core.top_age_error", required=False, lo=0, unit="yr")
-
-    files = _check_files(where, _table(where, mapping, "files", required=True))
-    factor = DEPTH_UNITS.get(depth_unit or "cm", 1.0)
-    unit = depth_unit or "cm"
-    sections = _check_sections(where, _array_of_tables(where, mapping, "sections"), factor, unit)
-    layers = _check_event_layers(where, _array_of_tables(where, mapping, "event_layers"), factor, unit)
-    hiatuses = _check_hiatuses(where, _array_of_tables(where, mapping, "hiatuses"), factor, unit, layers)
-
-    if where.problems:
-        return None, where.problems
-    spec = CoreSpec(
-        id=core_id, archive=archive, latitude=latitude, longitude=longitude, collected_ce=collected,
-        site=site, top_age_error=top_age_error, depth_unit=depth_unit, files=files,
-        sections=sections, event_layers=tuple(sorted(layers, key=lambda e: e.top_cm)),
-        hiatuses_cm=tuple(sorted(hiatuses)),
-    )
-    return spec, []
-
-
-def _collected_year(where: _Collector, core: dict, year: int) -> int | None:
-    if "collected" not in core:
-        where.add("required key 'collected' is missing", "add collected = <year CE the core was taken>",
-                  "core.collected")
-        return None
-    value = core["collected"]
-    if isinstance(value, bool) or not isinstance(value, int):
-        where.add(f"'collected' must be a whole year CE, got {value!r}", "write e.g. collected = 2018",
-                  "core.collected")
-        return None
-    if value > year:
-        where.add(f"collected = {value} is in the future (this is {year})",
-                  "give the year CE the core was taken", "core.collected")
-        return None
-    if value < EARLIEST_COLLECTION_CE:
-        where.add(f"collected = {value} is before {EARLIEST_COLLECTION_CE} CE",
-                  "give the year CE the core was taken (not an age in BP)", "core.collected")
-        return None
-    return value
-
-
-def _check_files(where: _Collector, files: dict) -> dict[str, str]:
-    _unknown_keys(where, files, FILE_KEYS, "files")
-    result = {}
-    for key in FILE_KEYS:
-        name = _text(where, files, key, f"files.{key}", required=key != "counts")
-        if name is None:
-            continue
-        parts = re.split(r"[\\/]", name)
-        if name.strip() == "" or name.startswith(("/", "\\")) or ".." in parts or re.match(r"^[A-Za-z]:", name):
-            where.add(f"file name {name!r} points outside the core folder",
-                      "put the table inside the core folder and give its name relative to it", f"files.{key}")
-            continue
-        result[key] = name
-    return result
-
-
-def _check_sections(where: _Collector, entries: list[dict], factor: float, unit: str) -> tuple[Section, ...]:
-    sections = []
-    seen: set[str] = set()
-    for number, entry in enumerate(entries, start=1):
-        path = f"sections[{number}]"
-        _unknown_keys(where, entry, ("name", "top"), path)
-        name = _text(where, entry, "name", f"{path}.name", required=True)
-        top = _number(where, entry, "top", f"{path}.top", required=True, lo=0, unit=unit)
-        if name is not None and name in seen:
-            where.add(f"section name {name!r} is used twice", "give every section its own name", f"{path}.name")
-            continue
-        if name is not None:
-            seen.add(name)
-        if name is not None and top is not None:
-            sections.append(Section(name=name, top_cm=top * factor))
-    return tuple(sections)
-
-
-def _check_event_layers(where: _Collector, entries: list[dict], factor: float, unit: str) -> list[EventLayer]:
-    layers: list[tuple[int, EventLayer]] = []
-    for number, entry in enumerate(entries, start=1):
-        path = f"event_layers[{number}]"
-        _unknown_keys(where, entry, ("top", "bottom", "kind"), path)
-        top = _number(where, entry, "top", f"{path}.top", required=True, lo=0, unit=unit)
-        bottom = _number(where, entry, "bottom", f"{path}.bottom", required=True, lo=0, unit=unit)
-        kind = _text(where, entry, "kind", f"{path}.kind", required=False) or "unspecified"
-        if top is None or bottom is None:
-            continue
-        if bottom <= top:
-            where.add(
-                f"event layer bottom ({bottom} {unit}) is not below its top ({top} {unit})",
-                "swap top and bottom (depth increases downwards) or remove a zero-thickness layer",
-                f"{path}.bottom",
-            )
-            continue
-        layers.append((number, EventLayer(top_cm=top * factor, bottom_cm=bottom * factor, kind=kind)))
-    ordered = sorted(layers, key=lambda item: item[1].top_cm)
-    for (n_upper, upper), (n_lower, lower) in zip(ordered, ordered[1:]):
-        if lower.top_cm < upper.bottom_cm:
-            where.add(
-                f"event layers {n_upper} ({upper.top_cm / factor:g}-{upper.bottom_cm / factor:g} {unit}) and "
-                f"{n_lower} ({lower.top_cm / factor:g}-{lower.bottom_cm / factor:g} {unit}) overlap",
-                "merge them into one layer or correct their depths",
-                f"event_layers[{n_lower}].top",
-            )
-    return [layer for _, layer in layers]
-
-
-def _check_hiatuses(
-    where: _Collector, entries: list[dict], factor: float, unit: str, layers: list[EventLayer]
-) -> list[float]:
-    depths = []
-    for number, entry in enumerate(entries, start=1):
-        path = f"hiatuses[{number}]"
-        _unknown_keys(where, entry, ("depth",), path)
-        depth = _number(where, entry, "depth", f"{path}.depth", required=True, lo=0, unit=unit)
-        if depth is None:
-            continue
-        depth_cm = depth * factor
-        if depth_cm in depths:
-            where.add(f"hiatus at {depth:g} {unit} is listed twice", "list each hiatus once", f"{path}.depth")
-            continue
-        inside = [layer for layer in layers if layer.top_cm < depth_cm < layer.bottom_cm]
-        if inside:
-            layer = inside[0]
-            where.add(
-                f"hiatus at {depth:g} {unit} lies inside the event layer "
-                f"{layer.top_cm / factor:g}-{layer.bottom_cm / factor:g} {unit}",
-                "put the hiatus at the layer top or bottom, or correct the depths",
-                f"{path}.depth",
-            )
-            continue
-        depths.append(depth_cm)
-    return depths
 
 
 # ---------------------------------------------------------------------------------------------
 # cells
 # ---------------------------------------------------------------------------------------------
-class _BadCell(ValueError):
-    pass
-
-
-def _cell_to_float(cell: Any) -> float:
-    """A cell as float; NaN for missing. Raises _BadCell with a reason."""
-    if cell is None:
-        return math.nan
-    if isinstance(cell, (bool, np.bool_)):
-        raise _BadCell(f"{cell!r} is a true/false value, not a number")
-    if isinstance(cell, (int, float, np.integer, np.floating)):
-        value = float(cell)
-        if math.isinf(value):
-            raise _BadCell("infinite value")
-        return value
-    if isinstance(cell, str):
-        text = cell.strip()
-        if text == "" or text.lower() in MISSING_MARKERS:
-            return math.nan
-        try:
-            value = float(text)
-        except ValueError:
-            if re.fullmatch(r"[-+]?\d*,\d+", text):
-                raise _BadCell(f"{cell!r} uses a decimal comma") from None
-            raise _BadCell(f"{cell!r} is not a number") from None
-        if not math.isfinite(value):
-            raise _BadCell(f"{cell!r} is not a finite number")
-        return value
-    if pd.isna(cell):
-        return math.nan
-    raise _BadCell(f"{cell!r} ({type(cell).__name__}) is not a number")
-
-
-def parse_bool(cell: Any) -> bool | None:
-    """Read a true/false cell: true/false, yes/no, 1/0 (any case); empty -> False.
-
-    Returns ``None`` when the cell is not one of those.
-    """
-    if cell is None or (isinstance(cell, float) and math.isnan(cell)):
-        return False
-    if isinstance(cell, (bool, np.bool_)):
-        return bool(cell)
-    if isinstance(cell, (int, float, np.integer, np.floating)):
-        return {1.0: True, 0.0: False}.get(float(cell))
-    if isinstance(cell, str):
-        text = cell.strip().lower()
-        if text == "":
-            return False
-        if text in TRUE_WORDS:
-            return True
-        if text in FALSE_WORDS:
-            return False
-    return None
-
-
-def _cell_to_text(cell: Any) -> str | None:
-    if cell is None or (isinstance(cell, float) and math.isnan(cell)):
-        return None
-    if isinstance(cell, float) and cell.is_integer():
-        return str(int(cell))
-    text = str(cell).strip()
-    return text or None
+def _near_column(wanted: str, header: list[str]) -> str | None:
+    """A header name that is ``wanted`` written differently (case, blanks, a typo)."""
+    for name in header:
+        if name.lower().replace(" ", "_") == wanted:
+            return name
+    close = did_you_mean(wanted, header)
+    return close.split("'")[1] if close else None
 
 
 class _TableChecker:
@@ -458,6 +100,9 @@ class _TableChecker:
         for column in columns:
             if not self.has(column):
                 fix = f"add the column '{column}' to the header"
+                near = _near_column(column, [str(c) for c in self.table.columns])
+                if near:
+                    fix = f"the header has '{near}': rename it to '{column}' (names are exact, lower case)"
                 stem = column.rsplit("_", 1)[0] if column.startswith(("depth_", "thickness_")) else None
                 if stem:
                     other = [c for c in self.table.columns if str(c).startswith(stem + "_")]
@@ -477,8 +122,8 @@ class _TableChecker:
             return values
         for i, (row, cell) in enumerate(zip(self.rows, self.table[column])):
             try:
-                value = _cell_to_float(cell)
-            except _BadCell as reason:
+                value = cell_to_float(cell)
+            except BadCell as reason:
                 self.add(f"{reason}", fix or f"write the {what} as a plain number (decimal point)", row, column)
                 continue
             if math.isnan(value):
@@ -495,7 +140,7 @@ class _TableChecker:
     def texts(self, column: str) -> list[str | None]:
         if not self.has(column):
             return [None] * len(self.rows)
-        return [_cell_to_text(cell) for cell in self.table[column]]
+        return [cell_to_text(cell) for cell in self.table[column]]
 
     def depths(self, sections: tuple[Section, ...], kind: str) -> tuple[np.ndarray, np.ndarray | None, list]:
         """Composite depth [cm], section depth [cm] (or None) and section names."""
@@ -523,7 +168,19 @@ class _TableChecker:
                          "use a section listed in core.toml [[sections]]: " + ", ".join(tops), row, "section")
             else:
                 composite[i] = tops[name] + depth_cm[i]
+                self._overlap(sections, name, composite[i], row)
         return composite, depth_cm, names
+
+    def _overlap(self, sections: tuple[Section, ...], name: str, composite_cm: float, row: int) -> None:
+        """A row of one section lying at or below the top of the next section down."""
+        ordered = sorted(sections, key=lambda s: s.top_cm)
+        index = next(i for i, s in enumerate(ordered) if s.name == name)
+        if index + 1 < len(ordered) and composite_cm >= ordered[index + 1].top_cm:
+            below = ordered[index + 1]
+            self.add(f"this row of section {name!r} lies at composite depth {composite_cm:g} cm, at or below the "
+                     f"top of section {below.name!r} ({below.top_cm:g} cm): the sections overlap",
+                     "correct the section tops in core.toml [[sections]] or the row's section depth",
+                     row, f"depth_{self.unit}")
 
     def unique_depths(self, depth_cm: np.ndarray, column: str) -> None:
         first: dict[float, int] = {}
@@ -663,7 +320,9 @@ def check_dates(table: pd.DataFrame, file: str, spec: CoreSpec) -> tuple[pd.Data
     for row, kind in zip(checker.rows, checker.texts("kind")):
         normal = kind.lower() if kind else None
         if normal not in DATE_KINDS:
-            checker.add(f"unknown date kind {kind!r}", "use radiocarbon or calendar", row, "kind")
+            hint = did_you_mean(kind, DATE_KINDS) if kind else ""
+            checker.add(f"unknown date kind {kind!r}" + (f" ({hint})" if hint else ""),
+                        "use radiocarbon or calendar", row, "kind")
         kinds.append(normal)
     ages = checker.numbers("age", required_cells=True, what="age")
     errors = checker.numbers("error", required_cells=True, lo=0.0, lo_inclusive=False, what="age error",
@@ -738,6 +397,12 @@ def _check_age_ranges(checker: _TableChecker, kinds: list, ages: np.ndarray, spe
                 "check the age; give strongly post-bomb or beyond-limit ages as kind = calendar",
                 row, "age",
             )
+        elif kind == "calendar" and age > CALENDAR_MAX_CAL_BP:
+            checker.add(
+                f"calendar age {age:g} cal BP is beyond {CALENDAR_MAX_CAL_BP:g} cal BP, older than any "
+                "sediment this program dates", "check the age and its unit (cal BP = years before 1950 CE, "
+                "not ka or Ma)", row, "age",
+            )
         elif kind == "calendar" and age < youngest:
             checker.add(
                 f"calendar age {age:g} cal BP is younger than the core top "
@@ -746,33 +411,64 @@ def _check_age_ranges(checker: _TableChecker, kinds: list, ages: np.ndarray, spe
             )
 
 
-def check_curve_names(dates: pd.DataFrame, file: str, known: set[str] | dict) -> list[Problem]:
-    """Problems for dates whose ``curve`` is not a name from the run config's [curves].
+def resolve_curve_name(cell: Any, default_curve: str | None, curve_names) -> str | None:
+    """The curve a radiocarbon date is calibrated with -- the one rule of ``check`` and ``run``.
+
+    The date's own ``curve`` cell when filled; else ``[chronology] default_curve``; else the
+    only curve of ``[curves]``; else the one named ``atmosphere``; else ``None`` (no curve).
+    """
+    text = cell_to_text(cell) if not isinstance(cell, str) else cell.strip()
+    if text:
+        return text
+    if default_curve:
+        return default_curve
+    names = list(curve_names)
+    if len(names) == 1:
+        return names[0]
+    if "atmosphere" in names:
+        return "atmosphere"
+    return None
+
+
+def check_curve_names(dates: pd.DataFrame, file: str, known: set[str] | dict,
+                      default_curve: str | None = None) -> list[Problem]:
+    """Problems for dates whose curve (by :func:`resolve_curve_name`) is not in ``[curves]``.
 
     Parameters
     ----------
     dates : DataFrame
-        A converted dates table (with ``curve`` and ``source_row``).
+        A converted dates table (with ``kind``, ``curve`` and ``source_row``).
     file : str
         How problems name the dates file.
     known : set of str
         Curve names defined in the run config.
+    default_curve : str, optional
+        ``[chronology] default_curve``.
     """
     problems = []
     names = sorted(known)
-    radiocarbon_without_curve = []
-    for row, kind, curve in zip(dates["source_row"], dates["kind"], dates["curve"]):
-        curve = None if curve is None or pd.isna(curve) else str(curve)
-        if curve is not None and curve not in known:
+    for row, kind, cell in zip(dates["source_row"], dates["kind"], dates["curve"]):
+        if kind != "radiocarbon" and cell_to_text(cell) is None:
+            continue
+        curve = resolve_curve_name(cell, default_curve, names)
+        if curve is None:
+            message = ("radiocarbon date but the run config has no [curves]" if not names else
+                       "radiocarbon date with an empty curve cell, and the run config names no default: "
+                       f"{len(names)} curves ({', '.join(names)}), none called 'atmosphere'")
+            fix = ("add a calibration curve to [curves]" if not names else
+                   "fill in the curve cell, or set [chronology] default_curve")
+            problems.append(Problem(file, message, fix, row=int(row), column="curve"))
+        elif curve.lower().startswith(BLEND_PREFIX):
+            found = curve_cell_problem(curve, known)
+            if found is not None:
+                problems.append(Problem(file, found[0], found[1], row=int(row), column="curve"))
+        elif curve not in known:
+            hint = did_you_mean(curve, names)
+            source = "[chronology] default_curve" if cell_to_text(cell) is None else "the curve cell"
             problems.append(Problem(
-                file, f"unknown curve {curve!r}",
+                file, f"unknown curve {curve!r} (from {source})" + (f" ({hint})" if hint else ""),
                 ("use a curve named in the run config [curves]: " + ", ".join(names)) if names
                 else "add the curve to the run config [curves]",
                 row=int(row), column="curve",
             ))
-        elif curve is None and kind == "radiocarbon" and not names:
-            radiocarbon_without_curve.append(int(row))
-    for row in radiocarbon_without_curve:
-        problems.append(Problem(file, "radiocarbon date but the run config has no [curves]",
-                                "add a calibration curve to [curves]", row=row, column="curve"))
     return problems

@@ -106,7 +106,7 @@ def robust_scale(work: np.ndarray, observed: np.ndarray) -> np.ndarray:
 
 
 def excursion_scan(work: np.ndarray, observed: np.ndarray, max_points: int, a: float = 0.0,
-                   min_points: int = MIN_BLOCK_POINTS) -> ScanProfile:
+                   min_points: int = MIN_BLOCK_POINTS, support: int = 0) -> ScanProfile:
     """Scan every block (start, length) of every column for a departure from zero.
 
     Parameters
@@ -121,6 +121,9 @@ def excursion_scan(work: np.ndarray, observed: np.ndarray, max_points: int, a: f
         Lag-one AR(1) coefficient of the null (per grid step) used to standardise sums.
     min_points : int
         Shortest block [points]; a block also needs at least ``min_points`` observed points.
+    support : int
+        Points of record a block needs before and after it (a departure at the record's end
+        has no return to show, nor a level before it): blocks closer to an end score -inf.
 
     Returns
     -------
@@ -144,6 +147,8 @@ def excursion_scan(work: np.ndarray, observed: np.ndarray, max_points: int, a: f
         starts = n_t - length + 1
         total = c_x[length:length + starts] - c_x[:starts]
         count = c_n[length:length + starts] - c_n[:starts]
+        inside = (np.arange(starts) >= support) & (np.arange(starts) + length <= n_t - support)
+        count = np.where(inside[:, None], count, 0)
         z = np.where(count >= min_points, total / sd[count], 0.0)
         z_up = np.where(count >= min_points, z, -np.inf)
         z_down = np.where(count >= min_points, -z, -np.inf)

@@ -30,10 +30,16 @@ class EventSettings:
     """
 
     enabled: bool = setting(True, "run detection at all")
-    penalty_factor: float = setting(1.0, "multiplies the BIC penalty 2 ln T of the change-point "
-                                    "search; larger finds fewer change points", low=0.0, low_open=True)
+    edge_support_points: int = setting(5, "grid points of record an event needs beyond it on each "
+                                       "side (a shift on both sides of its change, an excursion "
+                                       "before and after it); nearer a record's end nothing is sought",
+                                       low=1)
     background_yr: float = setting(2000.0, "width of the running-median background removed before "
                                    "the search [yr]; 0 removes a straight line", low=0.0)
+    background_keeps_changes: int = setting(0, "most prominent lasting changes (steps fitted jointly "
+                                            "with a line) kept out of the running-median background "
+                                            "and out of the null's persistence estimate, so that a "
+                                            "step is not absorbed; 0 keeps none", low=0)
     max_excursion_yr: float = setting(600.0, "longest departure-and-return counted as one "
                                       "excursion [yr]", low=0.0, low_open=True)
     alpha: float = setting(0.05, "significance level against AR(1) red noise", low=0.0, high=0.5,
@@ -46,6 +52,13 @@ class EventSettings:
                                      "members are not reported", low=0.0, high=1.0, low_open=True)
     ramp_window_points: int = setting(24, "largest window (grid points) searched by the ramp fit "
                                       "around a change", low=3, low_open=True)
+    lead_lag_window_yr: float = setting(1000.0, "events of two cores (same variable, kind and direction) "
+                                        "whose onset medians are at most this far apart are taken "
+                                        "as one event for lead/lag [yr]", low=0.0, low_open=True)
+    lead_lag_group: tuple[str, ...] | None = setting(None, "variables whose events are taken as one "
+                                                     "event across cores for lead/lag (unset: each "
+                                                     "variable on its own)", kind="list[str]",
+                                                     example='["air_temperature", "sst"]')
     variables: tuple[str, ...] | None = setting(None, "variables to analyse (unset: all)",
                                                 kind="list[str]", example='["temperature"]')
 

@@ -37,12 +37,12 @@ from __future__ import annotations
 import numpy as np
 
 from proxies.events.candidates import (EXCURSION, KIND_NAMES, SHIFT, Candidates, detect_candidates,
-                                       remove_background)
+                                       remove_background, step_fit)
 from proxies.events.persistence import ar1_surrogates, ar1_tau_uneven_members
 from proxies.events.scan import ScanProfile, excursion_scan, top_blocks
 from proxies.reconstruction.grid import fill_gaps
 
-__all__ = ["prepare_series", "top_block_window", "mask_top_block", "matched_null_tau", "null_maxima",
+__all__ = ["STEP_SUPPORT_POINTS", "KEPT_STEPS", "prepare_series", "segment_residuals", "top_block_window", "mask_top_block", "matched_null_tau", "null_maxima",
            "local_null", "local_p_values", "adjusted_p_values",
            "monte_carlo_p_values"]
 
@@ -57,7 +57,21 @@ def _max_per_series(cands: Candidates, n_series: int) -> dict[int, np.ndarray]:
     return out
 
 
-def prepare_series(values: np.ndarray, observed: np.ndarray, background_points: int) -> np.ndarray:
+#: Points a lasting change needs on each side to be kept out of the background and the
+#: persistence estimate (:func:`proxies.events.candidates.step_fit`), and how many are kept
+#: by default where a function is asked to keep them.
+STEP_SUPPORT_POINTS = 5
+KEPT_STEPS = 1
+#: Largest factor by which the bias correction of the null persistence may raise the data
+#: estimate: beyond it the estimator saturates (a background-removed series of a few hundred
+#: points cannot show persistence much beyond the background window), and on ensemble-median
+#: series -- smoothed by age errors, so not exactly AR(1) -- the fixed point ran away
+#: (4 grid steps estimated, 31 "corrected").
+MAX_CORRECTION = 1.5
+
+
+def prepare_series(values: np.ndarray, observed: np.ndarray, background_points: int,
+                   keep_steps: int = 0) -> np.ndarray:
     """Gap-fill (linear) and remove the background: what the detector sees of a series.
 
     Parameters
@@ -66,6 +80,9 @@ def prepare_series(values: np.ndarray, observed: np.ndarray, background_points: 
     observed : ndarray of bool (T, M)
     background_points : int
         See :func:`proxies.events.candidates.remove_background`.
+    keep_steps : int
+        This many most prominent lasting changes (``STEP_SUPPORT_POINTS`` on each side) are
+        kept out of the running-median background (0: plain running median).
 
     Notes
     -----
@@ -75,12 +92,22 @@ def prepare_series(values: np.ndarray, observed: np.ndarray, background_points: 
     more than it made the demo event larger (share of ULLA-1 members detecting the event
     fell from 0.62 to 0.43), so the plain running median is kept.
     """
-    return remove_background(fill_gaps(np.where(observed, values, np.nan)), background_points)
+    return remove_background(fill_gaps(np.where(observed, values, np.nan)), background_points, keep_steps,
+                             STEP_SUPPORT_POINTS)
 
 
-def _median_tau_steps(work: np.ndarray, observed: np.ndarray) -> float:
+def segment_residuals(work: np.ndarray, keep_steps: int = KEPT_STEPS) -> np.ndarray:
+    """``work`` minus its lasting steps (:func:`proxies.events.candidates.step_fit`): the
+    series whose persistence is the null's, so that a step does not pass for persistence
+    (a 6-SD step had made the null's persistence time 242 yr instead of about 69 yr)."""
+    if keep_steps <= 0:
+        return work
+    return work - step_fit(work, keep_steps, STEP_SUPPORT_POINTS)
+
+
+def _median_tau_steps(work: np.ndarray, observed: np.ndarray, keep_steps: int = 0) -> float:
     steps = np.arange(work.shape[0], dtype=float)
-    taus = ar1_tau_uneven_members(steps, np.where(observed, work, np.nan))
+    taus = ar1_tau_uneven_members(steps, np.where(observed, segment_residuals(work, keep_steps), np.nan))
     taus = taus[np.isfinite(taus)]
     tau = np.median(taus) if taus.size else np.nan
     return float(tau) if np.isfinite(tau) else 0.0
@@ -118,7 +145,7 @@ def mask_top_block(work: np.ndarray, observed: np.ndarray, max_points: int) -> n
 
 def matched_null_tau(work: np.ndarray, observed: np.ndarray, background_points: int,
                      rng: np.random.Generator, n_series: int = 100, iterations: int = 4,
-                     mask_points: int = 0) -> tuple[float, float]:
+                     mask_points: int = 0, keep_steps: int = 0) -> tuple[float, float]:
     """Persistence of the red-noise null, corrected for estimation bias by simulation.
 
     The least-squares estimator of Mudelsee (2002) is biased low for short series, and gap
@@ -142,13 +169,16 @@ def matched_null_tau(work: np.ndarray, observed: np.ndarray, background_points: 
         When > 0, every series (data and surrogates alike) is estimated with its most
         prominent excursion block of at most this many points left out
         (:func:`mask_top_block`). Default 0: nothing left out.
+    keep_steps : int
+        Lasting changes kept out of the background (:func:`prepare_series`) and removed
+        before the estimate (:func:`segment_residuals`), for data and surrogates alike.
 
     Returns
     -------
     (tau_null, tau_data) : float, float
         Persistence of the null and the median data estimate [grid steps].
     """
-    target = _median_tau_steps(work, mask_top_block(work, observed, mask_points))
+    target = _median_tau_steps(work, mask_top_block(work, observed, mask_points), keep_steps)
     if target <= 0:
         return 0.0, target
     n_points = work.shape[0]
@@ -156,17 +186,17 @@ def matched_null_tau(work: np.ndarray, observed: np.ndarray, background_points: 
     for _ in range(iterations):
         pattern = observed[:, rng.integers(0, observed.shape[1], n_series)]
         sur = ar1_surrogates(np.arange(n_points, dtype=float), tau, n_series, rng)
-        prepared = prepare_series(sur, pattern, background_points)
-        estimate = _median_tau_steps(prepared, mask_top_block(prepared, pattern, mask_points))
+        prepared = prepare_series(sur, pattern, background_points, keep_steps)
+        estimate = _median_tau_steps(prepared, mask_top_block(prepared, pattern, mask_points), keep_steps)
         if estimate <= 0:
             break
-        tau = min(tau * target / estimate, 10.0 * n_points)
+        tau = min(tau * target / estimate, MAX_CORRECTION * target, 10.0 * n_points)
     return float(tau), target
 
 
 def null_maxima(n_points: int, tau_steps: float, n_surrogates: int, max_excursion_points: int,
-                penalty: float, rng: np.random.Generator, observed: np.ndarray | None = None,
-                background_points: int = 0, return_profile: bool = False):
+                min_support: int, rng: np.random.Generator, observed: np.ndarray | None = None,
+                background_points: int = 0, return_profile: bool = False, keep_steps: int = 0):
     """Largest candidate statistic of each kind in AR(1) surrogate series.
 
     The surrogates go through the same preparation as the data: each takes the pattern of
@@ -180,7 +210,7 @@ def null_maxima(n_points: int, tau_steps: float, n_surrogates: int, max_excursio
     tau_steps : float
         AR(1) persistence time [grid steps].
     n_surrogates : int
-    max_excursion_points, penalty :
+    max_excursion_points, min_support :
         As used on the data (:func:`proxies.events.candidates.detect_candidates`).
     rng : numpy.random.Generator
     observed : ndarray of bool (n_points, M), optional
@@ -190,6 +220,8 @@ def null_maxima(n_points: int, tau_steps: float, n_surrogates: int, max_excursio
 
     return_profile : bool
         Also return the surrogates' scan profile (for :func:`local_null`).
+    keep_steps : int
+        As :func:`prepare_series`.
 
     Returns
     -------
@@ -201,9 +233,9 @@ def null_maxima(n_points: int, tau_steps: float, n_surrogates: int, max_excursio
     if observed is None:
         observed = np.ones((n_points, 1), dtype=bool)
     pattern = observed[:, rng.integers(0, observed.shape[1], n_surrogates)]
-    work = prepare_series(surrogates, pattern, background_points)
+    work = prepare_series(surrogates, pattern, background_points, keep_steps)
     persistence = float(np.exp(-1.0 / tau_steps)) if tau_steps > 0 else 0.0
-    cands, profile = detect_candidates(work, max_excursion_points, penalty, pattern, persistence,
+    cands, profile = detect_candidates(work, max_excursion_points, min_support, pattern, persistence,
                                        return_profile=True)
     maxima = _max_per_series(cands, n_surrogates)
     return (maxima, profile) if return_profile else maxima

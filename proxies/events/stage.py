@@ -58,7 +58,6 @@ import numpy as np
 import pandas as pd
 
 from proxies.events.candidates import EXCURSION, KIND_NAMES, Candidates, detect_candidates
-from proxies.events.changepoints import bic_penalty
 from proxies.events.ramp import fit_ramps
 from proxies.events.scan import ScanProfile
 from proxies.events.settings import EventSettings
@@ -71,7 +70,7 @@ __all__ = ["EventResult", "detect_core_events", "detect_series_events", "EVENT_C
 _SUMMARY = ("onset", "end", "duration", "amplitude")
 EVENT_COLUMNS = (["core_id", "event_id", "variable", "kind", "direction"]
                  + [f"{q}_{s}" for q in _SUMMARY for s in ("median", "q025", "q975")]
-                 + ["probability", "p_value", "significant", "n_members", "tau_yr"])
+                 + ["probability", "p_value", "significant", "n_members", "tau_yr", "note"])
 _MIN_POINTS = 12
 
 
@@ -83,9 +82,11 @@ class EventResult:
     ``detections`` lists every significant member detection (diagnostics; ``test`` is
     ``record`` for the whole-record search and ``local`` for the member tests at an
     established event's place; ``event_id`` names the reported event it belongs to, empty if
-    none); ``onsets`` has one row per reported
-    event and member that detects it (``event_id, member, onset_cal_bp``), the member onsets
-    behind ``onset_median/q025/q975`` (proposed file ``<core>/event_onsets.parquet``).
+    none); ``onsets`` has one row per reported event and member (``event_id, member,
+    onset_cal_bp, amplitude, detected``): members that detect the event give their
+    detection's ramp fit, the others (``detected`` false) their ramp fit at the event's place;
+    these are the member values behind ``onset_*`` and ``amplitude_*``
+    (``<core>/event_onsets.parquet``).
     """
 
     core_id: str
@@ -96,12 +97,21 @@ class EventResult:
     onsets: pd.DataFrame = field(default_factory=lambda: _empty_onsets())
 
 
-ONSET_COLUMNS = ["event_id", "member", "onset_cal_bp"]
+ONSET_COLUMNS = ["event_id", "member", "onset_cal_bp", "amplitude", "detected"]
 
 
 def _empty_onsets() -> pd.DataFrame:
     return pd.DataFrame({"event_id": pd.Series(dtype=object), "member": pd.Series(dtype=np.int64),
-                         "onset_cal_bp": pd.Series(dtype=float)})
+                         "onset_cal_bp": pd.Series(dtype=float), "amplitude": pd.Series(dtype=float),
+                         "detected": pd.Series(dtype=bool)})
+
+
+def _onset_rows(fits: pd.DataFrame, detected: bool) -> pd.DataFrame:
+    return pd.DataFrame({"event_id": fits["event_id"].to_numpy(dtype=object),
+                         "member": fits["member"].to_numpy(dtype=np.int64),
+                         "onset_cal_bp": fits["onset"].to_numpy(dtype=float),
+                         "amplitude": fits["amplitude"].to_numpy(dtype=float),
+                         "detected": np.full(len(fits), detected)})
 
 
 def _ramp_windows(cp: np.ndarray, lo: np.ndarray, hi: np.ndarray, half: int):
@@ -197,16 +207,18 @@ class _Search:
 def _search(x: np.ndarray, observed: np.ndarray, background: int, max_exc: int, settings: EventSettings,
             rng: np.random.Generator) -> _Search:
     """Prepare, estimate the null persistence, detect candidates and calibrate them."""
-    work = prepare_series(x, observed, background)
+    keep = settings.background_keeps_changes
+    work = prepare_series(x, observed, background, keep)
     # Persistence from each series' own (unevenly spaced) non-empty cells, its most prominent
     # excursion left out (Mudelsee 2002), bias-corrected by simulation so that the null
     # matches the data's treatment.
-    tau_steps, _ = matched_null_tau(work, observed, background, rng, mask_points=max_exc)
+    tau_steps, _ = matched_null_tau(work, observed, background, rng, mask_points=max_exc, keep_steps=keep)
     persistence = float(np.exp(-1.0 / tau_steps)) if tau_steps > 0 else 0.0
-    penalty = bic_penalty(x.shape[0], "mean", settings.penalty_factor)
-    cands, profile = detect_candidates(work, max_exc, penalty, observed, persistence, return_profile=True)
-    null, null_profile = null_maxima(x.shape[0], tau_steps, settings.n_surrogates, max_exc, penalty, rng,
-                                     observed=observed, background_points=background, return_profile=True)
+    support = settings.edge_support_points
+    cands, profile = detect_candidates(work, max_exc, support, observed, persistence, return_profile=True)
+    null, null_profile = null_maxima(x.shape[0], tau_steps, settings.n_surrogates, max_exc, support, rng,
+                                     observed=observed, background_points=background, return_profile=True,
+                                     keep_steps=keep)
     return _Search(cands, monte_carlo_p_values(cands, null), profile, null, null_profile, tau_steps)
 
 
@@ -243,14 +255,49 @@ def _event_p_value(kind: int, sign: float, young: float, old: float, central: _S
                                  central.null, ages_fwd, 1)[0])
 
 
+def _index_of(ages_fwd: np.ndarray, age: float) -> int:
+    return int(np.argmin(np.abs(ages_fwd - age)))
+
+
+def _fits_elsewhere(kind: int, sign: float, showing: pd.DataFrame, x: np.ndarray, ages_fwd: np.ndarray,
+                    max_exc: int, settings: EventSettings) -> pd.DataFrame:
+    """Ramp fits at the event's place for the members that do not show it, so that onset and
+    amplitude are summarised over all members (a summary over detecting members only is
+    biased towards large changes). The place is the detecting members' median change (and,
+    for an excursion, median end); the windows are those a detection there would get."""
+    missing = np.setdiff1d(np.arange(x.shape[1]), showing["member"].to_numpy(dtype=np.int64))
+    if missing.size == 0 or len(showing) == 0:
+        return showing.iloc[0:0]
+    n_t, k = x.shape[0], missing.size
+    first = _index_of(ages_fwd, float(np.median(showing["change_age"])))
+    if int(kind) == EXCURSION:
+        second = max(_index_of(ages_fwd, float(np.median(showing["end"]))), first + 1)
+        lo, mid, hi = max(first - max_exc, 0), second - 1, min(second - 1 + max_exc, n_t - 1)
+    else:
+        second = first
+        lo = max(first - settings.ramp_window_points, 0)
+        mid = hi = min(first + settings.ramp_window_points, n_t - 1)
+    full = lambda v: np.full(k, v, dtype=np.int64)  # noqa: E731
+    pseudo = Candidates(missing.astype(np.int64), full(kind), full(first), full(second), np.zeros(k),
+                        np.full(k, float(sign)), full(lo), full(mid), full(hi))
+    return _member_detections(x, ages_fwd, pseudo, np.zeros(k), settings)
+
+
 def _event_row(kind: int, sign: float, showing: pd.DataFrame, p_value: float, n_members: int,
-               settings: EventSettings) -> dict:
+               settings: EventSettings, elsewhere: pd.DataFrame | None = None) -> dict:
+    """One event: summaries over all members (``showing`` plus ``elsewhere``), probability
+    from the members showing it; significant when ``p_value < alpha`` *and* the amplitude's
+    95 % range excludes zero (otherwise ``note`` says why not)."""
     row = {"kind": KIND_NAMES[int(kind)], "direction": "positive" if sign > 0 else "negative"}
+    every = showing if elsewhere is None or len(elsewhere) == 0 else pd.concat([showing, elsewhere])
     for name in _SUMMARY:
-        row[f"{name}_median"], row[f"{name}_q025"], row[f"{name}_q975"] = _quantiles(showing[name].to_numpy())
+        row[f"{name}_median"], row[f"{name}_q025"], row[f"{name}_q975"] = _quantiles(every[name].to_numpy())
     n_showing = int(showing["member"].nunique())
-    row.update(probability=n_showing / n_members, p_value=p_value, significant=bool(p_value < settings.alpha),
-               n_members=n_showing)
+    spans_zero = row["amplitude_q025"] <= 0.0 <= row["amplitude_q975"]
+    passes = bool(p_value < settings.alpha)
+    note = ("amplitude 95 % range spans zero: not called significant" if passes and spans_zero else "")
+    row.update(probability=n_showing / n_members, p_value=p_value, significant=passes and not spans_zero,
+               n_members=n_showing, note=note)
     return row
 
 
@@ -260,7 +307,7 @@ def _events_from_detections(det: pd.DataFrame, x: np.ndarray, ages_fwd: np.ndarr
     ensemble-median series that no group covers; each tested on the ensemble-median series;
     members showing an established excursion counted by the local test."""
     n_members = x.shape[1]
-    rows, spans, local_frames, ranges = [], [], [], []
+    rows, spans, local_frames, ranges, fitted_elsewhere = [], [], [], [], []
     det["event"] = -1
     det["test"] = "record"
 
@@ -275,7 +322,9 @@ def _events_from_detections(det: pd.DataFrame, x: np.ndarray, ages_fwd: np.ndarr
             return
         if showing is record:
             det.loc[record.index, "event"] = len(rows)
-        rows.append(_event_row(kind, sign, showing, p_value, n_members, settings))
+        elsewhere = _fits_elsewhere(kind, sign, showing, x, ages_fwd, max_exc, settings)
+        rows.append(_event_row(kind, sign, showing, p_value, n_members, settings, elsewhere))
+        fitted_elsewhere.append(elsewhere.assign(event=len(rows) - 1, test="fitted"))
         spans.append(showing[["member", "onset", "end"]].to_numpy())
         ranges.append((int(kind), float(sign), young, old))
 
@@ -301,7 +350,7 @@ def _events_from_detections(det: pd.DataFrame, x: np.ndarray, ages_fwd: np.ndarr
                 None, float(p_value))
     if local_frames:
         det = pd.concat([det] + local_frames, ignore_index=True)
-    return rows, spans, det
+    return rows, spans, det, fitted_elsewhere
 
 
 def _probability_through_time(ages: np.ndarray, spans: list[np.ndarray], n_members: int) -> np.ndarray:
@@ -364,8 +413,9 @@ def detect_series_events(age_cal_bp: np.ndarray, values: np.ndarray, settings: E
         central = _search(fill_gaps(np.where(med_observed, med[:, None], np.nan)), med_observed,
                           background, max_exc, settings, rng)
     det = _member_detections(x, ages_fwd, members.cands, members.p, settings)
-    rows, spans, det = _events_from_detections(det, x, ages_fwd, members, central, max_exc, settings)
+    rows, spans, det, elsewhere = _events_from_detections(det, x, ages_fwd, members, central, max_exc, settings)
     events = pd.DataFrame(rows)
+    det.attrs["elsewhere"] = elsewhere
     probability = _probability_through_time(age_cal_bp, spans, n_members)
     return events, probability, det, tau_yr
 
@@ -393,19 +443,27 @@ def detect_core_events(reconstruction, settings: EventSettings, rng: np.random.G
     notes: list[str] = []
     event_frames, prob_frames, det_frames, onset_frames = [], [], [], []
     names = sorted(reconstruction.series)
+    if not settings.enabled:
+        notes.append("event detection is off ([events] enabled = false); events not searched")
+        names = []
     if settings.variables is not None:
-        names = [n for n in names if n in settings.variables]
-    for name in names if settings.enabled else []:
+        listed = [n for n in names if n in settings.variables]
+        notes += [f"{n}: not listed in [events] variables; events not searched"
+                  for n in names if n not in listed]
+        names = listed
+    for name in names:
         s = reconstruction.series[name]
         # Grid points where at least half of the members have a value (as in the table).
         rows = np.flatnonzero(np.isfinite(s.values).mean(axis=1) >= 0.5) if s.values.size else np.zeros(0, int)
         if rows.size < _MIN_POINTS:
-            notes.append(f"{name}: only {rows.size} grid points with values; events not searched")
+            notes.append(f"{name}: only {rows.size} grid points with values (at least {_MIN_POINTS} "
+                         "are needed); events not searched")
             continue
         span = slice(rows[0], rows[-1] + 1)
         values = s.values[span]
         values = values[:, np.isfinite(values).any(axis=0)]
         events, probability, det, tau_yr = detect_series_events(s.age_cal_bp[span], values, settings, rng)
+        elsewhere = det.attrs.pop("elsewhere", [])
         prob_frames.append(pd.DataFrame({"age_cal_bp": s.age_cal_bp[span], "variable": name,
                                          "probability": probability}))
         det.insert(0, "variable", name)
@@ -420,10 +478,12 @@ def detect_core_events(reconstruction, settings: EventSettings, rng: np.random.G
             event_frames.append(events)
             ids = dict(zip(events["_row"], events["event_id"]))
             det["event_id"] = [ids.get(int(r), "") for r in det["event"]]
-            taken = det[det["event_id"] != ""]
-            onset_frames.append(pd.DataFrame({"event_id": taken["event_id"].to_numpy(dtype=object),
-                                              "member": taken["member"].to_numpy(dtype=np.int64),
-                                              "onset_cal_bp": taken["onset"].to_numpy(dtype=float)}))
+            taken = det[det["event_id"] != ""].drop_duplicates(["event_id", "member"])
+            onset_frames.append(_onset_rows(taken, True))
+            for frame in elsewhere:
+                if len(frame):
+                    onset_frames.append(_onset_rows(frame.assign(event_id=[ids.get(int(r), "") for r in frame["event"]]),
+                                                    False))
         det_frames.append(det.drop(columns="event"))
     events = (pd.concat(event_frames, ignore_index=True)[EVENT_COLUMNS] if event_frames
               else pd.DataFrame({c: pd.Series(dtype=object if c in ("core_id", "event_id", "variable", "kind", "direction")

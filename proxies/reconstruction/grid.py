@@ -10,7 +10,17 @@ from __future__ import annotations
 import numpy as np
 
 __all__ = ["cal_bp_to_ce", "ce_to_cal_bp", "regular_grid", "bin_means", "interpolate_members",
-           "fill_gaps"]
+           "bin_means_filled", "fill_gaps", "STANDARD_STEPS_YR", "MAX_GRID_CELLS",
+           "median_sample_spacing_yr", "round_to_standard_step", "auto_grid_step_yr"]
+
+#: grid steps a step chosen from the data is rounded to [yr] (1-2-5 series, common practice
+#: for axis and bin widths)
+STANDARD_STEPS_YR = (1.0, 2.0, 5.0, 10.0, 20.0, 50.0, 100.0, 200.0, 500.0, 1000.0, 2000.0,
+                     5000.0, 10000.0)
+
+#: an automatic grid step is coarsened until the grid has at most this many cells, which
+#: bounds memory (cells x members) for very long or very finely sampled records
+MAX_GRID_CELLS = 5000
 
 
 def cal_bp_to_ce(age_cal_bp):
@@ -88,7 +98,8 @@ def bin_means(ages: np.ndarray, values: np.ndarray, grid: np.ndarray) -> tuple[n
     return means, counts
 
 
-def interpolate_members(ages: np.ndarray, values: np.ndarray, grid: np.ndarray) -> np.ndarray:
+def interpolate_members(ages: np.ndarray, values: np.ndarray, grid: np.ndarray,
+                        max_gap_yr: float | None = None) -> np.ndarray:
     """Linear interpolation of each member at the grid points inside its age range.
 
     Parameters
@@ -97,12 +108,15 @@ def interpolate_members(ages: np.ndarray, values: np.ndarray, grid: np.ndarray) 
         Sample ages [cal BP] and values per member (NaN values are skipped).
     grid : ndarray of shape (T,)
         Grid points [cal BP].
+    max_gap_yr : float, optional
+        Grid points between two samples more than this far apart [yr] stay empty (no bridge
+        over a long gap); ``None``: no limit.
 
     Returns
     -------
     ndarray of shape (T, M)
         Interpolated values; NaN outside the member's oldest and youngest sample (no
-        extrapolation).
+        extrapolation) and inside gaps longer than ``max_gap_yr``.
     """
     ages = np.asarray(ages, dtype=float)
     values = np.asarray(values, dtype=float)
@@ -114,8 +128,97 @@ def interpolate_members(ages: np.ndarray, values: np.ndarray, grid: np.ndarray) 
         order = np.argsort(ages[ok, m], kind="stable")
         a, v = ages[ok, m][order], values[ok, m][order]
         inside = (grid >= a[0]) & (grid <= a[-1])
+        if max_gap_yr is not None:
+            right = np.clip(np.searchsorted(a, grid, side="left"), 1, a.size - 1)
+            inside &= (a[right] - a[right - 1] <= max_gap_yr) | np.isin(grid, a)
         out[inside, m] = np.interp(grid[inside], a, v)
     return out
+
+
+def bin_means_filled(ages: np.ndarray, values: np.ndarray, grid: np.ndarray,
+                     max_gap_yr: float | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """Cell means where a member has samples; empty cells between samples interpolated.
+
+    A cell holding samples of member ``m`` gets their mean (as :func:`bin_means`); an empty
+    cell inside the member's age range (between its youngest and oldest sample) gets the
+    linear interpolation of the member's samples at the cell centre (as
+    :func:`interpolate_members`), unless its two neighbouring samples are more than
+    ``max_gap_yr`` apart; cells outside the range stay empty (no extrapolation). With a grid
+    step much larger than the sample spacing this is the plain cell mean, with a much
+    smaller step it is plain interpolation.
+
+    Parameters
+    ----------
+    ages, values : ndarray of shape (n, M)
+        Sample ages [cal BP] and values per member (NaN values are skipped).
+    grid : ndarray of shape (T,)
+        Cell centres from :func:`regular_grid` [cal BP].
+    max_gap_yr : float, optional
+        Longest gap between samples that is bridged [yr] (``None``: every gap).
+
+    Returns
+    -------
+    values : ndarray of shape (T, M)
+    counts : ndarray of shape (T, M)
+        Number of samples in each cell and member (0 for interpolated cells).
+    """
+    means, counts = bin_means(ages, values, grid)
+    interpolated = interpolate_members(ages, values, grid, max_gap_yr)
+    return np.where(counts > 0, means, interpolated), counts
+
+
+def median_sample_spacing_yr(sample_ages_cal_bp) -> float:
+    """Median age difference of neighbouring samples [yr] (NaN with fewer than 2 ages).
+
+    Parameters
+    ----------
+    sample_ages_cal_bp : array-like of shape (n,)
+        One age per sample [cal BP] (e.g. the median over members); NaN = no value.
+    """
+    ages = np.sort(np.asarray(sample_ages_cal_bp, dtype=float))
+    ages = ages[np.isfinite(ages)]
+    gaps = np.diff(ages)
+    gaps = gaps[gaps > 0]
+    return float(np.median(gaps)) if gaps.size else float("nan")
+
+
+def round_to_standard_step(spacing_yr: float) -> float:
+    """The :data:`STANDARD_STEPS_YR` value nearest to ``spacing_yr`` on a log scale [yr].
+
+    >>> round_to_standard_step(187.0), round_to_standard_step(140.0), round_to_standard_step(0.3)
+    (200.0, 100.0, 1.0)
+    """
+    if not spacing_yr > 0:
+        raise ValueError(f"a sample spacing must be > 0 yr, got {spacing_yr}")
+    steps = np.asarray(STANDARD_STEPS_YR)
+    return float(steps[np.argmin(np.abs(np.log(steps) - np.log(spacing_yr)))])
+
+
+def auto_grid_step_yr(spacing_yr: float, span_yr: float, max_cells: int = MAX_GRID_CELLS) -> float:
+    """Grid step that follows the record: its median sample spacing rounded to a standard step.
+
+    Parameters
+    ----------
+    spacing_yr : float
+        Median spacing of the samples [yr] (:func:`median_sample_spacing_yr`).
+    span_yr : float
+        Age span the grid covers [yr].
+    max_cells : int
+        The step is raised to the next standard step until ``span / step <= max_cells``.
+
+    Returns
+    -------
+    float
+        Step [yr], one of :data:`STANDARD_STEPS_YR`.
+
+    >>> auto_grid_step_yr(210.0, 9000.0), auto_grid_step_yr(1.0, 20000.0)
+    (200.0, 5.0)
+    """
+    step = round_to_standard_step(spacing_yr)
+    for candidate in STANDARD_STEPS_YR:
+        if candidate >= step and span_yr / candidate <= max_cells:
+            return float(candidate)
+    return float(STANDARD_STEPS_YR[-1])
 
 
 def fill_gaps(values: np.ndarray) -> np.ndarray:

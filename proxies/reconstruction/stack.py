@@ -10,14 +10,16 @@ valid joint draw; when ensemble sizes differ, members are drawn with replacement
 from __future__ import annotations
 
 import warnings
+from dataclasses import replace
 
 import numpy as np
 import pandas as pd
 
+from proxies.reconstruction.grid import bin_means, regular_grid
 from proxies.reconstruction.quantiles import BAND_LEVELS, band_name, ensemble_bands
 from proxies.reconstruction.settings import ReconstructionSettings
 
-__all__ = ["stack_records", "composite_members", "standardise_over_window"]
+__all__ = ["stack_records", "composite_members", "standardise_over_window", "coarsen_series"]
 
 
 def standardise_over_window(age_cal_bp: np.ndarray, values: np.ndarray, window: tuple[float, float],
@@ -74,11 +76,51 @@ def composite_members(aligned: list[np.ndarray]) -> tuple[np.ndarray, np.ndarray
     return composite, n_records
 
 
+def _step_of(series) -> float | None:
+    return round(float(np.diff(series.age_cal_bp)[0]), 9) if series.age_cal_bp.size > 1 else None
+
+
+def coarsen_series(age_cal_bp: np.ndarray, values: np.ndarray, step_yr: float) -> tuple[np.ndarray, np.ndarray]:
+    """A member series on a coarser regular grid: the mean of the fine cells whose centres
+    fall in each coarse cell (cells centred on multiples of ``step_yr``).
+
+    Parameters
+    ----------
+    age_cal_bp : ndarray (T,)
+        Fine cell centres [cal BP].
+    values : ndarray (T, M)
+    step_yr : float
+        Coarse cell width [yr].
+
+    Returns
+    -------
+    coarse_age_cal_bp : ndarray (T',), coarse_values : ndarray (T', M)
+    """
+    grid = regular_grid(float(age_cal_bp[0]), float(age_cal_bp[-1]), step_yr)
+    ages = np.repeat(np.asarray(age_cal_bp, dtype=float)[:, None], values.shape[1], axis=1)
+    means, _ = bin_means(ages, values, grid)
+    return grid, means
+
+
+def _on_common_steps(series_list) -> tuple[list, list[str]]:
+    """Series with one grid step: those on finer grids are averaged onto the coarsest step
+    (cores with an automatic grid step can differ); returns (series, notes)."""
+    steps = {_step_of(s) for s in series_list} - {None}
+    if len(steps) <= 1:
+        return list(series_list), []
+    coarsest = max(steps)
+    out = []
+    for s in series_list:
+        if _step_of(s) not in (None, coarsest):
+            age, values = coarsen_series(s.age_cal_bp, s.values, coarsest)
+            s = replace(s, age_cal_bp=age, values=values, anomalies=values, n_samples=np.zeros(age.size, int))
+        out.append(s)
+    note = (f"records on grid steps of {', '.join(f'{v:g}' for v in sorted(steps))} yr are stacked on "
+            f"the coarsest, {coarsest:g} yr (finer records averaged into its cells)")
+    return out, [note]
+
+
 def _common_grid(series_list) -> np.ndarray:
-    steps = {round(float(np.diff(s.age_cal_bp)[0]), 9) for s in series_list if s.age_cal_bp.size > 1}
-    if len(steps) > 1:
-        raise ValueError(f"records to stack have different grid steps {sorted(steps)} yr; "
-                         "use one [reconstruction] grid_step_yr for the run")
     return np.unique(np.concatenate([s.age_cal_bp for s in series_list]))
 
 
@@ -118,14 +160,19 @@ def stack_records(results: dict, settings: ReconstructionSettings,
         value_q975, n_records, stack_young_cal_bp, stack_old_cal_bp``. Records are grouped by
         ``GridSeries.climate_variable`` (so two proxies of one variable in one core are two
         records); a variable with a single record is still reported (``n_records`` <= 1).
+        Records without any value are left out; records on finer grid steps are averaged
+        onto the coarsest step of the variable (with a warning saying so).
     """
     by_variable: dict[str, list] = {}
     for core_id in sorted(results):
         for name, s in results[core_id].series.items():
-            by_variable.setdefault(getattr(s, "climate_variable", "") or name, []).append(s)
+            if np.isfinite(s.values).any():  # a record without any value is not a record
+                by_variable.setdefault(s.climate_variable or name, []).append(s)
     frames = []
     for variable in sorted(by_variable):
-        series_list = by_variable[variable]
+        series_list, notes = _on_common_steps(by_variable[variable])
+        for note in notes:
+            warnings.warn(f"stack of {variable}: {note}", UserWarning, stacklevel=2)
         grid = _common_grid(series_list)
         window = settings.stack_window or _overlap(series_list)
         n_members = max(s.values.shape[1] for s in series_list)

@@ -16,11 +16,13 @@ import pandas as pd
 from proxies.problems import InputError, Problem
 from proxies.reconstruction.anomalies import (anomalies_from_reference, normal_window_cal_bp,
                                               window_coverage, window_mean_per_member)
-from proxies.reconstruction.grid import bin_means, cal_bp_to_ce, interpolate_members, regular_grid
+from proxies.reconstruction.grid import (auto_grid_step_yr, bin_means, bin_means_filled, cal_bp_to_ce,
+                                         interpolate_members, median_sample_spacing_yr, regular_grid)
 from proxies.reconstruction.quantiles import BAND_LEVELS, band_name, ensemble_bands
 from proxies.reconstruction.settings import ReconstructionSettings
 
-__all__ = ["GridSeries", "ReconstructionResult", "reconstruct_core", "member_column_names"]
+__all__ = ["GridSeries", "ReconstructionResult", "TimeGrid", "reconstruct_core", "member_column_names",
+           "time_grid_for", "filled_share"]
 
 
 def member_column_names(n_members: int) -> list[str]:
@@ -79,7 +81,10 @@ class ReconstructionResult:
 
     ``table`` is ``reconstruction.parquet``, ``ensemble`` is
     ``reconstruction_ensemble.parquet`` (one row per grid cell, variable and quantity
-    ``value``/``anomaly``; one column per member).
+    ``value``/``anomaly``; one column per member). ``warnings`` are about the science (thin
+    records), ``notes`` say what was done (the grid, interpolated cells); ``filled`` is
+    each variable's :func:`filled_share` and ``thin`` the variables below
+    ``min_filled_share``.
     """
 
     core_id: str
@@ -87,6 +92,9 @@ class ReconstructionResult:
     series: dict[str, GridSeries]
     ensemble: pd.DataFrame
     warnings: list[str] = field(default_factory=list)
+    notes: list[str] = field(default_factory=list)
+    filled: dict[str, float] = field(default_factory=dict)
+    thin: list[str] = field(default_factory=list)
 
 
 def _record_label(record, taken: set[str]) -> str:
@@ -96,14 +104,160 @@ def _record_label(record, taken: set[str]) -> str:
     return label
 
 
-def _grid_for(records_ages: list[np.ndarray], settings: ReconstructionSettings) -> np.ndarray:
+@dataclass(frozen=True)
+class TimeGrid:
+    """The time grid of one core and how it was chosen.
+
+    Attributes
+    ----------
+    age_cal_bp : ndarray (T,)
+        Cell centres [cal BP].
+    step_yr : float
+        Cell width [yr].
+    spacing_yr : float
+        Median spacing of the sample ages [yr] (NaN when the step was given).
+    chosen : str
+        ``"given"`` (``grid_step_yr`` set) or ``"auto"``.
+    """
+
+    age_cal_bp: np.ndarray
+    step_yr: float
+    spacing_yr: float
+    chosen: str
+
+    def describe(self) -> str:
+        """One line for the core's notes, e.g. ``"time grid 9900..12400 cal BP every 200 yr
+        (median sample spacing 187 yr, rounded to a standard step)"``."""
+        where = (f"time grid {self.age_cal_bp[0] + 0.0:g}..{self.age_cal_bp[-1] + 0.0:g} cal BP every "
+                 f"{self.step_yr:g} yr")
+        if self.chosen == "auto":
+            return f"{where} (median sample spacing {self.spacing_yr:.0f} yr, rounded to a standard step)"
+        return f"{where} (grid_step_yr)"
+
+
+#: binning = "filled" bridges gaps up to this many median sample spacings (fill_max_gap_yr = "auto")
+FILL_GAP_SPACINGS = 3.0
+
+
+def _median_ages(records_ages: list[np.ndarray], records_values: list[np.ndarray],
+                 with_value_only: bool) -> list[np.ndarray]:
+    """Per record: the median-member age of every sample (NaN for samples without a value
+    when ``with_value_only``)."""
+    out = []
+    for ages, values in zip(records_ages, records_values):
+        keep = np.isfinite(values).any(axis=1) if with_value_only else np.isfinite(ages).any(axis=1)
+        median = np.full(ages.shape[0], np.nan)
+        if keep.any():
+            median[keep] = np.nanmedian(ages[keep], axis=1)
+        out.append(median)
+    return out
+
+
+def time_grid_for(records_ages: list[np.ndarray], records_values: list[np.ndarray],
+                  settings: ReconstructionSettings) -> TimeGrid:
+    """The core's time grid: the stated range or the samples' median ages, and the stated step
+    or one that follows the record.
+
+    With ``grid_step_yr = "auto"`` the step is the smallest of the records' median sample
+    spacings (samples with a value, median member) rounded to a standard step
+    (:func:`~proxies.reconstruction.grid.auto_grid_step_yr`), so the finest record keeps its
+    resolution and coarser ones are filled between their samples.
+
+    Raises
+    ------
+    ValueError
+        When no sample has a finite age.
+    """
+    finite = np.concatenate(_median_ages(records_ages, records_values, with_value_only=False))
+    finite = finite[np.isfinite(finite)]
     if settings.grid_young_cal_bp is not None:
-        return regular_grid(settings.grid_young_cal_bp, settings.grid_old_cal_bp, settings.grid_step_yr)
-    medians = np.concatenate([np.nanmedian(a, axis=1) for a in records_ages])
-    medians = medians[np.isfinite(medians)]
-    if medians.size == 0:
+        young, old = float(settings.grid_young_cal_bp), float(settings.grid_old_cal_bp)
+    elif finite.size:
+        young, old = float(finite.min()), float(finite.max())
+    else:
         raise ValueError("no sample has a finite age; cannot build a time grid")
-    return regular_grid(medians.min(), medians.max(), settings.grid_step_yr)
+    if settings.grid_step_yr is not None:
+        step = float(settings.grid_step_yr)
+        return TimeGrid(regular_grid(young, old, step), step, float("nan"), "given")
+    spacings = [median_sample_spacing_yr(m)
+                for m in _median_ages(records_ages, records_values, with_value_only=True)]
+    spacings = [g for g in spacings if np.isfinite(g)]
+    spacing = min(spacings) if spacings else max(old - young, 1.0)
+    step = auto_grid_step_yr(spacing, old - young)
+    return TimeGrid(regular_grid(young, old, step), step, spacing, "auto")
+
+
+def filled_share(series: "GridSeries", min_share: float, span_cal_bp: tuple[float, float] | None = None) -> float:
+    """Share of the grid cells inside a record's age span that hold reconstructed values.
+
+    A cell counts as filled when at least ``min_share`` of the members have a value there
+    (the rule under which it gets quantiles).
+
+    Parameters
+    ----------
+    series : GridSeries
+    min_share : float
+    span_cal_bp : (young, old), optional
+        The record's age span [cal BP] (its youngest and oldest sample, median member);
+        default: from the youngest to the oldest cell where any member has a value.
+
+    Returns
+    -------
+    float
+        0 for a record without any value.
+    """
+    share = np.isfinite(series.values).mean(axis=1) if series.values.size else np.zeros(0)
+    if not np.any(share > 0):
+        return 0.0
+    if span_cal_bp is None:
+        any_value = np.flatnonzero(share > 0)
+        inside = np.zeros(share.size, dtype=bool)
+        inside[any_value[0]:any_value[-1] + 1] = True
+    else:
+        step = series.age_cal_bp[1] - series.age_cal_bp[0] if series.age_cal_bp.size > 1 else 1.0
+        # cells whose extent overlaps the span
+        inside = (series.age_cal_bp + step / 2 > span_cal_bp[0]) & (series.age_cal_bp - step / 2 <= span_cal_bp[1])
+    if not inside.any():
+        return 0.0
+    return float(np.mean(share[inside] >= min_share))
+
+
+def _put_on_grid(binning: str, ages, values, grid, max_gap_yr):
+    """(grid values (T, M), sample counts (T, M)) of one record for a ``binning`` choice."""
+    if binning == "filled":
+        return bin_means_filled(ages, values, grid, max_gap_yr)
+    means, counts = bin_means(ages, values, grid)
+    return (means if binning == "bin" else interpolate_members(ages, values, grid)), counts
+
+
+def _record_span_and_gap(ages, values, settings) -> tuple[tuple[float, float] | None, float | None]:
+    """A record's age span (median member, samples with a value) and the longest gap
+    ``binning = "filled"`` bridges [yr]."""
+    median = _median_ages([ages], [values], with_value_only=True)[0]
+    median = median[np.isfinite(median)]
+    span = (float(median.min()), float(median.max())) if median.size else None
+    if settings.fill_max_gap_yr is not None:
+        return span, float(settings.fill_max_gap_yr)
+    spacing = median_sample_spacing_yr(median)
+    return span, (FILL_GAP_SPACINGS * spacing if np.isfinite(spacing) else None)
+
+
+def _grid_note(label: str, series: "GridSeries", binning: str, share: float,
+               max_gap_yr: float | None) -> str | None:
+    """What was done with the cells of one record, in words (None when nothing to say)."""
+    n_cells = series.age_cal_bp.size
+    empty = series.n_empty
+    if share == 0.0:
+        return f"{label}: no grid cell holds a value"
+    if not empty:
+        return None
+    head = f"{label}: {empty} of {n_cells} grid cells hold no sample (median member); "
+    if binning == "bin":
+        return head + f"they are left empty (binning = 'bin'); values cover {share:.0%} of its age span"
+    bridge = (f"gaps up to {max_gap_yr:.0f} yr" if binning == "filled" and max_gap_yr is not None
+              else "every gap")
+    return (head + f"between neighbouring samples they are interpolated (binning = '{binning}', "
+            f"{bridge}); values cover {share:.0%} of its age span")
 
 
 def _reference(ages, values, grid, grid_values, settings, core_id, variable):
@@ -179,11 +333,10 @@ def reconstruct_core(core, chronology, calibration, settings: ReconstructionSett
     """
     del rng
     records = list(getattr(calibration, "records", []) or [])
-    notes: list[str] = []
     if not records:
         empty = pd.DataFrame(columns=["age_cal_bp", "variable", "value_median"])
         return ReconstructionResult(core.id, empty, {}, pd.DataFrame(), ["no calibrated record"])
-    ages_list = []
+    ages_list, values_list = [], []
     for record in records:
         values = np.asarray(record.values, dtype=float)
         ages = np.asarray(chronology.age_at(np.asarray(record.depth_cm, dtype=float)), dtype=float)
@@ -191,24 +344,32 @@ def reconstruct_core(core, chronology, calibration, settings: ReconstructionSett
             raise ValueError(f"core {core.id}, {record.proxy}: ages {ages.shape} and calibrated "
                              f"values {values.shape} differ; both must be (n samples, M members)")
         ages_list.append(ages)
-    grid = _grid_for(ages_list, settings)
+        values_list.append(values)
+    grid = time_grid_for(ages_list, values_list, settings)
+    notes, warnings, filled, thin = [grid.describe()], [], {}, []
     series: dict[str, GridSeries] = {}
-    for record, ages in zip(records, ages_list):
-        values = np.asarray(record.values, dtype=float)
-        means, counts = bin_means(ages, values, grid)
-        grid_values = means if settings.binning == "bin" else interpolate_members(ages, values, grid)
+    for record, ages, values in zip(records, ages_list, values_list):
+        span, max_gap = _record_span_and_gap(ages, values, settings)
+        grid_values, counts = _put_on_grid(settings.binning, ages, values, grid.age_cal_bp, max_gap)
         label = _record_label(record, set(series))
-        reference, window, kind = _reference(ages, values, grid, grid_values, settings, core.id, label)
+        reference, window, kind = _reference(ages, values, grid.age_cal_bp, grid_values, settings,
+                                             core.id, label)
         # Upper median: a cell has n_samples >= 1 exactly when at least half of the members have
-        # a sample in it, which is when it gets quantiles (min_member_share = 0.5).
+        # a sample in it.
         n_samples = np.quantile(counts, 0.5, axis=1, method="higher").astype(np.int64)
-        series[label] = GridSeries(label, str(record.units), grid.copy(), grid_values,
+        series[label] = GridSeries(label, str(record.units), grid.age_cal_bp.copy(), grid_values,
                                    anomalies_from_reference(grid_values, reference), n_samples,
                                    window, kind, str(record.proxy), str(record.variable))
-        empty = int(np.sum(n_samples == 0))
-        if empty:
-            notes.append(f"{label}: {empty} of {grid.size} grid cells hold no sample "
-                         f"(median member); they are left empty")
+        filled[label] = filled_share(series[label], settings.min_member_share, span)
+        note = _grid_note(label, series[label], settings.binning, filled[label], max_gap)
+        if note:
+            notes.append(note)
+        if filled[label] < settings.min_filled_share:
+            thin.append(label)
+            warnings.append(f"{label}: values cover only {filled[label]:.0%} of the record's age "
+                            f"span (min_filled_share = {settings.min_filled_share:g}); the "
+                            "reconstruction is thin")
     table = pd.concat([_series_table(s, settings.min_member_share) for s in series.values()],
                       ignore_index=True)
-    return ReconstructionResult(core.id, table, series, _ensemble_table(series), notes)
+    return ReconstructionResult(core.id, table, series, _ensemble_table(series), warnings, notes,
+                                filled, thin)

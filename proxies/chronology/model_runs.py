@@ -1,0 +1,163 @@
+"""From a core's calibrated dates to the arrays of an age-depth model, and back.
+
+The stage (:mod:`proxies.chronology.stage`) calls :func:`run_accumulation` (the memory and the
+independent-increment accumulation models) or :func:`run_interpolation`; each places the
+nodes, builds the calendar grid and returns node depths, paths, outlier probabilities and,
+for the accumulation models, the hyper-parameter weights table.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pandas as pd
+from scipy import stats
+
+from proxies.chronology.accumulation import AccumulationProblem, fit_accumulation, place_nodes
+from proxies.chronology.calibrate import CalibratedDates
+from proxies.chronology.interpolation import fit_interpolation
+from proxies.chronology.memory import fit_memory
+from proxies.chronology.outliers import outlier_density
+from proxies.chronology.settings import ChronologySettings
+
+__all__ = ["run_accumulation", "run_interpolation", "auto_node_spacing", "HYPERPARAMETER_COLUMNS"]
+
+_NICE_STEPS = (1, 2, 5, 10, 20, 50, 100)
+#: columns of the hyper-parameter weights table (hyperparameters.parquet)
+HYPERPARAMETER_COLUMNS = ("model", "mean_rate_yr_cm", "rate_variability", "rate_memory", "log_evidence",
+                          "weight")
+
+
+def _nice_step(span: float, cells: float = 4000.0) -> float:
+    raw = span / cells
+    for step in _NICE_STEPS:
+        if raw <= step:
+            return float(step)
+    return float(math.ceil(raw / 100.0) * 100)
+
+
+def auto_node_spacing(date_depths_cm, top_cm: float, bottom_cm: float) -> float:
+    """Node spacing from the dates' density and the core length [cm].
+
+    Half the median distance between neighbouring distinct date depths, so that every
+    interval between dates holds at least one free node where the rate can change, kept
+    between 1/150 of the modelled depth range (nodes finer than that add cost, not
+    information, since the rate prior is stated per ``reference_depth_cm``) and 1/25 of it
+    (a coarse ladder would make the age between sparse dates a straight line). Rounded to
+    0.1 cm.
+    """
+    length = max(bottom_cm - top_cm, 1e-6)
+    depths = np.unique(np.asarray(date_depths_cm, dtype=float))
+    gap = float(np.median(np.diff(depths))) / 2 if depths.size > 1 else length / 25
+    spacing = min(max(gap, length / 150), length / 25)
+    return max(round(spacing, 1), 0.1)
+
+
+def _grid(used: CalibratedDates, z_used, top, bottom, spacing, rate_max, n_hiatus, core, settings):
+    lows, highs = used.quantile(0.0005), used.quantile(0.9995)
+    young = float(lows.min() - max(0.0, z_used.min() - top) * rate_max * 3 - 100)
+    if core.top_age_cal_bp is not None:
+        error = core.top_age_error or settings.top_age_error_yr
+        # a core cannot be younger than its collection year: the grid starts there
+        young = float(min(lows.min(), core.top_age_cal_bp - 4 * error))
+    old = float(highs.max() + max(0.0, bottom - z_used.max()) * rate_max * 2
+                + n_hiatus * settings.hiatus_gap_yr * 10 + 2 * spacing * rate_max + 100)
+    # the memory model's state is (age, rate class): a coarser default grid keeps its cost
+    cells = 4000.0 if settings.model == "accumulation" else 1500.0
+    step = settings.grid_step_yr or _nice_step(old - young, cells)
+    size = int(math.ceil((old - young) / step)) + 1
+    if size > 20000:
+        step = _nice_step((old - young) * 2000 / 20000)
+        size = int(math.ceil((old - young) / step)) + 1
+    origin = math.floor(young / step) * step
+    return float(origin), float(step), size
+
+
+def run_accumulation(calibrated: CalibratedDates, use, z, priors, hiatuses, top, bottom, centre, core,
+                     settings: ChronologySettings, ensemble: int, rng, constraints=()):
+    """Fit the memory or the independent-increment accumulation model to one core.
+
+    ``constraints``: (depth [cm, event-free], age [cal BP], error [yr]) of calendar
+    constraints (the core top), whose node ages are drawn within their grid cell.
+
+    Returns
+    -------
+    nodes : ndarray (K,), paths : ndarray (K, M), outlier : ndarray (used dates,),
+    hyperparameters : DataFrame with :data:`HYPERPARAMETER_COLUMNS`
+    """
+    z_used = z[use]
+    spacing = settings.node_spacing_cm or auto_node_spacing(z_used, top, bottom)
+    spacing = max(spacing, (bottom - top) / settings.max_nodes)
+    inside = tuple(h for h in hiatuses if top < h < bottom)
+    nodes, gap_after = place_nodes(top, bottom, spacing, z_used, inside)
+    rates = centre * np.asarray(settings.mean_rate_factors)
+    used = calibrated.take(np.flatnonzero(use))
+    origin, step, size = _grid(used, z_used, top, bottom, spacing, rates.max(), len(inside), core, settings)
+    problem = AccumulationProblem(
+        nodes, gap_after, np.searchsorted(nodes, z_used - 1e-6, side="left"), used.on_grid(origin, step, size),
+        priors[use], origin, step, float(settings.reference_depth_cm),
+        outlier_mass=outlier_density(used, origin, step, size, *settings.outlier_shift_scale))
+    variability = np.asarray(settings.rate_variability, dtype=float)
+    constraints = [(int(np.searchsorted(nodes, depth - 1e-6)), age, error) for depth, age, error in constraints]
+    if settings.model == "memory":
+        fit = fit_memory(problem, rates, variability, settings.rate_memory, settings.hiatus_gap_yr, ensemble, rng,
+                         classes=settings.rate_classes, within_shape=settings.within_class_variability ** -2)
+        hyper = pd.DataFrame({"model": "memory", "mean_rate_yr_cm": fit.mean_rates,
+                              "rate_variability": fit.variabilities, "rate_memory": fit.memories,
+                              "log_evidence": fit.log_evidence, "weight": fit.weights})
+    else:
+        mean, cv = np.meshgrid(rates, variability, indexing="ij")
+        fit = fit_accumulation(problem, mean.ravel(), cv.ravel() ** -2, settings.hiatus_gap_yr, ensemble, rng)
+        hyper = pd.DataFrame({"model": "accumulation", "mean_rate_yr_cm": fit.mean_rates,
+                              "rate_variability": cv.ravel(), "rate_memory": 0.0,
+                              "log_evidence": fit.log_evidence, "weight": fit.weights})
+    paths = _refine_in_cell(fit.paths, problem, constraints, rng)
+    return nodes, paths, fit.outlier_posterior, hyper[list(HYPERPARAMETER_COLUMNS)]
+
+
+def _refine_in_cell(paths: np.ndarray, problem: AccumulationProblem, constraints, rng) -> np.ndarray:
+    """Draw the age of a node pinned by a normal constraint within its grid cell.
+
+    The models spread ages uniformly within a cell; a constraint narrower than a cell (the
+    core top: the collection year within a few years) is honoured by drawing the node's age
+    from the constraint's normal density truncated to the cell, which is the exact
+    conditional when no other date sits at that node. Paths stay monotone.
+
+    ``constraints`` is a list of (node, age [cal BP], error [yr]).
+    """
+    step = problem.grid_step
+    out = paths.copy()
+    for node, age, error in constraints:
+        if np.count_nonzero(problem.date_node == node) != 1:
+            continue
+        centre = problem.grid_origin + step * np.round((paths[node] - problem.grid_origin) / step)
+        low = stats.norm.cdf((centre - step / 2 - age) / error)
+        high = stats.norm.cdf((centre + step / 2 - age) / error)
+        u = low + rng.random(paths.shape[1]) * np.maximum(high - low, 0.0)
+        drawn = age + error * stats.norm.ppf(np.clip(u, 1e-12, 1 - 1e-12))
+        out[node] = np.clip(drawn, centre - step / 2, centre + step / 2)
+    return np.maximum.accumulate(out, axis=0)
+
+
+def run_interpolation(calibrated: CalibratedDates, use, z, priors, hiatuses, free_out, centre,
+                      settings: ChronologySettings, ensemble: int, rng):
+    """Fit the Monte Carlo interpolation model; returns nodes (K,), paths (K, M), outlier."""
+    index = np.flatnonzero(use)
+    index = index[np.argsort(z[index], kind="stable")]
+    chosen = calibrated.take(index)
+    depths = z[index]
+    edges = sorted(h for h in hiatuses)
+    ladder = np.unique(np.concatenate([free_out, depths]))
+    nodes = np.sort(np.concatenate([ladder, [h for h in edges if ladder[0] < h < ladder[-1]]]))
+    # the second copy of a hiatus depth belongs to the section below it
+    query = nodes.copy()
+    for h in edges:
+        copies = np.flatnonzero(nodes == h)
+        if copies.size == 2:
+            query[copies[1]] = h + 1e-9
+    fit = fit_interpolation(depths, lambda size: chosen.sample(size, rng), query, edges, priors[index], ensemble,
+                            rng, smooth=settings.join == "smooth", fallback_rate=centre)
+    outlier = np.full(z.size, np.nan)
+    outlier[index] = fit.outlier_posterior
+    return nodes, fit.paths, outlier[use]
