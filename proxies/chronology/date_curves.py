@@ -19,7 +19,7 @@ from proxies.chronology.curves import CalibrationCurve, blend_curves
 from proxies.cores.validation import resolve_curve_name
 from proxies.problems import Problem
 
-__all__ = ["curve_choice", "calibrate_radiocarbon_rows"]
+__all__ = ["curve_choice", "calibrate_radiocarbon_rows", "lead210_rows"]
 
 
 def curve_choice(cell, settings, curves: dict) -> CurveChoice | None:
@@ -118,3 +118,21 @@ def _calibrate_group(table, positions, weighted_curves, settings, file, key, row
     if len(pieces) == 1:
         return pieces[0], []
     return average_calibrated(pieces, np.asarray(weights)), []
+
+
+def lead210_rows(core, settings, columns, rng: np.random.Generator) -> pd.DataFrame:
+    """The 210Pb ages of a core as calendar constraints (rows for the dates table).
+
+    Each dated 210Pb sample becomes a calendar age ``1950 - collected + t`` [cal BP] with its
+    Monte Carlo error (at least 1 yr), labelled ``210Pb <depth> cm``, a constraint (no
+    outlier component). The Monte Carlo draws come from ``rng``.
+    """
+    from proxies.chronology.lead210 import lead210_ages
+
+    ages = lead210_ages(core.lead210, settings.lead210_model, settings.lead210_draws, rng)
+    rows = {c: [None] * len(ages) for c in columns}
+    rows.update(label=[f"210Pb {d:g} cm" for d in ages["depth_cm"]], depth_cm=ages["depth_cm"].to_numpy(float),
+                kind="calendar", age=core.top_age_cal_bp + ages["age_yr"].to_numpy(float),
+                error=np.maximum(ages["error_yr"].to_numpy(float), 1.0), thickness_cm=0.0, reservoir_offset=0.0,
+                reservoir_error=0.0, exclude=False, source_row=np.nan, constraint=True)
+    return pd.DataFrame(rows)
