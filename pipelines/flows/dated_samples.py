@@ -1,7 +1,8 @@
 """Stage runner of the per-sample table (``<core id>/samples_dated.parquet``).
 
 It runs for every core whose chronology finished, whatever happened after (calibration
-skipped, reconstruction thin or failed), just before the core's folder is published, so that
+skipped, reconstruction thin or failed), just before the core's folder is published (a stage
+of :data:`pipelines.flows.stage_table.STAGES` with ``at_publish``), so that
 every dated core has its samples with ages -- calibrated or not. The science is
 :func:`proxies.reconstruction.dated_samples.dated_sample_table`; the CSV copy is written with
 the other exports (``samples_dated.csv``).
@@ -11,7 +12,6 @@ from __future__ import annotations
 
 import pathlib
 
-from pipelines.flows.keys import content_key
 from pipelines.flows.plan import RunPlan
 from pipelines.flows.stages import _cached_or_build, _collect_warnings, _unique, write_tables
 from pipelines.flows.store import WorkStore, load_object
@@ -19,13 +19,12 @@ from pipelines.flows.store import WorkStore, load_object
 __all__ = ["run_dated_samples"]
 
 
-def run_dated_samples(plan: RunPlan, ingest: dict, chronology: dict, calibration: dict | None,
-                      store: WorkStore, recompute: bool = False) -> dict:
+def run_dated_samples(plan: RunPlan, store: WorkStore, key: str, recompute: bool, *, ingest: dict,
+                      chronology: dict, calibration: dict | None) -> dict:
     """Write the per-sample table of one core (ages from its chronology, calibrated values
-    from its calibration when there is one)."""
+    from its calibration when there is one: ``calibration`` is ``None`` when the core's
+    calibration was skipped or failed)."""
     core_id = ingest["core_id"]
-    key = content_key("samples", plan.fingerprint, ingest["key"], chronology["key"],
-                      calibration["key"] if calibration else None, core_id)
 
     def produce(staged: pathlib.Path) -> dict:
         from proxies.reconstruction.dated_samples import dated_sample_table
