@@ -95,6 +95,8 @@ class RunConfig:
         Ensemble members M, 10..100 000 (default 1000).
     core_folders : tuple of Path
         Core folders matched by ``[run] cores`` (relative to the config file), sorted, unique.
+    core_patterns : tuple of str
+        ``[run] cores`` as written.
     curves : dict of str to Path
         Calibration-curve name -> existing file.
     sections : dict of str to dict
@@ -108,6 +110,7 @@ class RunConfig:
     core_folders: tuple[Path, ...]
     curves: dict[str, Path]
     sections: dict[str, dict] = field(default_factory=dict)
+    core_patterns: tuple[str, ...] = ()
 
     def resolve(self, relative: str | Path) -> Path:
         """A path written in the config, relative to the config file's folder."""
@@ -152,9 +155,9 @@ def _parse_parts(path: Path) -> tuple[RunConfig | None, list[Problem]]:
             problems.append(Problem(name, f"'{key}' must be a [{key}] table", f"write it as [{key}]", column=key))
             value = {}
         sections[key] = value
-    config = RunConfig(path=path.resolve(), seed=getattr(settings, "seed", 0) or 0,
-                       ensemble=getattr(settings, "ensemble", 1000), core_folders=folders, curves=curves,
-                       sections=sections)
+    seed, ensemble = (settings.seed, settings.ensemble) if settings is not None else (0, 1000)
+    config = RunConfig(path=path.resolve(), seed=seed, ensemble=ensemble, core_folders=folders, curves=curves,
+                       sections=sections, core_patterns=tuple(patterns))
     return config, problems
 
 
@@ -226,10 +229,7 @@ def stage_settings(config: RunConfig, stage: str):
 
 
 def check_run_config(path: str | Path, *, year: int | None = None) -> list[Problem]:
-    """Every problem of a run config, its stage sections and all its core folders.
-
-    Stage sections whose Settings class cannot be imported yet are skipped.
-    """
+    """Every problem of a run config, its stage sections and all its core folders."""
     report = check_run_config_by_core(path, year=year)
     return [problem for _, problems in report.values() for problem in problems]
 
@@ -256,10 +256,6 @@ def check_run_config_by_core(
         if not config.sections.get(stage):
             continue
         try:
-            _settings_class(stage)
-        except (ImportError, AttributeError):
-            continue  # that stage's settings class is not available in this installation
-        try:
             stage_settings(config, stage)
         except InputError as error:
             problems.extend(error.problems)
@@ -270,12 +266,14 @@ def check_run_config_by_core(
                                            default_curve=default_curve if isinstance(default_curve, str) else None,
                                            notes=notes)
         core_id = core.id if core is not None else _declared_id(folder)
-        if core_id is not None and core_id in ids:
+        key = core_id.lower() if core_id is not None else None  # folders differing in case only collide
+        if key is not None and key in ids:
             core_problems.append(Problem(os.path.join(shown, "core.toml"),
-                                         f"core id {core_id!r} is also used by {ids[core_id]}",
-                                         "give every core its own id", column="core.id"))
-        elif core_id is not None:
-            ids[core_id] = shown
+                                         f"core id {core_id!r} is also used by {ids[key]}"
+                                         " (ids differing only in upper/lower case share a folder on "
+                                         "Windows and macOS)", "give every core its own id", column="core.id"))
+        elif key is not None:
+            ids[key] = shown
         grouped[shown] = (core, core_problems)
     from pipelines.run_checks import run_time_checks
 

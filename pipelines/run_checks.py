@@ -10,7 +10,9 @@ every core folder was read. It uses the very functions the run uses, so that che
   ``<core>/dates.csv``, row and column);
 - age control, event layers and the memory the grids would need
   (:mod:`proxies.cores.datability`, also called by the chronology stage);
-- each ``[calibration.<column>]`` must name a proxy column of at least one core.
+- each ``[calibration.<column>]`` must name a proxy column of at least one core;
+- every ``[training.<name>]`` and ``[instrumental.<name>]`` is read with the run's readers
+  (:mod:`pipelines.auxiliary`): its keys, its file and the file's columns and cells.
 """
 
 from __future__ import annotations
@@ -91,6 +93,20 @@ def _calibration_columns(config, cores: list, name: str) -> list[Problem]:
     return problems
 
 
+def _auxiliary_problems(config) -> list[Problem]:
+    """Problems of the training sets and instrumental series, read as the run reads them."""
+    from pipelines.auxiliary import read_instrumental, read_training_set
+
+    problems = []
+    for section, reader in (("training", read_training_set), ("instrumental", read_instrumental)):
+        for entry in sorted(config.sections.get(section) or {}):
+            try:
+                reader(config, entry)
+            except InputError as error:
+                problems.extend(error.problems)
+    return problems
+
+
 def run_time_checks(config, grouped: dict, name: str) -> None:
     """Add the run-time problems to ``grouped`` (config problems first, then per core).
 
@@ -109,6 +125,7 @@ def run_time_checks(config, grouped: dict, name: str) -> None:
     reconstruction = _settings_or_none(config, "reconstruction")
     curves, curve_problems = _read_curves(config, name)
     config_problems.extend(curve_problems)
+    config_problems.extend(_auxiliary_problems(config))
     loaded = [core for key, (core, _) in grouped.items() if key != name and core is not None]
     if loaded and len(loaded) == len(grouped) - 1:
         config_problems.extend(_calibration_columns(config, loaded, name))

@@ -23,11 +23,9 @@ def _inside(path: pathlib.Path, folder: pathlib.Path) -> bool:
     return path == folder or folder in path.parents
 
 
-def _patterns(raw: dict[str, Any], config_dir: pathlib.Path) -> list[tuple[str, str]]:
+def _patterns(cores: tuple[str, ...], config_dir: pathlib.Path) -> list[tuple[str, str]]:
     """``(absolute pattern, pattern as written)`` of each ``[run] cores`` entry."""
-    cores = raw.get("run", {}).get("cores", [])
-    cores = [cores] if isinstance(cores, str) else cores if isinstance(cores, list) else []
-    return [(os.path.normpath(str(config_dir / p)), p) for p in cores if isinstance(p, str)]
+    return [(os.path.normpath(str(config_dir / p)), p) for p in cores]
 
 
 def _matched_by(path: pathlib.Path, patterns: Iterable[tuple[str, str]]) -> tuple[pathlib.Path, str] | None:
@@ -77,7 +75,7 @@ def location_problems(plan: Any, out_dir: str | os.PathLike[str],
     """
     config = pathlib.Path(plan.config_path)
     cores = [pathlib.Path(f) for f in plan.core_folders]
-    patterns = _patterns(plan.raw, config.parent)
+    patterns = _patterns(plan.config.core_patterns, config.parent)
     inputs = _input_files(plan)
     problems = [Problem(str(config), f"the core folder {core} holds the run folder {run}: its files "
                         "would be read as the core's input files", "move the run folder out of the core "

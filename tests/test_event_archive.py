@@ -117,4 +117,4 @@ def test_report_shows_which_events_survive_fdr(tmp_path):
     text = write_run_report(run).read_text(encoding="utf-8")
     assert "Events across the archive" in text
     assert "1 of 3 events survive false discovery rate control" in text  # B: p 0.04, q 0.06
-    assert (run / "figures" / "lead_lag.png").is_file()
+    assert (run / "figures" / "lead_lag.svg").is_file()

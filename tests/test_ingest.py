@@ -133,7 +133,8 @@ def test_collection_year_in_the_future_uses_the_injected_year(tmp_path):
     "kind, age, ok",
     [
         ("radiocarbon", -900, True),  # mildly post-bomb: allowed
-        ("radiocarbon", -1001, False),
+        ("radiocarbon", -5000, True),  # bomb peak (F14C ~1.9): allowed, needs a post-bomb curve
+        ("radiocarbon", -10001, False),
         ("radiocarbon", 54000, True),
         ("radiocarbon", 56000, False),
         ("calendar", -64, True),  # core top of a 2010 core is -60 cal BP; 5 yr slack

@@ -24,6 +24,7 @@ from prefect import flow
 
 from pipelines.flows import stages, tasks
 from pipelines.flows.plan import RunPlan
+from pipelines.flows.stage_table import CORE_STAGES, SCIENCE_STAGES, STAGES, call_stage, probe_stage
 from pipelines.flows.status import RECONSTRUCTED, finished_status
 from pipelines.flows.store import WorkStore
 
@@ -33,9 +34,6 @@ __all__ = ["archive_flow", "core_flow", "CoreTrack", "register_observer", "unreg
 #: run costs orchestration CPU in the flow process and the Prefect server (~0.1-0.2 s,
 #: measured) that on a small machine competes with the workers
 CHAIN_BATCH_CORES = 4
-
-#: per-core stage order after ingest (outputs follow the last stage reached)
-CORE_STAGES = ("ingest", "chronology", "calibration", "reconstruction", "events")
 
 _OBSERVERS: dict[str, Any] = {}
 
@@ -102,13 +100,9 @@ class _Finished:
         return self.value
 
 
-_RUNNERS = {"ingest": stages.run_ingest, "training": stages.run_training,
-            "chronology": stages.run_chronology, "calibration": stages.run_calibration,
-            "reconstruction": stages.run_reconstruction, "events": stages.run_events}
-
-
 class _Driver:
-    """Submits each core's next task when its previous one finishes."""
+    """Submits each core's next stage (in :data:`CORE_STAGES` order) when its previous one
+    finishes; a stage already in the work store is looked up instead of submitted."""
 
     def __init__(self, plan: RunPlan, run_dir: str, store: WorkStore, recompute: bool, observer: Any,
                  inline_stages: tuple[str, ...] = (), chain: bool = False):
@@ -129,66 +123,58 @@ class _Driver:
         self.known_hashes: dict[str, tuple[int, int, str]] = {}
 
     # -- submission ---------------------------------------------------------------------
-    def _submit(self, track: CoreTrack | None, stage: str, task, **kwargs) -> None:
-        """Submit ``task``; a stage whose result is already in the work store is not
-        submitted at all (looked up here, in microseconds, instead of costing a task run)."""
+    def _entries(self, track: CoreTrack) -> dict:
+        return {**track.entries, "folder": track.folder, "training": dict(sorted(self.training.items()))}
+
+    def _submit(self, track: CoreTrack | None, stage: str, label: str, entries: dict) -> None:
+        """Submit ``stage``'s task, or queue the finished entry found in the work store."""
         self.pending += 1
         if track is not None:
             track.stage = stage
             self.observer.stage(track.label, stage)
-        runner = _RUNNERS.get(stage.split(":", 1)[0])
-        if runner is not None and not self.recompute:
-            arguments = {k: v for k, v in kwargs.items() if k != "label"}
-            if stage.startswith("training:"):
-                arguments["name"] = kwargs["label"]
-            found = stages.probe(runner, **arguments)
-            if found is not None:
-                self.done.put((track, stage, _Finished(found)))
-                return
+        owner = label if track is None else track  # a training set is known by its name
+        found = None if self.recompute else probe_stage(stage, self.plan, entries, self.store)
+        if found is not None:
+            self.done.put((owner, stage, _Finished(found)))
+            return
+        task, kwargs = tasks.STAGE_TASKS[stage], {"plan": self.plan, "label": label, "entries": entries,
+                                                  "store": self.store, "recompute": self.recompute}
+        self._send(owner, stage, task, kwargs)
+
+    def _send(self, track: Any, stage: str, task, kwargs: dict) -> None:
         if stage in self.inline_stages:
             self.inline.append((track, stage, task, kwargs))
             return
         future = task.submit(**kwargs)
         future.add_done_callback(lambda f, t=track, s=stage: self.done.put((t, s, f)))
 
-    def _common(self, track: CoreTrack) -> dict:
-        return {"plan": self.plan, "label": track.name, "store": self.store, "recompute": self.recompute}
-
     def start(self) -> None:
         for name in sorted(self.training_left):
-            self._submit(None, f"training:{name}", tasks.training_task, plan=self.plan, label=name,
-                         store=self.store, recompute=self.recompute)
+            self._submit(None, "training", name, {"name": name})
         for folder in self.plan.core_folders:
             track = CoreTrack(folder=folder, label=pathlib.Path(folder).name)
             self.tracks.append(track)
             track.say(f"core folder {folder}")
-            self._submit(track, "ingest", tasks.ingest_task, plan=self.plan, label=track.label,
-                         folder=folder, store=self.store, recompute=self.recompute)
+            self._submit(track, "ingest", track.label, {"folder": folder})
 
     def _next(self, track: CoreTrack, finished: str) -> None:
-        e = track.entries
-        if finished == "ingest" and self.chain:
-            if self.training_left:
-                self.waiting_for_training.append(track)
-                track.say("waiting for the training sets")
-            else:
-                self._submit_chain(track)
-        elif finished == "ingest":
-            self._submit(track, "chronology", tasks.chronology_task, ingest=e["ingest"], **self._common(track))
-        elif finished == "chronology":
-            if self.training_left:
-                self.waiting_for_training.append(track)
-                track.say("waiting for the training sets")
-            else:
-                self._calibrate(track)
-        elif finished == "calibration":
-            self._submit(track, "reconstruction", tasks.reconstruction_task, ingest=e["ingest"],
-                         chronology=e["chronology"], calibration=e["calibration"], **self._common(track))
-        elif finished == "reconstruction":
-            self._submit(track, "events", tasks.events_task, reconstruction=e["reconstruction"],
-                         **self._common(track))
-        else:
+        position = CORE_STAGES.index(finished)
+        if position + 1 == len(CORE_STAGES):
             self._publish(track)
+            return
+        stage = CORE_STAGES[position + 1]
+        needs_training = "training" in STAGES[stage].inputs
+        chained = self.chain and finished == "ingest"
+        if (needs_training or chained) and self.training_left:
+            self.waiting_for_training.append(track)
+            track.say("waiting for the training sets")
+            return
+        if chained:
+            self._submit_chain(track)
+            return
+        if needs_training:
+            self._note_failed_training(track)
+        self._submit(track, stage, track.name, self._entries(track))
 
     def _note_failed_training(self, track: CoreTrack) -> None:
         if self.training_failed:
@@ -196,16 +182,15 @@ class _Driver:
             track.notes.append(f"calibration without the failed training sets ({note})")
 
     def _submit_chain(self, track: CoreTrack) -> None:
-        """Queue all science stages of a core for a chained task; a core whose chronology is
-        already in the work store goes stage by stage instead (each looked up, no task)."""
-        e = track.entries
-        if not self.recompute and stages.probe(stages.run_chronology, plan=self.plan, ingest=e["ingest"],
-                                               store=self.store, recompute=False) is not None:
-            self._submit(track, "chronology", tasks.chronology_task, ingest=e["ingest"], **self._common(track))
+        """Queue all science stages of a core for a chained task; a core whose first science
+        stage is already in the work store goes stage by stage instead (each looked up)."""
+        first = SCIENCE_STAGES[0]
+        if not self.recompute and probe_stage(first, self.plan, self._entries(track), self.store) is not None:
+            self._submit(track, first, track.name, self._entries(track))
             return
         self._note_failed_training(track)
-        track.stage = "chronology"
-        self.observer.stage(track.label, "chronology")
+        track.stage = first
+        self.observer.stage(track.label, first)
         self.ready.append(track)
         if len(self.ready) >= CHAIN_BATCH_CORES:
             self._flush_chains()
@@ -215,9 +200,9 @@ class _Driver:
         batch, self.ready = self.ready, []
         self.pending += 1
         label = batch[0].name if len(batch) == 1 else f"{batch[0].name}..{batch[-1].name}"
-        future = tasks.core_chain_task.submit(
-            plan=self.plan, label=label, ingests=[t.entries["ingest"] for t in batch],
-            training=dict(sorted(self.training.items())), store=self.store, recompute=self.recompute)
+        future = tasks.core_chain_task.submit(plan=self.plan, label=label,
+                                              chains=[self._entries(t) for t in batch],
+                                              store=self.store, recompute=self.recompute)
         future.add_done_callback(lambda f, b=tuple(batch): self.done.put((b, "chain", f)))
 
     def _on_chains(self, batch: tuple[CoreTrack, ...], results: Any) -> None:
@@ -225,7 +210,7 @@ class _Driver:
         stage decides what happens next (publish the core)."""
         for position, track in enumerate(batch):
             if isinstance(results, BaseException):
-                self._on_core(track, "chronology", results)
+                self._on_core(track, SCIENCE_STAGES[0], results)
                 continue
             chain = results[position]
             for index, (stage, result) in enumerate(chain):
@@ -235,20 +220,14 @@ class _Driver:
                 else:
                     self._record(track, stage, outcome)
 
-    def _calibrate(self, track: CoreTrack) -> None:
-        self._note_failed_training(track)
-        e = track.entries
-        self._submit(track, "calibration", tasks.calibration_task, ingest=e["ingest"],
-                     chronology=e["chronology"], training=dict(sorted(self.training.items())),
-                     **self._common(track))
-
     def _publish(self, track: CoreTrack) -> None:
         if track.status == "running":
             track.status = finished_status(track.entries)
         track.say(f"finished: {track.status}, stage reached {track.reached or 'none'}")
-        entries = [track.entries[s] for s in CORE_STAGES if s in track.entries and s != "ingest"]
-        self._submit(track, "outputs", tasks.outputs_task, run_dir=self.run_dir, label=track.name,
-                     entries=entries, log_text=self._log_text(track))
+        entries = [track.entries[s] for s in SCIENCE_STAGES if s in track.entries]
+        self.pending += 1
+        self._send(track, "outputs", tasks.outputs_task, {"run_dir": self.run_dir, "label": track.name,
+                                                          "entries": entries, "log_text": self._log_text(track)})
 
     def _log_text(self, track: CoreTrack) -> str:
         lines = [f"downcore core log: {track.name}", *track.log]
@@ -269,10 +248,7 @@ class _Driver:
         if not self.training_left:
             waiting, self.waiting_for_training = self.waiting_for_training, []
             for track in waiting:
-                if self.chain:
-                    self._submit_chain(track)
-                else:
-                    self._calibrate(track)
+                self._next(track, track.reached)
 
     def _on_core(self, track: CoreTrack, stage: str, result: Any) -> None:
         if stage == "outputs":
@@ -299,16 +275,8 @@ class _Driver:
             track.say(result["skipped"])
             self._publish(track)
             return False
-        if stage == "ingest":
-            core_id = result["core_id"]
-            if core_id in self.ids:
-                track.status = "failed"
-                track.error = (f"ingest: core id {core_id!r} is also used by {self.ids[core_id]} -- "
-                               "give every core its own id")
-                self._publish(track)
-                return False
-            self.ids[core_id] = track.folder
-            track.core_id = core_id
+        if stage == "ingest" and not self._claim_id(track, result["core_id"]):
+            return False
         track.entries[stage] = result
         track.reached = stage
         track.cached[stage] = bool(result.get("cached"))
@@ -316,6 +284,18 @@ class _Driver:
         track.notes += [f"{stage}: {n}" for n in result.get("notes", [])]
         track.say(f"{stage} done in {result.get('seconds', 0.0):.2f} s"
                   + (" (reused from the cache)" if result.get("cached") else ""))
+        return True
+
+    def _claim_id(self, track: CoreTrack, core_id: str) -> bool:
+        """Give the core its id; a second core with the same id fails (and is published)."""
+        if core_id in self.ids:
+            track.status = "failed"
+            track.error = (f"ingest: core id {core_id!r} is also used by {self.ids[core_id]} -- "
+                           "give every core its own id")
+            self._publish(track)
+            return False
+        self.ids[core_id] = track.folder
+        track.core_id = core_id
         return True
 
     def _run_one_inline(self) -> None:
@@ -336,8 +316,8 @@ class _Driver:
             track, stage, future = self.done.get()
             self.pending -= 1
             result = future.result(raise_on_failure=False)
-            if track is None:
-                self._on_training(stage.split(":", 1)[1], result)
+            if stage == "training":
+                self._on_training(track, result)
             elif stage == "chain":
                 self._on_chains(track, result)
             else:
@@ -374,11 +354,11 @@ def archive_flow(plan: RunPlan, run_dir: str, cache_dir: str, recompute: bool = 
                        if t.status in RECONSTRUCTED and "reconstruction" in t.entries}
     stack = None
     if reconstructions:
-        result = None if recompute else stages.probe(stages.run_stack, plan=plan, reconstructions=reconstructions,
-                                                     store=store, recompute=recompute)
+        entries = {"reconstructions": reconstructions}
+        result = None if recompute else probe_stage("stack", plan, entries, store)
         if result is None:
-            future = tasks.stack_task.submit(plan=plan, label="all-cores", reconstructions=reconstructions,
-                                             store=store, recompute=recompute)
+            future = tasks.STAGE_TASKS["stack"].submit(plan=plan, label="all-cores", entries=entries,
+                                                       store=store, recompute=recompute)
             result = future.result(raise_on_failure=False)
         if isinstance(result, BaseException):
             notes.append(f"stack failed: {result}")
@@ -400,7 +380,7 @@ def _archive_events(plan: RunPlan, tracks, store: WorkStore, recompute: bool, no
     if not events:
         return None
     try:
-        return stages.run_archive_events(plan, events, store, recompute)
+        return call_stage("archive_events", plan, {"all_events": events}, store, recompute)
     except stages.StageSkipped as skipped:
         notes.append(str(skipped))
     except Exception as error:  # noqa: BLE001 - the per-core outputs stay valid

@@ -21,7 +21,9 @@ import pandas as pd
 
 from pipelines.flows.plan import RunPlan, build_plan
 from pipelines.flows.runners import ExecutorChoice, prefect_run_settings, task_runner_for
-from pipelines.manifest import build_manifest, collect_input_files, hash_inputs, write_manifest
+from pipelines.flows.stage_table import CORE_STAGES, SCIENCE_STAGES
+from pipelines.manifest import build_manifest, write_manifest
+from pipelines.outputs_schema import TABLES, checked
 from pipelines.runfolder import (IN_PROGRESS_MARKER, atomic_copy, atomic_write_json, atomic_write_parquet,
                                  atomic_write_text, create_run_folder, ensure_writable_folder,
                                  release_run_folder)
@@ -79,35 +81,34 @@ def resolved_config(plan: RunPlan) -> dict[str, Any]:
         "run": {"seed": plan.run_seed, "ensemble": plan.ensemble, "cores": list(plan.core_folders)},
         "curves": {name: path for name, path, _ in plan.curves},
         "settings": {stage: _plain(s) for stage, s in sorted(plan.settings.items())},
-        "training": _plain(plan.raw.get("training", {})),
-        "instrumental": _plain(plan.raw.get("instrumental", {})),
-        "report": _plain(plan.raw.get("report", {})),
+        "training": _plain(plan.config.sections["training"]),
+        "instrumental": _plain(plan.config.sections["instrumental"]),
+        "report": _plain(plan.config.sections["report"]),
     }
 
 
 def _write_run_tables(run_dir: pathlib.Path, result: dict) -> None:
-    summary = pd.DataFrame(result["cores"], columns=["core_id", "folder", "status", "stage_reached",
-                                                     "n_warnings", "warnings", "notes", "error"])
-    atomic_write_parquet(run_dir / "summary.parquet", summary)
-    timings = pd.DataFrame(result["timings"], columns=["core_id", "stage", "seconds", "reused"])
-    atomic_write_text(run_dir / "timings.csv", timings.to_csv(index=False))
+    """summary.parquet, timings.csv, the training sets' tables and the stack, where the
+    run-folder schema puts them."""
+    summary = checked("summary", pd.DataFrame(result["cores"], columns=list(TABLES["summary"].names)))
+    atomic_write_parquet(run_dir / TABLES["summary"].path, summary)
+    timings = checked("timings", pd.DataFrame(result["timings"], columns=list(TABLES["timings"].names)))
+    atomic_write_text(run_dir / TABLES["timings"].path, timings.to_csv(index=False))
     for name, entry in sorted(result["training"].items()):
         for part in ("cv", "skill"):
-            if part in entry.get("paths", {}):
-                atomic_copy(entry["paths"][part], run_dir / "training" / f"{name}_{part}.parquet")
+            target = TABLES[f"training_{part}"].path.replace("<name>", name)
+            atomic_copy(entry["paths"][part], run_dir / target)
     if result.get("stack"):
-        atomic_copy(result["stack"]["paths"]["stack.parquet"], run_dir / "stack.parquet")
-    for name in ("archive_events.parquet", "lead_lag.parquet"):
+        atomic_copy(result["stack"]["paths"]["stack.parquet"], run_dir / TABLES["stack"].path)
+    for key in ("archive_events", "lead_lag"):
+        name = TABLES[key].path
         if result.get("archive_events") and name in result["archive_events"].get("paths", {}):
             atomic_copy(result["archive_events"]["paths"][name], run_dir / name)
 
 
 def _write_report(run_dir: pathlib.Path, notes: list[str]) -> None:
-    try:
-        from pipelines.report import write_exports, write_run_report
-    except ImportError as error:
-        notes.append(f"report not written: the report module is not available ({error})")
-        return
+    from pipelines.report import write_exports, write_run_report
+
     for name, writer in (("exports", write_exports), ("report", write_run_report)):
         try:
             writer(run_dir)
@@ -116,12 +117,12 @@ def _write_report(run_dir: pathlib.Path, notes: list[str]) -> None:
 
 
 def _streams(result: dict) -> list[str]:
-    reached_order = ("chronology", "calibration", "reconstruction", "events")
+    """The random streams used (``stage/core_id``): every science stage a core reached."""
     streams = []
     for row in result["cores"]:
-        if row["stage_reached"] in reached_order or row["stage_reached"] == "ingest":
-            last = reached_order.index(row["stage_reached"]) if row["stage_reached"] in reached_order else -1
-            streams += [f"{stage}/{row['core_id']}" for stage in reached_order[:last + 1]]
+        if row["stage_reached"] in CORE_STAGES:
+            last = CORE_STAGES.index(row["stage_reached"])
+            streams += [f"{stage}/{row['core_id']}" for stage in SCIENCE_STAGES if CORE_STAGES.index(stage) <= last]
     if result.get("stack"):
         streams.append("stack/all-cores")
     return streams
@@ -168,7 +169,7 @@ def execute_run(config_path: str | os.PathLike[str], out_dir: str | os.PathLike[
     cache = pathlib.Path(cache_dir).expanduser().resolve() if cache_dir else default_cache_dir(out_dir)
     check_run_locations(plan, out_dir, cache)
     ensure_writable_folder(cache, "the work store (--cache-dir)")
-    inputs = hash_inputs(collect_input_files(plan.config_path, plan.raw, plan.core_folders))
+    inputs = list(plan.inputs)
     run_dir = create_run_folder(out_dir, resume=resume, identity=run_identity(plan.config_path, plan.config_text))
     try:
         return _run_into(run_dir, plan, inputs, cache, choice=choice, recompute=recompute, resume=resume,
@@ -188,17 +189,23 @@ def _run_into(run_dir: pathlib.Path, plan: RunPlan, inputs: list, cache: pathlib
     runner = task_runner_for(choice, cache / "dask-scratch")
     observer_id = register_observer(progress) if progress is not None else None
     try:
+        if local_server is not None and progress is not None:
+            progress.phase("starting the Prefect server")
         api_url = local_server.wait_ready() if local_server is not None else None
         with prefect_run_settings(choice, api_url=api_url):
             result = archive_flow.with_options(task_runner=runner)(
                 plan=plan, run_dir=str(run_dir), cache_dir=str(cache), recompute=recompute,
                 observer_id=observer_id, inline_stages=choice.inline_stages(),
                 chain=choice.chain_core_stages())
+    except BaseException:
+        if progress is not None:
+            progress.close()
+        raise
     finally:
         if observer_id:
             unregister_observer(observer_id)
-        if progress is not None:
-            progress.close()
+    if progress is not None and not report:
+        progress.close()
     notes = list(result["notes"])
     _write_run_tables(run_dir, result)
 
@@ -218,7 +225,13 @@ def _run_into(run_dir: pathlib.Path, plan: RunPlan, inputs: list, cache: pathlib
     if report:
         # the report shows the run's facts: give it a provisional manifest in the marker
         atomic_write_json(run_dir / IN_PROGRESS_MARKER, manifest_now())
-        _write_report(run_dir, notes)
+        try:
+            if progress is not None:
+                progress.phase("writing the report and exports")
+            _write_report(run_dir, notes)
+        finally:
+            if progress is not None:
+                progress.close()
     manifest = manifest_now()
     seconds = manifest["seconds"]
     write_manifest(run_dir, manifest)

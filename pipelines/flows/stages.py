@@ -1,6 +1,6 @@
 """Stage runners: the plain-Python bodies of the Prefect tasks.
 
-Each runner builds its cache key (:mod:`pipelines.flows.keys`), returns the finished work-store
+Each runner is given its cache key (built from the stage table, :mod:`pipelines.flows.stage_table`), returns the finished work-store
 entry when there is one, and otherwise loads its inputs from the store, calls one stage
 function of :mod:`proxies` with ``rng_for(run_seed, stage, core_id)``, writes the stage's
 run-folder tables (deterministic Parquet) and a pickled result for the next stage into a new
@@ -21,11 +21,10 @@ from typing import Any, Callable
 import numpy as np
 import pandas as pd
 
-from pipelines.flows.keys import content_key
 from pipelines.flows.plan import RunPlan
 from pipelines.flows.store import WorkStore, load_object, save_object
 from pipelines.outputs_schema import checked, member_names, table as output_table
-from pipelines.runfolder import atomic_write_parquet, sha256_file
+from pipelines.runfolder import atomic_write_parquet
 from proxies.problems import InputError
 from proxies.seeding import rng_for
 
@@ -45,15 +44,15 @@ class NotCached(Exception):
 PROBING: contextvars.ContextVar[bool] = contextvars.ContextVar("downcore_probing", default=False)
 
 
-def probe(runner: Callable[..., dict], **kwargs: Any) -> dict | None:
-    """The finished entry ``runner(**kwargs)`` would return, without computing anything.
+def probe(run: Callable[[], dict]) -> dict | None:
+    """The finished entry ``run()`` would return, without computing anything.
 
     Returns ``None`` when the stage must run (no entry, or the lookup itself failed -- the
     task will then report the failure), or ``{"skipped": reason}`` for a skipped stage.
     """
     token = PROBING.set(True)
     try:
-        return runner(**kwargs)
+        return run()
     except NotCached:
         return None
     except StageSkipped as skipped:
@@ -147,18 +146,10 @@ def _cached_or_build(store: WorkStore, stage: str, key: str, produce: Callable[[
     return entry
 
 
-def _folder_digest(folder: str) -> list[tuple[str, str]]:
-    root = pathlib.Path(folder)
-    files = sorted(p for p in root.rglob("*") if p.is_file()
-                   and not any(part.startswith(".") for part in p.relative_to(root).parts))
-    return [(p.relative_to(root).as_posix(), sha256_file(p)) for p in files]
-
-
 # --- ingest --------------------------------------------------------------------------------
 
-def run_ingest(plan: RunPlan, folder: str, store: WorkStore, recompute: bool = False) -> dict:
+def run_ingest(plan: RunPlan, store: WorkStore, key: str, recompute: bool, *, folder: str) -> dict:
     """Read and validate one core folder (:func:`pipelines.ingest.load_core`)."""
-    key = content_key("ingest", plan.fingerprint, _folder_digest(folder))
 
     def produce(staged: pathlib.Path) -> dict:
         from pipelines.ingest import load_core
@@ -174,15 +165,8 @@ def run_ingest(plan: RunPlan, folder: str, store: WorkStore, recompute: bool = F
 
 # --- training sets (fitted once per run, shared) --------------------------------------------
 
-def _training_specs(plan: RunPlan) -> dict[str, Any]:
-    return dict(plan.raw.get("training", {}) or {})
-
-
-def run_training(plan: RunPlan, name: str, store: WorkStore, recompute: bool = False) -> dict:
+def run_training(plan: RunPlan, store: WorkStore, key: str, recompute: bool, *, name: str) -> dict:
     """Fit the transfer function of training set ``name`` once for the whole run."""
-    path, digest = plan.auxiliary["training"][name]
-    spec = _training_specs(plan).get(name)
-    key = content_key("training", plan.fingerprint, name, digest, spec, plan.run_seed)
 
     def produce(staged: pathlib.Path) -> dict:
         from pipelines.auxiliary import read_training_set
@@ -222,11 +206,9 @@ def _load_curves(plan: RunPlan) -> dict[str, Any]:
     return curves
 
 
-def run_chronology(plan: RunPlan, ingest: dict, store: WorkStore, recompute: bool = False) -> dict:
+def run_chronology(plan: RunPlan, store: WorkStore, key: str, recompute: bool, *, ingest: dict) -> dict:
     """Calibrate the dates and build the age-depth ensemble of one core."""
     core_id = ingest["core_id"]
-    key = content_key("chronology", plan.fingerprint, ingest["key"], plan.curve_hashes,
-                      plan.settings_key("chronology"), plan.run_seed, plan.ensemble, core_id)
 
     def produce(staged: pathlib.Path) -> dict:
         from proxies.chronology import build_chronology
@@ -258,8 +240,8 @@ def _instrumental(plan: RunPlan) -> dict[str, Any]:
     return {name: read_instrumental(plan.config, name) for name in sorted(plan.auxiliary["instrumental"])}
 
 
-def run_calibration(plan: RunPlan, ingest: dict, chronology: dict, training: dict[str, dict],
-                    store: WorkStore, recompute: bool = False) -> dict:
+def run_calibration(plan: RunPlan, store: WorkStore, key: str, recompute: bool, *, ingest: dict,
+                    chronology: dict, training: dict[str, dict]) -> dict:
     """Calibrate every proxy of one core (published equations, instrumental overlap,
     transfer functions), member by member along the age ensemble.
 
@@ -270,10 +252,6 @@ def run_calibration(plan: RunPlan, ingest: dict, chronology: dict, training: dic
         this core (the reason becomes a note in the summary).
     """
     core_id = ingest["core_id"]
-    aux = {name: digest for name, (_, digest) in sorted(plan.auxiliary.get("instrumental", {}).items())}
-    key = content_key("calibration", plan.fingerprint, ingest["key"], chronology["key"],
-                      plan.settings_key("calibration"), {n: e["key"] for n, e in sorted(training.items())},
-                      aux, plan.run_seed, plan.ensemble, core_id)
 
     def produce(staged: pathlib.Path) -> dict:
         from proxies.calibration import calibrate_core
@@ -286,7 +264,7 @@ def run_calibration(plan: RunPlan, ingest: dict, chronology: dict, training: dic
                                         _instrumental(plan), plan.ensemble,
                                         rng_for(plan.run_seed, "calibration", core_id))
             except InputError as error:
-                if "calibration" in plan.sections:
+                if plan.has_section("calibration"):
                     raise
                 raise StageSkipped(f"calibration skipped (no [calibration] section and the "
                                    f"defaults do not apply): {error}") from error
@@ -301,14 +279,12 @@ def run_calibration(plan: RunPlan, ingest: dict, chronology: dict, training: dic
 
 # --- reconstruction ---------------------------------------------------------------------------
 
-def run_reconstruction(plan: RunPlan, ingest: dict, chronology: dict, calibration: dict,
-                       store: WorkStore, recompute: bool = False) -> dict:
+def run_reconstruction(plan: RunPlan, store: WorkStore, key: str, recompute: bool, *, ingest: dict,
+                       chronology: dict, calibration: dict) -> dict:
     """Put the calibrated ensembles of one core on the time grid (values and anomalies)."""
     core_id = ingest["core_id"]
     if not calibration.get("n_records"):
         raise StageSkipped("reconstruction skipped: no calibrated record")
-    key = content_key("reconstruction", plan.fingerprint, chronology["key"], calibration["key"],
-                      plan.settings_key("reconstruction"), plan.run_seed, core_id)
 
     def produce(staged: pathlib.Path) -> dict:
         from proxies.reconstruction import reconstruct_core
@@ -328,13 +304,11 @@ def run_reconstruction(plan: RunPlan, ingest: dict, chronology: dict, calibratio
 
 # --- events ------------------------------------------------------------------------------------
 
-def run_events(plan: RunPlan, reconstruction: dict, store: WorkStore, recompute: bool = False) -> dict:
+def run_events(plan: RunPlan, store: WorkStore, key: str, recompute: bool, *, reconstruction: dict) -> dict:
     """Detect abrupt events (with red-noise significance) in one core's reconstruction."""
     core_id = reconstruction["core_id"]
     if not reconstruction.get("n_series"):
         raise StageSkipped("events skipped: no reconstructed series")
-    key = content_key("events", plan.fingerprint, reconstruction["key"], plan.settings_key("events"),
-                      plan.run_seed, core_id)
 
     def produce(staged: pathlib.Path) -> dict:
         from proxies.events import detect_core_events
@@ -352,15 +326,13 @@ def run_events(plan: RunPlan, reconstruction: dict, store: WorkStore, recompute:
 
 # --- run-level events: archive-wide FDR and lead/lag ------------------------------------------
 
-def run_archive_events(plan: RunPlan, events: dict[str, dict], store: WorkStore,
-                       recompute: bool = False) -> dict:
+def run_archive_events(plan: RunPlan, store: WorkStore, key: str, recompute: bool, *,
+                       all_events: dict[str, dict]) -> dict:
     """All cores' events with Benjamini-Hochberg q-values (``archive_events.parquet``) and
     the lead/lag of events found in several cores (``lead_lag.parquet``)."""
-    usable = {cid: e for cid, e in sorted(events.items()) if e.get("paths")}
+    usable = {cid: e for cid, e in sorted(all_events.items()) if e.get("paths")}
     if not usable:
         raise StageSkipped("archive events skipped: no core has events")
-    key = content_key("archive_events", plan.fingerprint, {cid: e["key"] for cid, e in usable.items()},
-                      plan.settings_key("events"))
 
     def produce(staged: pathlib.Path) -> dict:
         from proxies.events.archive_events import run_event_tables
@@ -377,14 +349,12 @@ def run_archive_events(plan: RunPlan, events: dict[str, dict], store: WorkStore,
 STACK_STREAM = "all-cores"
 
 
-def run_stack(plan: RunPlan, reconstructions: dict[str, dict], store: WorkStore,
-              recompute: bool = False) -> dict:
+def run_stack(plan: RunPlan, store: WorkStore, key: str, recompute: bool, *,
+              reconstructions: dict[str, dict]) -> dict:
     """Regional composite of the reconstructions of all cores (``stack.parquet``)."""
     usable = {cid: e for cid, e in sorted(reconstructions.items()) if e.get("n_series")}
     if not usable:
         raise StageSkipped("stack skipped: no core has a reconstruction")
-    key = content_key("stack", plan.fingerprint, {cid: e["key"] for cid, e in usable.items()},
-                      plan.settings_key("reconstruction"), plan.run_seed)
 
     def produce(staged: pathlib.Path) -> dict:
         from proxies.reconstruction import stack_records

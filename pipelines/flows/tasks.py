@@ -1,5 +1,6 @@
-"""Prefect tasks: one per stage of a core, one per training set, one for the regional stack
-and one that publishes a core's folder in the run folder.
+"""Prefect tasks: one per stage of the stage table (:mod:`pipelines.flows.stage_table`), one
+that chains a core's science stages (Dask) and one that publishes a core's folder in the run
+folder.
 
 Tasks are thin: each calls one runner of :mod:`pipelines.flows.stages`. Caching is done by
 the runners' content-addressed work store (keys = content hashes of inputs, settings and the
@@ -22,15 +23,11 @@ from prefect.cache_policies import NO_CACHE
 
 from pipelines.flows import stages
 from pipelines.flows.plan import RunPlan
+from pipelines.flows.stage_table import SCIENCE_STAGES, STAGES, call_stage
 from pipelines.flows.store import WorkStore
 from pipelines.runfolder import atomic_write_bytes, link_or_copy, publish_folder, staging_folder
 
-__all__ = ["StageFailed", "ingest_task", "training_task", "chronology_task", "calibration_task",
-           "reconstruction_task", "events_task", "core_chain_task", "CHAIN_STAGES", "stack_task",
-           "outputs_task"]
-
-#: the stages a chained task runs, in order
-CHAIN_STAGES = ("chronology", "calibration", "reconstruction", "events")
+__all__ = ["StageFailed", "STAGE_TASKS", "core_chain_task", "run_core_chain", "outputs_task"]
 
 _OPTIONS: dict[str, Any] = {"cache_policy": NO_CACHE, "persist_result": False, "retries": 0,
                             "log_prints": False}
@@ -51,48 +48,24 @@ def _guarded(runner: Callable[..., dict], *args: Any) -> dict:
         raise StageFailed(stages.problem_text(error)) from None
 
 
-@task(name="ingest", task_run_name="ingest[{label}]", **_OPTIONS)
-def ingest_task(plan: RunPlan, label: str, folder: str, store: WorkStore, recompute: bool = False) -> dict:
-    """Read and validate one core folder."""
-    return _guarded(stages.run_ingest, plan, folder, store, recompute)
+def _stage_task(name: str):
+    """The Prefect task of stage ``name`` (task runs are named ``<stage>[<core or set>]``)."""
+
+    def run(plan: RunPlan, label: str, entries: dict, store: WorkStore, recompute: bool = False) -> dict:
+        return _guarded(call_stage, name, plan, entries, store, recompute)
+
+    run.__name__ = run.__qualname__ = f"{name}_task"
+    run.__doc__ = f"Stage {name!r} of :data:`pipelines.flows.stage_table.STAGES`."
+    return task(name=name, task_run_name=f"{name}[{{label}}]", **_OPTIONS)(run)
 
 
-@task(name="training", task_run_name="training[{label}]", **_OPTIONS)
-def training_task(plan: RunPlan, label: str, store: WorkStore, recompute: bool = False) -> dict:
-    """Fit one training set's transfer function (once per run, shared by the cores)."""
-    return _guarded(stages.run_training, plan, label, store, recompute)
+#: stage name -> its Prefect task, built from the stage table
+STAGE_TASKS = {name: _stage_task(name) for name in STAGES}
 
 
-@task(name="chronology", task_run_name="chronology[{label}]", **_OPTIONS)
-def chronology_task(plan: RunPlan, label: str, ingest: dict, store: WorkStore, recompute: bool = False) -> dict:
-    """Calibrate the dates and build the age-depth ensemble."""
-    return _guarded(stages.run_chronology, plan, ingest, store, recompute)
-
-
-@task(name="calibration", task_run_name="calibration[{label}]", **_OPTIONS)
-def calibration_task(plan: RunPlan, label: str, ingest: dict, chronology: dict, training: dict,
-                     store: WorkStore, recompute: bool = False) -> dict:
-    """Calibrate the proxies of one core along its age ensemble."""
-    return _guarded(stages.run_calibration, plan, ingest, chronology, training, store, recompute)
-
-
-@task(name="reconstruction", task_run_name="reconstruction[{label}]", **_OPTIONS)
-def reconstruction_task(plan: RunPlan, label: str, ingest: dict, chronology: dict, calibration: dict,
-                        store: WorkStore, recompute: bool = False) -> dict:
-    """Put the calibrated ensembles on the time grid."""
-    return _guarded(stages.run_reconstruction, plan, ingest, chronology, calibration, store, recompute)
-
-
-@task(name="events", task_run_name="events[{label}]", **_OPTIONS)
-def events_task(plan: RunPlan, label: str, reconstruction: dict, store: WorkStore,
-                recompute: bool = False) -> dict:
-    """Detect abrupt events in the reconstruction."""
-    return _guarded(stages.run_events, plan, reconstruction, store, recompute)
-
-
-def run_core_chain(plan: RunPlan, ingest: dict, training: dict, store: WorkStore,
+def run_core_chain(plan: RunPlan, entries: dict, store: WorkStore,
                    recompute: bool = False) -> list[tuple[str, dict]]:
-    """Run chronology -> calibration -> reconstruction -> events of one core in one go.
+    """Run the science stages of one core (:data:`SCIENCE_STAGES`) in one go.
 
     Each stage still goes through its own runner, so it is cached under its own content key
     exactly as when submitted alone (and gives the same bytes). The chain stops at the
@@ -103,19 +76,11 @@ def run_core_chain(plan: RunPlan, ingest: dict, training: dict, store: WorkStore
     list of (stage, result)
         One entry per stage run; a failed stage's result is ``{"failed": message}``.
     """
-    entries: dict[str, dict] = {"ingest": ingest}
-    calls = {
-        "chronology": lambda: stages.run_chronology(plan, ingest, store, recompute),
-        "calibration": lambda: stages.run_calibration(plan, ingest, entries["chronology"], training,
-                                                      store, recompute),
-        "reconstruction": lambda: stages.run_reconstruction(plan, ingest, entries["chronology"],
-                                                            entries["calibration"], store, recompute),
-        "events": lambda: stages.run_events(plan, entries["reconstruction"], store, recompute),
-    }
+    entries = dict(entries)
     done: list[tuple[str, dict]] = []
-    for stage in CHAIN_STAGES:
+    for stage in SCIENCE_STAGES:
         try:
-            result = _guarded(calls[stage])
+            result = _guarded(call_stage, stage, plan, entries, store, recompute)
         except StageFailed as failed:
             done.append((stage, {"failed": str(failed)}))
             break
@@ -127,18 +92,12 @@ def run_core_chain(plan: RunPlan, ingest: dict, training: dict, store: WorkStore
 
 
 @task(name="core-chain", task_run_name="core-chain[{label}]", **_OPTIONS)
-def core_chain_task(plan: RunPlan, label: str, ingests: list[dict], training: dict, store: WorkStore,
+def core_chain_task(plan: RunPlan, label: str, chains: list[dict], store: WorkStore,
                     recompute: bool = False) -> list[list[tuple[str, dict]]]:
     """All science stages of a few cores as one task (used on Dask, where each task run's
-    orchestration costs CPU that the workers need); one chain per core, failures isolated."""
-    return [run_core_chain(plan, ingest, training, store, recompute) for ingest in ingests]
-
-
-@task(name="stack", task_run_name="stack[{label}]", **_OPTIONS)
-def stack_task(plan: RunPlan, label: str, reconstructions: dict, store: WorkStore,
-               recompute: bool = False) -> dict:
-    """Regional composite of all reconstructions."""
-    return _guarded(stages.run_stack, plan, reconstructions, store, recompute)
+    orchestration costs CPU that the workers need); one chain per core, failures isolated.
+    ``chains`` holds each core's entries (its ingest and the training sets)."""
+    return [run_core_chain(plan, entries, store, recompute) for entries in chains]
 
 
 def publish_core_folder(run_dir: str, folder_name: str, entries: list[dict], log_text: str) -> dict:

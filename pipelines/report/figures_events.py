@@ -77,7 +77,7 @@ def event_figure(core: CoreData, variable: str):
         if not has_events and not np.nanmax(p, initial=0.0) > 0:
             ax.text(0.5, 0.55, "no event found in any ensemble member", transform=ax.transAxes,
                     ha="center", color=style.INK, fontsize=8.5)
-        ax.set_ylabel("event probability")
+        ax.set_ylabel("event probability [0–1]")
         ax.set_title(f"{core.core_id}: events in {variable}")
     if has_events:
         axe = axes[-1]

@@ -124,7 +124,7 @@ def reconstruction_figure(core: CoreData, series: Series):
         axn = axes[next_ax]
         count = pd.to_numeric(rows["n_samples"], errors="coerce").to_numpy(float)
         axn.fill_between(age, 0, count, step="mid", color=style.MOSS, alpha=0.7, linewidth=0)
-        axn.set_ylabel("samples")
+        axn.set_ylabel("samples [count]")
         axn.set_ylim(bottom=0)
     style.age_axis(axes[-1])
     return fig
@@ -155,7 +155,7 @@ def stack_figure(stack: pd.DataFrame, variable: str, units: str = ""):
     if has_count:
         count = pd.to_numeric(rows["n_records"], errors="coerce").to_numpy(float)
         axes[1].step(age, count, where="mid", color=style.MOSS)
-        axes[1].set_ylabel("records")
+        axes[1].set_ylabel("records [count]")
         axes[1].set_ylim(0, max(1.0, np.nanmax(count) if np.isfinite(count).any() else 1) + 0.5)
     style.age_axis(axes[-1])
     return fig

@@ -13,6 +13,7 @@ from typing import Any, Mapping
 import numpy as np
 import pandas as pd
 
+from proxies.cores.model import NON_PROXY_COLUMNS
 from proxies.problems import InputError, Problem
 
 from .assemblage import counts_to_percentages, rare_taxa_mask, transform_abundances
@@ -235,17 +236,13 @@ def fit_transfer_function(training: TrainingSet, spec: TrainingSpec,
         training_x=x, training_y=y, training_percent=percent)
 
 
-_NOT_TAXA = frozenset({"depth_cm", "thickness_cm", "section", "section_depth_cm", "source_row",
-                       "label"})
-
-
 def _taxa_columns(core) -> list[str]:
     """Taxon columns of the counts table (``core.taxa`` when the core provides it)."""
     taxa = getattr(core, "taxa", None)
     if taxa is not None:
         return list(taxa)
     return [c for c in core.counts.columns
-            if c not in _NOT_TAXA and pd.api.types.is_numeric_dtype(core.counts[c])]
+            if c not in NON_PROXY_COLUMNS and pd.api.types.is_numeric_dtype(core.counts[c])]
 
 
 def _transfer_record(core, proxy: ProxyCalibration, fitted: FittedTransfer, ensemble, rng,

@@ -39,6 +39,7 @@ __all__ = [
     "calibrate_radiocarbon",
     "calibrate_calendar",
     "stack_calibrated",
+    "average_calibrated",
     "hpd_ranges",
 ]
 
@@ -405,3 +406,27 @@ def stack_calibrated(parts: list[tuple[np.ndarray, CalibratedDates]], n: int) ->
     if any(r is None for r in rows):
         raise ValueError("stack_calibrated: some positions were not filled")
     return _pack(steps.pop(), start, rows, np.arange(n))
+
+
+def average_calibrated(parts: list[CalibratedDates], weights) -> CalibratedDates:
+    """Weighted average of several calibrations of the same n dates (same step), row by row.
+
+    Used for a mixture over an uncertain quantity (e.g. the share of a blended curve): row i
+    of the result is sum_j w_j row_i(part_j), on the union of the rows' windows, normalised.
+    """
+    weights = np.asarray(weights, dtype=float) / np.sum(weights)
+    steps = {p.step for p in parts}
+    if len(steps) != 1:
+        raise ValueError(f"calibrated dates on different grid steps {sorted(steps)}")
+    n = len(parts[0])
+    rows, first = [], np.zeros(n, dtype=int)
+    for i in range(n):
+        start = min(int(p.start[i]) for p in parts)
+        stop = max(int(p.start[i]) + int(p.widths[i]) for p in parts)
+        row = np.zeros(stop - start)
+        for p, w in zip(parts, weights):
+            values = p.values[p.offsets[i]:p.offsets[i + 1]]
+            row[p.start[i] - start: p.start[i] - start + values.size] += w * values
+        rows.append(row)
+        first[i] = start
+    return _pack(steps.pop(), first, rows, np.arange(n))

@@ -18,17 +18,15 @@ from scipy import stats
 
 from proxies.chronology.calibrate import (
     CalibratedDates,
-    CurveRangeError,
     calibrate_calendar,
-    calibrate_radiocarbon,
     stack_calibrated,
 )
 from proxies.chronology.curves import CalibrationCurve
+from proxies.chronology.date_curves import calibrate_radiocarbon_rows, lead210_rows
 from proxies.chronology.model_runs import HYPERPARAMETER_COLUMNS, run_accumulation, run_interpolation
 from proxies.chronology.settings import ChronologySettings
 from proxies.cores.datability import (age_control_problems, event_layer_problems, grid_memory_problems,
                                       machine_memory_bytes)
-from proxies.cores.validation import resolve_curve_name
 from proxies.problems import InputError, Problem
 
 __all__ = ["ChronologyResult", "build_chronology", "calibrate_core_dates", "date_density_table", "date_range_table", "format_ranges",
@@ -117,10 +115,6 @@ def _event_free(depth_scale, depth: np.ndarray) -> np.ndarray:
     return np.asarray(depth_scale.event_free_depth(depth), dtype=float)
 
 
-def _curve_name(cell, settings: ChronologySettings, curves: dict) -> str | None:
-    return resolve_curve_name(cell, settings.default_curve, curves)
-
-
 def _dates_file(core) -> str:
     files = getattr(core, "files", None) or {}
     if "dates" in files:
@@ -129,8 +123,12 @@ def _dates_file(core) -> str:
     return f"{folder}/dates" if folder else f"dates of core {getattr(core, 'id', '?')}"
 
 
-def calibrate_core_dates(core, curves: dict[str, CalibrationCurve], settings: ChronologySettings):
-    """Calibrate every date of a core (and the core top), grouped by curve.
+def calibrate_core_dates(core, curves: dict[str, CalibrationCurve], settings: ChronologySettings,
+                         rng: np.random.Generator | None = None):
+    """Calibrate every date of a core (and the core top, and its 210Pb ages), grouped by curve.
+
+    ``rng`` draws the Monte Carlo errors of the 210Pb ages (needed when the core has a
+    ``lead210`` table).
 
     Returns
     -------
@@ -159,50 +157,22 @@ def calibrate_core_dates(core, curves: dict[str, CalibrationCurve], settings: Ch
                    exclude=False, source_row=np.nan, constraint=True)
         table = pd.concat([pd.DataFrame([top]), table], ignore_index=True)
     table["constraint"] = table["constraint"].astype(bool)
+    if core.lead210 is not None:
+        if rng is None:
+            raise ValueError("a core with a lead210 table needs a random generator for its Monte Carlo errors")
+        table = pd.concat([table, lead210_rows(core, settings, table.columns, rng)], ignore_index=True)
     table["reservoir_offset"] = pd.to_numeric(table["reservoir_offset"]).fillna(0.0)
     table["reservoir_error"] = pd.to_numeric(table["reservoir_error"]).fillna(0.0)
     table["exclude"] = table["exclude"].fillna(False).astype(bool)
     kinds = table["kind"].astype(str).str.lower().to_numpy()
     file = _dates_file(core)
-    problems: list[Problem] = []
     step = settings.calibration_step_yr
     used = [None] * len(table)
-    parts = []
     radiocarbon = np.flatnonzero(kinds == "radiocarbon")
-    groups: dict[str, list[int]] = {}
-    for i in radiocarbon:
-        name = _curve_name(table.at[i, "curve"], settings, curves)
-        row = _row(table, i)
-        if name is None:
-            problems.append(Problem(file, f"date {table.at[i, 'label']!r} needs a calibration curve but none "
-                                          "is given", "add a [curves] entry to the run config, or set "
-                                    "[chronology] default_curve", row=row, column="curve"))
-        elif name not in curves:
-            problems.append(Problem(file, f"curve {name!r} of date {table.at[i, 'label']!r} is not in [curves]",
-                                    f"use one of: {', '.join(sorted(curves)) or '(none)'}", row=row,
-                                    column="curve"))
-        else:
-            groups.setdefault(name, []).append(int(i))
-            used[i] = name
-    for name, rows in groups.items():
-        curve = curves[name].on_grid(step)
-        rows = np.asarray(rows)
-        try:
-            part = calibrate_radiocarbon(
-                table["age"].to_numpy(float)[rows], table["error"].to_numpy(float)[rows], curve,
-                table["reservoir_offset"].to_numpy(float)[rows], table["reservoir_error"].to_numpy(float)[rows],
-                student_t=settings.student_t, error_multiplier_prior=settings.error_multiplier_prior,
-                labels=table["label"].astype(str).to_numpy()[rows])
-        except CurveRangeError as error:
-            for j in error.index:
-                i = rows[j]
-                problems.append(Problem(
-                    file, f"radiocarbon age {table.at[i, 'age']:g} of date {table.at[i, 'label']!r} is outside "
-                          f"curve {name!r} ({curve.c14_range()[0]:g}-{curve.c14_range()[1]:g} 14C yr BP)",
-                    "check the age and its reservoir offset, or use a curve that covers it",
-                    row=_row(table, i), column="age"))
-            continue
-        parts.append((rows, part))
+    parts, used_keys, problems = calibrate_radiocarbon_rows(table, radiocarbon, curves, settings, file,
+                                                            lambda i: _row(table, i))
+    for i, key in used_keys.items():
+        used[i] = key
     calendar = np.flatnonzero(kinds == "calendar")
     if calendar.size:
         parts.append((calendar, calibrate_calendar(table["age"].to_numpy(float)[calendar],
@@ -288,7 +258,9 @@ def build_chronology(core, curves: dict[str, CalibrationCurve], settings: Chrono
     messages: list[str] = []
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
-        table, calibrated = calibrate_core_dates(core, curves, settings)
+        # a core with 210Pb data takes its Monte Carlo generator from the stage's, first
+        lead_rng = np.random.default_rng(rng.integers(2**63)) if core.lead210 is not None else None
+        table, calibrated = calibrate_core_dates(core, curves, settings, lead_rng)
     messages.extend(str(w.message) for w in caught)
     depth_scale = getattr(core, "depth_scale", None)
     table["event_free_depth_cm"] = _event_free(depth_scale, table["depth_cm"].to_numpy(float))

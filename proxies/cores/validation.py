@@ -33,6 +33,7 @@ from proxies.cores.cells import BadCell, cell_to_float, cell_to_text, parse_bool
 from proxies.cores.core_file import (  # noqa: F401 (re-exported names of the core.toml rules)
     ARCHIVES, CORE_KEYS, DEPTH_UNITS, FILE_KEYS, ID_PATTERN, TOP_LEVEL_KEYS, CoreSpec, check_core_mapping, current_year)
 from proxies.cores.model import ERROR_SUFFIX, Section
+from proxies.chronology.curve_cells import BLEND_PREFIX, curve_cell_problem
 from proxies.problems import Problem
 from proxies.settings_spec import did_you_mean
 
@@ -56,7 +57,8 @@ __all__ = [
 DATE_KINDS = ("radiocarbon", "calendar")
 #: columns kept as text in samples and counts (every other column must be numeric)
 TEXT_COLUMNS = frozenset({"label", "sample_id", "sample", "lab_id", "note", "notes", "comment", "comments"})
-RADIOCARBON_MIN_14C_YR = -1000.0
+#: post-bomb ages (F14C up to ~3.5) are accepted; they need a post-bomb curve in [curves]
+RADIOCARBON_MIN_14C_YR = -10000.0
 RADIOCARBON_MAX_14C_YR = 55000.0
 #: oldest accepted calendar age [cal BP] (10 Myr: far beyond any core this program dates)
 CALENDAR_MAX_CAL_BP = 10_000_000.0
@@ -67,6 +69,32 @@ CALENDAR_TOP_SLACK_YR = 5.0
 # ---------------------------------------------------------------------------------------------
 # cells
 # ---------------------------------------------------------------------------------------------
+#: columns the dates table knows (besides depth and thickness in the core's unit)
+DATES_COLUMNS = ("label", "kind", "age", "error", "curve", "reservoir_offset", "reservoir_error", "exclude",
+                 "section")
+
+
+def _misspelt_column(checker, column: str, known: tuple[str, ...], exact_case: bool = False) -> None:
+    """A column that is a known column written differently would be read as something else
+    (an extra text column, a proxy): refuse it with the name to use."""
+    if column in known or column in TEXT_COLUMNS:
+        return
+    lowered = column.lower().replace(" ", "_")
+    near = next((k for k in known if k == lowered), None)
+    if near is None and not exact_case:
+        hint = did_you_mean(column, known)
+        near = hint.split("'")[1] if hint and difflib_ratio(column, hint.split("'")[1]) >= 0.8 else None
+    if near is not None:
+        checker.add(f"column '{column}' looks like '{near}' but is not spelt so: it would not be read as "
+                    f"'{near}'", f"rename the column to '{near}'", row=1, column=column)
+
+
+def difflib_ratio(a: str, b: str) -> float:
+    import difflib
+
+    return difflib.SequenceMatcher(None, a, b).ratio()
+
+
 def _near_column(wanted: str, header: list[str]) -> str | None:
     """A header name that is ``wanted`` written differently (case, blanks, a typo)."""
     for name in header:
@@ -213,6 +241,8 @@ def _numeric_columns_with_layout(
     out: dict[str, Any] = {}
     values: list[str] = []
     for column in checker.table.columns:
+        if column not in (depth_column, thickness_column):
+            _misspelt_column(checker, column, (depth_column, thickness_column, "section"), exact_case=True)
         if column == depth_column:
             out["depth_cm"] = depth_cm
             if section_depth is not None:
@@ -354,6 +384,7 @@ def check_dates(table: pd.DataFrame, file: str, spec: CoreSpec) -> tuple[pd.Data
             checker.add(f"column name '{column}' is reserved here",
                         "rename the column (depth columns follow core.toml depth_unit)", row=1, column=column)
         else:
+            _misspelt_column(checker, column, DATES_COLUMNS + (depth_column, f"thickness_{spec.depth_unit}"))
             out[column] = list(table[column])
     if checker.problems:
         return None, checker.problems
@@ -456,6 +487,10 @@ def check_curve_names(dates: pd.DataFrame, file: str, known: set[str] | dict,
             fix = ("add a calibration curve to [curves]" if not names else
                    "fill in the curve cell, or set [chronology] default_curve")
             problems.append(Problem(file, message, fix, row=int(row), column="curve"))
+        elif curve.lower().startswith(BLEND_PREFIX):
+            found = curve_cell_problem(curve, known)
+            if found is not None:
+                problems.append(Problem(file, found[0], found[1], row=int(row), column="curve"))
         elif curve not in known:
             hint = did_you_mean(curve, names)
             source = "[chronology] default_curve" if cell_to_text(cell) is None else "the curve cell"

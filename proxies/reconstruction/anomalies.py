@@ -16,6 +16,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from proxies.reconstruction.grid import ce_to_cal_bp
 from proxies.reconstruction.settings import WMO_NORMAL_PERIODS
 
 __all__ = ["normal_window_cal_bp", "window_mean_per_member", "window_coverage",
@@ -36,7 +37,7 @@ def normal_window_cal_bp(period: str) -> tuple[float, float]:
     if period not in WMO_NORMAL_PERIODS:
         raise ValueError(f"unknown normal period {period!r}; use one of {sorted(WMO_NORMAL_PERIODS)}")
     first, last = WMO_NORMAL_PERIODS[period]
-    return (1950.0 - (last + 1), 1950.0 - first)
+    return (float(ce_to_cal_bp(last + 1)), float(ce_to_cal_bp(first)))
 
 
 def window_coverage(ages: np.ndarray, window: tuple[float, float]) -> np.ndarray:

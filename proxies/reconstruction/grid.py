@@ -9,6 +9,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from proxies.cores.model import BP_ZERO_CE
+
 __all__ = ["cal_bp_to_ce", "ce_to_cal_bp", "regular_grid", "bin_means", "interpolate_members",
            "bin_means_filled", "fill_gaps", "STANDARD_STEPS_YR", "MAX_GRID_CELLS",
            "median_sample_spacing_yr", "round_to_standard_step", "auto_grid_step_yr"]
@@ -25,12 +27,12 @@ MAX_GRID_CELLS = 5000
 
 def cal_bp_to_ce(age_cal_bp):
     """Calendar year CE of an age in cal BP: ``CE = 1950 - BP`` [yr]."""
-    return 1950.0 - np.asarray(age_cal_bp, dtype=float)
+    return float(BP_ZERO_CE) - np.asarray(age_cal_bp, dtype=float)
 
 
 def ce_to_cal_bp(year_ce):
     """Age in cal BP of a calendar year CE: ``BP = 1950 - CE`` [yr]."""
-    return 1950.0 - np.asarray(year_ce, dtype=float)
+    return float(BP_ZERO_CE) - np.asarray(year_ce, dtype=float)
 
 
 def regular_grid(young_cal_bp: float, old_cal_bp: float, step_yr: float) -> np.ndarray:
