@@ -22,7 +22,7 @@ from pipelines.report.figures_chronology import (NEGLIGIBLE_PROBABILITY, age_dep
                                                  all_outlier_probabilities_negligible,
                                                  deposition_time_figure, hyperparameter_figure,
                                                  outlier_figure)
-from pipelines.report.figures_events import event_figure, event_variables
+from pipelines.report.figures_events import event_figure, event_variables, lead_lag_figure
 from pipelines.report.figures_reconstruction import reconstruction_figure, stack_figure
 from pipelines.report.rundata import CoreData, RunData, downcore_version, read_run, reconstruction_series
 from pipelines.runfolder import atomic_write_text
@@ -272,6 +272,31 @@ def _stack_section(run: RunData, figs: _Figures) -> str:
     return H.section("composite", "Regional composite", body) if body else ""
 
 
+def _archive_events_section(run: RunData, figs: _Figures) -> str:
+    """Events of the whole run with their q-values (which survive archive-wide FDR control)
+    and the lead/lag figure."""
+    from pipelines.outputs_schema import table as output_table
+
+    tables = {}
+    for key in ("archive_events", "lead_lag"):
+        path = run.folder / output_table(key).path
+        tables[key] = pd.read_parquet(path) if path.is_file() else None
+    events, lead_lag = tables["archive_events"], tables["lead_lag"]
+    if events is None or not len(events):
+        return ""
+    survive = int(events["survives_fdr"].astype(bool).sum())
+    body = H.note_html(f"{survive} of {len(events)} events survive false discovery rate control "
+                       "(Benjamini-Hochberg q-value at most alpha, over all cores and variables); "
+                       "events significant on their own but not after it are likely false among "
+                       "this many series.")
+    body += H.table_html(events, ["core_id", "event_id", "kind", "direction", "onset_median", "onset_q025",
+                                  "onset_q975", "p_value", "q_value", "significant", "survives_fdr", "note"])
+    body += figs.add(lambda: lead_lag_figure(lead_lag), "lead_lag", "Lead/lag across cores",
+                     "For each event found in several cores: the 95 % range and median of the onset "
+                     "difference over all member pairs (age ensembles taken as independent).")
+    return H.section("archive-events", "Events across the archive", body)
+
+
 def write_run_report(run_dir: str | pathlib.Path, png: bool = False) -> pathlib.Path:
     """Write ``report.html`` and ``figures/*.svg`` (and ``*.png``) for a run folder.
 
@@ -292,11 +317,14 @@ def write_run_report(run_dir: str | pathlib.Path, png: bool = False) -> pathlib.
     figs = _Figures(run.folder, png=png)
     with style.report_style():
         stack = _stack_section(run, figs)
+        archive_events = _archive_events_section(run, figs)
         cores = [_core_section(core, run, figs) for core in run.cores]
     figs.remove_stale()
     toc = [("summary", "Archive summary")]
     if stack:
         toc.append(("composite", "Regional composite"))
+    if archive_events:
+        toc.append(("archive-events", "Events across the archive"))
     toc += [(f"core-{H.anchor(c.core_id)}", f"Core {c.core_id}") for c in run.cores]
     version = (run.manifest.get("versions") or {}).get("downcore") or downcore_version()
     title = f"downcore run report: {run.folder.name}"
@@ -304,5 +332,6 @@ def write_run_report(run_dir: str | pathlib.Path, png: bool = False) -> pathlib.
                 "bands are ensemble quantiles")
     footer = (f"Written by downcore {version} from the tables of this run folder. "
               f"{figs.count} figures, also saved as {'PNG and ' if png else ''}SVG in figures/.")
-    text = H.page(title, subtitle, toc, _summary_section(run) + stack + "".join(cores), footer)
+    text = H.page(title, subtitle, toc, _summary_section(run) + stack + archive_events + "".join(cores),
+                  footer)
     return atomic_write_text(run.folder / REPORT_NAME, text)
