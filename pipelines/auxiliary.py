@@ -151,3 +151,22 @@ def read_instrumental(source, spec) -> InstrumentalSeries:
         raise InputError(problems)
     return InstrumentalSeries(spec.name, spec.variable or spec.value_column, spec.units, years,
                               values)
+
+
+def calibration_reference_problems(config) -> list[Problem]:
+    """Every ``[calibration.<column>]`` that names a training set or instrumental series
+    must name one that is configured (the sections and their files are checked by
+    :mod:`pipelines.run_checks` and the settings classes)."""
+    where = str(config.path)
+    problems: list[Problem] = []
+    for column, table in (config.sections.get("calibration") or {}).items():
+        if not isinstance(table, dict):
+            continue
+        for key, section in (("training", "training"), ("series", "instrumental")):
+            named = table.get(key)
+            if isinstance(named, str) and named not in (config.sections.get(section) or {}):
+                problems.append(Problem(f"{where} [calibration.{column}]",
+                                        f"{key} '{named}' names no [{section}.{named}] section",
+                                        f"add [{section}.{named}] or correct the name",
+                                        column=key))
+    return problems

@@ -40,6 +40,8 @@ TOP_LEVEL = ("run", "curves") + RAW_SECTIONS
 #: stage -> "module:SettingsClass", imported only when needed
 STAGE_SETTINGS: dict[str, str] = {
     "chronology": "proxies.chronology:ChronologySettings",
+    "training": "proxies.calibration:TrainingSettings",
+    "instrumental": "proxies.calibration:InstrumentalSettings",
     "calibration": "proxies.calibration:CalibrationSettings",
     "reconstruction": "proxies.reconstruction:ReconstructionSettings",
     "events": "proxies.events:EventSettings",
@@ -259,6 +261,9 @@ def check_run_config_by_core(
             stage_settings(config, stage)
         except InputError as error:
             problems.extend(error.problems)
+    from pipelines.auxiliary import calibration_reference_problems
+
+    problems.extend(calibration_reference_problems(config))
     ids: dict[str, str] = {}
     for folder in config.core_folders:
         shown = _display(folder)
@@ -266,12 +271,14 @@ def check_run_config_by_core(
                                            default_curve=default_curve if isinstance(default_curve, str) else None,
                                            notes=notes)
         core_id = core.id if core is not None else _declared_id(folder)
-        if core_id is not None and core_id in ids:
+        key = core_id.lower() if core_id is not None else None  # folders differing in case only collide
+        if key is not None and key in ids:
             core_problems.append(Problem(os.path.join(shown, "core.toml"),
-                                         f"core id {core_id!r} is also used by {ids[core_id]}",
-                                         "give every core its own id", column="core.id"))
-        elif core_id is not None:
-            ids[core_id] = shown
+                                         f"core id {core_id!r} is also used by {ids[key]}"
+                                         " (ids differing only in upper/lower case share a folder on "
+                                         "Windows and macOS)", "give every core its own id", column="core.id"))
+        elif key is not None:
+            ids[key] = shown
         grouped[shown] = (core, core_problems)
     from pipelines.run_checks import run_time_checks
 

@@ -27,6 +27,7 @@ from proxies.cores.validation import (
     check_dates,
     check_samples,
 )
+from proxies.cores.lead210 import check_lead210
 from proxies.problems import InputError, Problem
 
 from pipelines.tables import read_table
@@ -122,7 +123,8 @@ def inspect_core(
     if spec is None:
         return None, problems
     tables = {}
-    for role, checker in (("samples", check_samples), ("dates", check_dates), ("counts", check_counts)):
+    for role, checker in (("samples", check_samples), ("dates", check_dates), ("counts", check_counts),
+                          ("lead210", check_lead210)):
         if role not in spec.files:
             continue
         display = _display(folder, spec.files[role])
@@ -170,6 +172,7 @@ def _build_core(spec: CoreSpec, tables: dict, folder: str) -> Core:
         folder=folder,
         files=files,
         top_intact=spec.top_intact,
+        lead210=tables.get("lead210"),
     )
 
 

@@ -2,7 +2,9 @@
 
 Three modes: a live ``rich`` display on a terminal, one line per finished core when the
 output is not a terminal (logs, CI), and nothing at all in quiet mode (scripts). The archive
-flow calls :meth:`started`, :meth:`stage` and :meth:`finished` from its driver thread.
+flow calls :meth:`started`, :meth:`stage` and :meth:`finished` from its driver thread; the
+run calls :meth:`phase` for the steps around it (waiting for the Prefect server, writing the
+report), shown as a spinner with the elapsed time on a terminal and as one line otherwise.
 """
 
 from __future__ import annotations
@@ -37,10 +39,33 @@ class RunProgress:
         self.current: dict[str, str] = {}
         self._progress: Any = None
         self._bar: Any = None
+        self._status: Any = None
+
+    def phase(self, text: str) -> None:
+        """Say what the run is doing outside the flow (e.g. ``"writing the report"``)."""
+        if self.quiet:
+            return
+        self._end_phase()
+        if self.live:
+            from rich.console import Console
+            from rich.progress import Progress, SpinnerColumn, TextColumn, TimeElapsedColumn
+
+            self._status = Progress(SpinnerColumn(), TextColumn(text), TimeElapsedColumn(),
+                                    console=Console(file=self.stream), transient=False)
+            self._status.add_task(text, total=None)
+            self._status.start()
+        else:
+            print(f"downcore: {text} ...", file=self.stream, flush=True)
+
+    def _end_phase(self) -> None:
+        if self._status is not None:
+            self._status.stop()
+            self._status = None
 
     # -- observer interface used by the archive flow -----------------------------------------
     def started(self, total: int) -> None:
         self.total, self.done, self.failed = total, 0, 0
+        self._end_phase()
         if self.live:
             from rich.console import Console
             from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
@@ -80,6 +105,7 @@ class RunProgress:
             self._progress.update(self._bar, advance=advance, description=self.describe() + extra)
 
     def close(self) -> None:
+        self._end_phase()
         if self._progress is not None:
             self._progress.stop()
             self._progress = None

@@ -18,24 +18,45 @@ __all__ = ["SECTIONS", "key_table", "refresh_readme"]
 
 def _sections() -> dict:
     from pipelines.config import RunSettings
+    from proxies.calibration.settings import METHOD_SETTINGS, ProxyCalibration
+    from proxies.calibration.training_settings import InstrumentalSpec, TrainingSpec
     from proxies.chronology.settings import ChronologySettings
     from proxies.events.settings import EventSettings
     from proxies.reconstruction.settings import ReconstructionSettings
-    return {"run": RunSettings, "chronology": ChronologySettings, "reconstruction": ReconstructionSettings,
-            "events": EventSettings}
+    return {"run": RunSettings, "chronology": ChronologySettings,
+            "reconstruction": ReconstructionSettings, "events": EventSettings,
+            "training": TrainingSpec, "instrumental": InstrumentalSpec,
+            "calibration": ProxyCalibration,
+            **{f"calibration.{name}": cls for name, cls in METHOD_SETTINGS.items()}}
 
 
-#: section name -> settings class (import on demand; see :func:`_sections`)
-SECTIONS = ("run", "chronology", "reconstruction", "events")
+#: section name -> settings class (import on demand; see :func:`_sections`); a
+#: ``calibration.<method>`` table lists the keys of that method beyond the shared ones
+SECTIONS = ("run", "chronology", "reconstruction", "events", "training", "instrumental",
+            "calibration", "calibration.equation", "calibration.linear",
+            "calibration.exponential", "calibration.overlap", "calibration.transfer",
+            "calibration.stated")
+#: how a section is named in its table's header
+_TITLES = {"training": "[training.<name>]", "instrumental": "[instrumental.<name>]",
+           "calibration": "[calibration.<proxy column>]"}
 
 _BLOCK = re.compile(r"(<!-- keys:(?P<name>[\w.]+) -->\n)(?P<body>.*?)(<!-- /keys -->)", re.S)
 
 
 def key_table(section: str) -> str:
     """The Markdown table of one section's keys: key, default, allowed values, meaning."""
-    cls = _sections()[section]
-    lines = [f"| `[{section}]` key | default | allowed | meaning |", "|---|---|---|---|"]
+    classes = _sections()
+    cls = classes[section]
+    title = _TITLES.get(section, f"[{section}]")
+    shared: set[str] = set()
+    if section.startswith("calibration."):
+        method = section.split(".", 1)[1]
+        title = f'method = "{method}"'
+        shared = {row["key"] for row in settings_rows(classes["calibration"])}
+    lines = [f"| `{title}` key | default | allowed | meaning |", "|---|---|---|---|"]
     for row in settings_rows(cls):
+        if row["key"] in shared:
+            continue
         allowed = row["allowed"].replace("|", "\\|")
         lines.append(f"| `{row['key']}` | `{row['default']}` | {allowed} | {row['doc']} |")
     return "\n".join(lines) + "\n"

@@ -65,25 +65,39 @@ def _choose(workbook, name: str, sheet: str | None):
     return visible[0], "the first visible sheet"
 
 
+def _filled_rows(worksheet):
+    """(row number, {column: value}) of the rows stored in the sheet, blank cells left out.
+
+    Reads the sheet's XML rows as stored (openpyxl's row parser), so neither the stored
+    dimension nor the gaps between stored rows cost anything.
+    """
+    from openpyxl.worksheet._reader import WorkSheetParser
+
+    book = worksheet.parent
+    with worksheet._get_source() as source:
+        parser = WorkSheetParser(source, worksheet._shared_strings, data_only=book.data_only, epoch=book.epoch,
+                                 date_formats=book._date_formats, timedelta_formats=book._timedelta_formats)
+        for number, cells in parser.parse():
+            values = {cell["column"]: cell["value"] for cell in cells
+                      if cell["value"] is not None and not (isinstance(cell["value"], str) and not cell["value"].strip())}
+            if values:
+                yield number, values
+
+
 def _stream(worksheet, name: str, where: str):
     """(row number, cells) of the filled rows, cells up to the last filled one."""
-    worksheet.reset_dimensions()  # never trust the stored dimension
     count = 0
-    for number, cells in enumerate(worksheet.iter_rows(values_only=True), start=1):
-        cells = list(cells)
-        while cells and (cells[-1] is None or (isinstance(cells[-1], str) and not cells[-1].strip())):
-            cells.pop()
-        if not cells:
-            continue
+    for number, values in _filled_rows(worksheet):
         count += 1
         if count > MAX_ROWS:
             raise InputError(Problem(name, f"{where} has more than {MAX_ROWS} filled rows",
                                      "keep one table of samples per sheet"))
-        if len(cells) > MAX_COLUMNS:
-            raise InputError(Problem(name, f"{where} has a cell in column {len(cells)}, far right of any "
+        width = max(values)
+        if width > MAX_COLUMNS:
+            raise InputError(Problem(name, f"{where} has a cell in column {width}, far right of any "
                                      "table", "delete the stray cell (select the columns right of the "
                                      "table and delete them)", row=number))
-        yield number, cells
+        yield number, [values.get(column) for column in range(1, width + 1)]
 
 
 def _missing_formula_values(path: Path, name: str, title: str, rows: dict[int, list]) -> list[Problem]:

@@ -53,4 +53,4 @@ def synthetic_core(dates: pd.DataFrame, length_cm: float, collected_ce=2018, hia
     samples = pd.DataFrame({"depth_cm": np.arange(0.0, length_cm + 0.5, 5.0)})
     return SimpleNamespace(id="SYN", folder="", dates=dates, samples=samples, hiatuses_cm=tuple(hiatuses),
                            event_layers=(), depth_scale=_FlatScale(hiatuses), top_age_cal_bp=1950.0 - collected_ce,
-                           top_age_error=2.0, collected_ce=collected_ce, top_intact=None)
+                           top_age_error=2.0, collected_ce=collected_ce, top_intact=None, lead210=None)

@@ -204,6 +204,13 @@ def folder_for_file(project: Path, core: Path) -> None:
     (core / "samples.csv" / "README.txt").write_text("a folder, not the table")
 
 
+def second_core_with_id(core_id: str):
+    def change(project: Path, core: Path) -> None:
+        other = shutil.copytree(core, project / "cores" / "OTHER")
+        (other / "core.toml").write_text((other / "core.toml").read_text().replace('"GOOD-1"', f'"{core_id}"'))
+    return change
+
+
 def curve_file(text: str):
     def change(project: Path, core: Path) -> None:
         (project / "curves" / "atm.14c").write_text(text)
@@ -251,7 +258,7 @@ CASES += [
     Case("reservoir offset pushes beyond the curve", both(cell(D, 7, "age", "26900"),
                                                         cell(D, 7, "reservoir_offset", "-900")),
          D, 7, "age", "outside curve"),
-    Case("radiocarbon age above the hard limit", cell(D, 7, "age", "60000"), D, 7, "age", "outside -1000 to 55000"),
+    Case("radiocarbon age above the hard limit", cell(D, 7, "age", "60000"), D, 7, "age", "14C yr BP is outside"),
     Case("duplicate label", cell(D, 4, "label", "LX-1001"), D, 4, "label", "also on row 3"),
     Case("missing label", cell(D, 4, "label", ""), D, 4, "label", "label is missing"),
     Case("unknown section", cell(S, 3, "section", "C"), S, 3, "section", "unknown section"),
@@ -263,6 +270,14 @@ CASES += [
     # headers
     Case("capitalised depth column", _replace(S, "depth_cm", "Depth_cm"), S, 1, "depth_cm", "rename it to 'depth_cm'"),
     Case("depth column with a blank", _replace(S, "depth_cm", "depth cm"), S, 1, "depth_cm", "rename it"),
+    Case("misspelt reservoir_offset column", _replace(D, "reservoir_offset", "reservoir_ofset"), D, 1,
+         "reservoir_ofset", "rename the column to 'reservoir_offset'"),
+    Case("capitalised Exclude column", _replace(D, ",exclude", ",Exclude"), D, 1, "Exclude", "'exclude'"),
+    Case("capitalised thickness column in samples", _replace(S, "thickness_cm", "Thickness_cm"), S, 1,
+         "Thickness_cm", "rename the column to 'thickness_cm'"),
+    Case("extra text column in dates is kept", lambda p, c: (c / D).write_text("\n".join(line + (",lab_note" if i == 0 else ",x")
+                                                   for i, line in enumerate((c / D).read_text().splitlines())) + "\n"),
+         accept=lambda c: "lab_note" in c.dates.columns),
     Case("missing error column", _replace(D, ",error,", ",err,"), D, 1, "error", "missing"),
     Case("duplicate column", _replace(S, "d18o_permil", "uk37"), S, 1, "uk37", "appears twice"),
     Case("empty column name", _replace(S, ",uk37_error,", ",,"), S, 1, None, "no name"),
@@ -357,6 +372,8 @@ CASES += [
     Case("id a Windows device name", toml('id = "GOOD-1"', 'id = "Con"'), "core.toml", None, "core.id", "Windows"),
     Case("id a run folder entry", toml('id = "GOOD-1"', 'id = "figures"'), "core.toml", None, "core.id",
          "run folder"),
+    Case("two cores with one id", second_core_with_id("GOOD-1"), "core.toml", None, "core.id", "also used by"),
+    Case("ids differing in case only", second_core_with_id("good-1"), "core.toml", None, "core.id", "upper/lower"),
     Case("id not text", toml('id = "GOOD-1"', "id = 12"), "core.toml", None, "core.id", "must be text"),
     Case("archive capitalised", toml('archive = "lake"', 'archive = "Lake"'), "core.toml", None, "core.archive",
          "unknown archive"),

@@ -4,6 +4,7 @@ its settings, and the auxiliary readers."""
 from __future__ import annotations
 
 from dataclasses import dataclass
+from pathlib import Path
 
 import numpy as np
 import pandas as pd
@@ -14,9 +15,11 @@ from proxies.calibration import (CalibrationSettings, InstrumentalSeries, Traini
                                  TrainingSpec, calibrate_core, fit_transfer_function)
 from proxies.calibration.equations import mgca_from_temperature_anand2003
 from proxies.calibration.settings import InstrumentalSpec
+from proxies.cores.model import NON_PROXY_COLUMNS, EventLayer
 from proxies.problems import InputError
 
 M = 64
+DEMO_CORE = Path(__file__).resolve().parents[1] / "demo_cores" / "cores" / "TEL-07"
 
 
 @dataclass
@@ -27,6 +30,12 @@ class StandInCore:
     samples: pd.DataFrame
     counts: pd.DataFrame | None = None
     collected_ce: int = 2010
+    event_layers: tuple = ()
+
+    @property
+    def taxa(self):
+        return () if self.counts is None else tuple(
+            c for c in self.counts.columns if c not in NON_PROXY_COLUMNS)
 
 
 @dataclass
@@ -107,25 +116,29 @@ def _overlap_core(rng, skill=True, n=60):
 
 
 def test_overlap_uses_age_path_of_each_member():
-    """Member m uses age path m: members whose ages put the core before the instrumental
-    period (offset +500 yr) have no overlap and give NaN; the others recover the climate."""
+    """Member m uses age path m and no member is dropped: with age offsets of 0-120 yr every
+    member keeps its own (partial) overlap and recovers the climate; members whose ages put
+    the whole core before the instrumental period (+500 yr) cannot be fitted, and the record
+    is refused with their number rather than silently calibrated on the others."""
     rng = np.random.default_rng(7)
     core, series, true = _overlap_core(rng)
-    offsets = np.zeros(M)
-    offsets[::4] = 500.0
-    chron = StandInChronology(offsets)
+    chron = StandInChronology(np.linspace(0.0, 120.0, M))
     cfg = settings(bsi={"method": "overlap", "series": "station"})
     result = calibrate_core(core, chron, cfg, {}, {"station": series}, M, rng)
     (record,) = result.records
-    assert record.values.shape == (60, M)
-    assert np.all(np.isnan(record.values[:, ::4]))
-    good = np.delete(record.values, np.s_[::4], axis=1)
-    assert np.all(np.isfinite(good))
-    assert np.sqrt(np.mean((np.median(good, axis=1) - true) ** 2)) < 0.4
+    assert record.values.shape == (60, M) and np.all(np.isfinite(record.values))
+    aligned = record.values[:, 0]   # member 0 has the true ages
+    assert np.sqrt(np.mean((aligned - true) ** 2)) < 0.6
     skill = result.skill.set_index("period")
-    assert skill.loc["full", "n_members"] == M - M // 4
-    assert (skill.loc[["verify_early", "verify_late"], "re"] > 0).all()
+    assert skill.loc["full", "n_members"] == M and skill.loc["full", "n_members_failed"] == 0
+    assert (skill.loc[["verify_early", "verify_late"], ["re", "ce"]] > 0).all(axis=None)
     assert set(skill["status"]) == {"ok"}
+    offsets = np.zeros(M)
+    offsets[::4] = 500.0
+    refused = calibrate_core(core, StandInChronology(offsets), cfg, {}, {"station": series}, M,
+                             rng)
+    assert refused.records == [] and set(refused.skill["status"]) == {"refused"}
+    assert any(f"{M // 4} of {M} age members" in w for w in refused.warnings)
 
 
 def test_overlap_without_skill_is_refused_or_warned():
@@ -226,11 +239,10 @@ def test_settings_errors_name_file_and_key():
         settings(uk37={"method": "equation", "equation": "nope", "colour": 1},
                  counts={"method": "equation", "equation": "uk37_mueller1998"},
                  bsi={"method": "overlap"}, d18o={"method": "transfer", "training": "x"})
-    text = str(err.value)
-    for expected in ("run.toml", "calibration.uk37.equation", "calibration.uk37.colour",
-                     "calibration.counts.method", "calibration.bsi.series",
-                     "calibration.d18o.method"):
-        assert expected in text
+    located = {(p.file, p.column) for p in err.value.problems}
+    for section, key in (("uk37", "equation"), ("uk37", "colour"), ("counts", "method"),
+                         ("bsi", "series"), ("d18o", "method")):
+        assert (f"run.toml [calibration.{section}]", key) in located
     with pytest.raises(InputError, match="hblock_km"):
         TrainingSpec.from_mapping("a", {"file": "f", "target": "t", "validation": "hblock"},
                                   "run.toml")
@@ -289,3 +301,39 @@ def test_auxiliary_readers(tmp_path):
     series.write_text("year_ce,t\n1900,1.0\n1900.5,2.0\n")
     with pytest.raises(InputError, match="row 3"):
         read_instrumental(series, ispec)
+
+
+# --------------------------------------------------------------------------- event layers
+def test_samples_inside_event_layers_are_left_out_unless_kept():
+    """A sample inside an event layer (an instantaneous deposit) is not calibrated by
+    default; event_layer_samples = "keep" uses it."""
+    samples = pd.DataFrame({"depth_cm": [1.0, 5.0, 9.0], "uk37": [0.4, 0.5, 0.6],
+                            "source_row": [2, 3, 4]})
+    core = StandInCore("EV-1", samples, event_layers=(EventLayer(4.0, 6.0, "turbidite"),))
+    table = {"method": "equation", "equation": "uk37_mueller1998"}
+    left_out = calibrate_core(core, None, settings(uk37=table), {}, {}, 8,
+                              np.random.default_rng(0))
+    assert list(left_out.samples["depth_cm"]) == [1.0, 9.0]
+    assert any("inside event layers" in w for w in left_out.warnings)
+    kept = calibrate_core(core, None, settings(uk37={**table, "event_layer_samples": "keep"}),
+                          {}, {}, 8, np.random.default_rng(0))
+    assert list(kept.samples["depth_cm"]) == [1.0, 5.0, 9.0]
+
+
+def test_check_warns_about_samples_in_event_layers(tmp_path):
+    """downcore check names file, row and column of a sample inside an event layer, as a
+    warning (the exit code stays 0)."""
+    import shutil
+
+    from click.testing import CliRunner
+
+    from pipelines.cli.check import command
+    folder = tmp_path / "TEL-07"
+    shutil.copytree(DEMO_CORE, folder)
+    first = pd.read_excel(folder / "samples.xlsx")["depth_cm"].iloc[0]
+    with open(folder / "core.toml", "a", encoding="utf-8") as handle:
+        handle.write(f"\n[[event_layers]]\ntop = {first - 0.1}\nbottom = {first + 0.1}\n"
+                     'kind = "turbidite"\n')
+    result = CliRunner().invoke(command, [str(folder)])
+    assert result.exit_code == 0, result.output
+    assert "warning: samples.xlsx, row 2, column 'depth_cm'" in result.output

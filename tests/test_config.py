@@ -50,7 +50,7 @@ def test_good_config_resolves_folders_curves_and_sections(tmp_path):
     assert config.sections["events"] == {}
     assert config.resolve("x.csv") == (tmp_path / "x.csv").resolve()
     # the training section names no target and a missing file: check reads it as the run does
-    assert {p.column or Path(p.file).name for p in check_run_config(path)} <= {"training.modern.target", "x.csv"}
+    assert {p.column or Path(p.file).name for p in check_run_config(path)} <= {"target", "x.csv"}
     assert check_run_config(path)
 
 
@@ -142,3 +142,19 @@ def test_stage_settings_resolves_lazily_and_passes_where(tmp_path, monkeypatch):
     path.write_text(path.read_text().replace("window = 3", "bad = 1"))
     problems = check_run_config(path)
     assert [(p.column, p.file) for p in problems] == [("bad", f"{path.resolve()} [events]")]
+
+
+def test_check_reads_training_and_instrumental_sections_and_files(tmp_path):
+    """check validates [training.*], [instrumental.*] and their files with the declared keys,
+    and a calibration that names a missing series."""
+    extra = ("[training.modern]\nfile = 'lakes.csv'\ntarget = 'temp'\ncomponets = 2\n"
+             "[instrumental.station]\nfile = 'station.csv'\nvalue_column = 'air'\n"
+             "[calibration.bsi]\nmethod = 'overlap'\nseries = 'stations'\n")
+    path = make_project(tmp_path, extra=extra)
+    (tmp_path / "station.csv").write_text("year_ce,air\n1900,1.0\n1901,warm\n")
+    problems = check_run_config(path)
+    located = {(p.file.rsplit("/", 1)[-1], p.row, p.column) for p in problems}
+    assert ("run.toml [training.modern]", None, "componets") in located
+    assert ("station.csv", 3, "air") in located
+    assert ("run.toml [calibration.bsi]", None, "series") in located
+    assert any("did you mean 'components'" in p.fix for p in problems)

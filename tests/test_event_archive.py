@@ -82,3 +82,39 @@ def test_lead_lag_table_pairs_one_event_across_cores():
 def test_lead_lag_settings_are_declared():
     s = EventSettings.from_mapping({"lead_lag_window_yr": 500, "lead_lag_group": ["sst", "air_temperature"]})
     assert s.lead_lag_window_yr == 500 and s.lead_lag_group == ("sst", "air_temperature")
+
+
+def test_lead_lag_figure_draws_one_lane_per_core_pair():
+    from pipelines.report.figures_events import lead_lag_figure
+
+    table = pd.DataFrame({"core_a": ["A", "A"], "core_b": ["B", "C"], "variable": "t", "kind": "shift",
+                          "lag_median_yr": [200.0, -50.0], "lag_q025_yr": [50.0, -250.0],
+                          "lag_q975_yr": [350.0, 150.0], "probability_a_leads": [0.99, 0.3]})
+    fig = lead_lag_figure(table)
+    ax = fig.axes[0]
+    assert len(ax.patches) == 2 and ax.patches[0].get_x() == 50.0 and ax.patches[0].get_width() == 300.0
+    assert "P(a leads) = 0.99" in ax.get_yticklabels()[0].get_text()
+    assert lead_lag_figure(table.iloc[0:0]) is None
+
+
+def test_report_shows_which_events_survive_fdr(tmp_path):
+    import sys
+    from pathlib import Path
+
+    sys.path.insert(0, str(Path(__file__).parent))
+    from run_folder_factory import make_run_folder
+
+    from pipelines.report import write_run_report
+
+    run = tmp_path / "run"
+    make_run_folder(run)
+    archive_event_table({"A": _events("A", [0.001, 0.2]), "B": _events("B", [0.04])}, 0.05).to_parquet(
+        run / "archive_events.parquet")
+    pd.DataFrame({"core_a": ["A"], "event_a": ["t-E01"], "core_b": ["B"], "event_b": ["t-E01"], "variable": ["t"],
+                  "kind": ["shift"], "direction": ["positive"], "lag_median_yr": [120.0], "lag_q025_yr": [10.0],
+                  "lag_q975_yr": [260.0], "probability_a_leads": [0.98], "n_members_a": [40],
+                  "n_members_b": [40]}).to_parquet(run / "lead_lag.parquet")
+    text = write_run_report(run).read_text(encoding="utf-8")
+    assert "Events across the archive" in text
+    assert "1 of 3 events survive false discovery rate control" in text  # B: p 0.04, q 0.06
+    assert (run / "figures" / "lead_lag.svg").is_file()

@@ -24,7 +24,7 @@ CORE_FILES = {"chronology.parquet", "age_ensemble.parquet", "dates.parquet", "da
               "date_densities.parquet", "hyperparameters.parquet", "calibration.parquet",
               "calibrated_samples.parquet", "calibration_diagnostics.parquet",
               "reconstruction.parquet", "reconstruction_ensemble.parquet", "events.parquet",
-              "event_probability.parquet", "event_onsets.parquet", "log.txt"}
+              "event_probability.parquet", "event_onsets.parquet", "samples_dated.parquet", "log.txt"}
 
 
 def _parquet_bytes(run: pathlib.Path) -> dict[str, bytes]:
@@ -140,6 +140,9 @@ def test_minimal_config_runs_with_defaults_and_notes_skipped_stages(tmp_path):
     assert row["status"] == "dated" and row["stage_reached"] == "calibration"
     assert "reconstruction skipped" in row["notes"]
     assert (outcome.run_dir / "SYN-000" / "age_ensemble.parquet").is_file()
+    # nothing calibrated, yet every sample has its ages and raw proxy in the per-sample table
+    samples = read_parquet(outcome.run_dir / "SYN-000" / "samples_dated.parquet")
+    assert len(samples) == 12 and samples["age_median_cal_bp"].notna().all() and samples["uk37"].notna().all()
     ensemble = read_parquet(outcome.run_dir / "SYN-000" / "age_ensemble.parquet")
     assert list(ensemble.columns[:3]) == ["depth_cm", "m0000", "m0001"] and ensemble.shape[1] == 31
 
@@ -165,9 +168,10 @@ def test_archive_of_fifty_cores_with_three_broken(tmp_path):
     outcome = _run(config, tmp_path / "run", tmp_path / "cache")
     assert len(outcome.summary) == 50
     assert sorted(outcome.failed) == broken_ids(50, 3)
-    assert (outcome.summary["status"] == "ok").sum() == 47
+    # no [calibration] section: the good cores are dated, not reconstructed
+    assert (outcome.summary["status"] == "dated").sum() == 47
     assert all((outcome.run_dir / cid / "chronology.parquet").is_file()
-               for cid in outcome.summary.loc[outcome.summary["status"] == "ok", "core_id"])
+               for cid in outcome.summary.loc[outcome.summary["status"] == "dated", "core_id"])
 
 
 def test_disk_full_is_a_clear_error_and_leaves_no_result(tmp_path, monkeypatch):

@@ -19,6 +19,7 @@ from pipelines.report.figures_calibration import analogue_figure, cv_statistics
 from pipelines.report.figures_chronology import (OUTLIER_LINE, deposition_time_figure,
                                                  age_depth_figure, outlier_figure)
 from pipelines.report.figures_events import event_figure
+from pipelines.report.style import without_embedded_pictures
 from pipelines.report.figures_reconstruction import band_pairs, reconstruction_figure
 from pipelines.report.rundata import _warning_list, read_run, reconstruction_series
 from pipelines.runfolder import atomic_write_parquet
@@ -47,12 +48,14 @@ def test_report_has_figures_and_no_outside_reference(report_text):
     the figure files."""
     assert report_text.count('<figure class="plot"') >= 4
     assert report_text.count("<svg") == report_text.count('<figure class="plot"')
-    lowered = report_text.lower()
-    assert "http" not in lowered and "//" not in report_text
+    text = without_embedded_pictures(report_text)
+    lowered = text.lower()
+    assert "http" not in lowered and "//" not in text
     assert " src=" not in lowered and "url(" not in re.sub(r"url\(#[^)]+\)", "", lowered)
     assert "<script" not in lowered and "<link" not in lowered
-    for href in re.findall(r'href="([^"]*)"', report_text):
-        assert href.startswith("#") or re.fullmatch(r"figures/[\w.-]+\.(png|svg)", href), href
+    for href in re.findall(r'href="([^"]*)"', text):
+        assert (href.startswith("#") or href == "data:image/png;base64,"
+                or re.fullmatch(r"figures/[\w.-]+\.(png|svg)", href)), href
 
 
 def test_report_ids_are_unique_and_internal_links_resolve(report_text):
@@ -72,18 +75,29 @@ def test_summary_lists_every_core_and_the_failure_reason(report_text):
     assert "failed" in report_text and "No results were written for this core." in report_text
 
 
-def test_figures_saved_as_png_and_svg(run_dir, report_text):
-    """Every linked figure exists as a PNG (signature) and a well-formed SVG with a viewBox."""
+def test_figures_saved_as_svg_and_png_on_request(run_dir, report_text, tmp_path):
+    """Every linked figure exists as a well-formed SVG with a viewBox, drawn once (no PNG by
+    default); with ``png=True`` every figure also has a PNG copy (signature checked)."""
     links = re.findall(r'href="(figures/[^"]+)"', report_text)
-    assert links and len(links) % 2 == 0
+    assert links and all(link.endswith(".svg") for link in links)
+    assert not list((run_dir / "figures").glob("*.png"))
     for link in links:
-        path = run_dir / link
-        assert path.is_file(), link
-        if link.endswith(".png"):
-            assert path.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
-        else:
-            root = ET.fromstring(path.read_bytes())
-            assert root.tag.endswith("svg") and root.get("viewBox")
+        root = ET.fromstring((run_dir / link).read_bytes())
+        assert root.tag.endswith("svg") and root.get("viewBox")
+    copy = make_run_folder(tmp_path / "run-png")
+    text = write_run_report(copy, png=True).read_text(encoding="utf-8")
+    pngs = re.findall(r'href="(figures/[^"]+\.png)"', text)
+    assert len(pngs) == len(links)
+    for link in pngs:
+        assert (copy / link).read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+
+
+def test_dense_ensemble_lines_are_rasterised_inside_the_svg(run_dir, report_text):
+    """The age-depth figure's ensemble members are one embedded picture, not one vector path
+    per member, and text stays text (the figures stay light)."""
+    svg = next((run_dir / "figures").glob("*_age_depth.svg")).read_text(encoding="utf-8")
+    assert "<image" in svg and "data:image/png;base64" in svg
+    assert "<text" in svg
 
 
 def test_rerun_is_byte_identical(run_dir, report_text):
@@ -297,3 +311,41 @@ def test_a_core_shows_only_the_training_sets_its_calibration_used():
         "calibration": pd.DataFrame({"proxy": ["counts"], "method": ["transfer"], "detail": ["midges"]})})
     assert training_sets_of(marine, training) == []
     assert [t.name for t in training_sets_of(lake, training)] == ["midges"]
+
+
+# --- printed numbers and tables (what a lab asked for) --------------------------------------
+
+def test_ranges_probabilities_and_headers_print_as_a_lab_reads_them():
+    """Negative ranges with true minus signs and "to"; tiny probabilities as "< 0.001";
+    unit endings of column names as units in headers."""
+    from pipelines.report import html as H
+
+    assert H.range_text(-79.2, -58.6) == "\u221279 to \u221259"
+    assert H.range_text(5048, 5201) == "5048 to 5201"
+    assert H.probability_text(3e-7) == "< 0.001" and H.probability_text(0.004) == "0.004"
+    assert H.probability_text(0.42) == "0.42" and H.probability_text(float("nan")) == "n/a"
+    assert H.header_with_units("depth_cm") == "depth [cm]"
+    assert H.header_with_units("deposition_time_yr_cm") == "deposition time [yr/cm]"
+    assert H.header_with_units("onset_median_cal_bp") == "onset median [cal BP]"
+    assert H.header_with_units("rmsep") == "rmsep"
+
+
+def test_wide_tables_scroll_in_their_own_box(report_text):
+    """Every data table sits in a box that scrolls sideways (CSS overflow-x)."""
+    assert ".table-box { max-width: 100%; overflow-x: auto;" in report_text
+    tables = report_text.count('<table class="data"')
+    assert tables and report_text.count('<div class="table-box"><table class="data"') == tables
+
+
+def test_all_negligible_outlier_probabilities_collapse_to_one_line(tmp_path):
+    """A core whose dates all have outlier probabilities below 0.001 gets one line of text
+    instead of a chart of empty bars; the dates table prints them as "< 0.001"."""
+    run = make_run_folder(tmp_path / "run")
+    path = run / "TARN-2" / "dates.parquet"
+    dates = pd.read_parquet(path)
+    dates["outlier_prob"] = 1e-5
+    atomic_write_parquet(path, dates)
+    text = write_run_report(run).read_text(encoding="utf-8")
+    assert "below 0.001 for every date (no chart drawn)" in text
+    assert not (run / "figures" / "TARN-2_outliers.svg").exists()
+    assert "&lt; 0.001" in text

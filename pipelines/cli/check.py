@@ -37,6 +37,7 @@ class _Group:
     summary: str = ""
     is_core: bool = True
     notes: list[str] = field(default_factory=list)
+    warnings: list[Problem] = field(default_factory=list)
 
 
 def rejected_rows(problems: list[Problem]) -> int:
@@ -57,7 +58,22 @@ def _core_group(title: str, core, problems: list[Problem]) -> _Group:
         counts = f", {len(core.counts)} count rows" if core.counts is not None else ""
         group.title = f"{core.id} ({title})"
         group.summary = f"{len(core.samples)} samples, {len(core.dates)} dates{counts}"
+        group.warnings = _event_layer_warnings(core)
     return group
+
+
+def _event_layer_warnings(core) -> list[Problem]:
+    """Samples and counts inside the core's event layers (left out of calibration)."""
+    from pipelines.ingest import read_toml
+    from proxies.calibration import event_layer_sample_warnings
+
+    if not core.event_layers:
+        return []
+    mapping, _ = read_toml(Path(core.folder) / "core.toml", "core.toml")
+    files = (mapping or {}).get("files", {})
+    files = files if isinstance(files, dict) else {}
+    return event_layer_sample_warnings(core, str(files.get("samples", "samples")),
+                                       str(files.get("counts", "counts")))
 
 
 def _check_core(path: Path) -> _Group:
@@ -184,6 +200,8 @@ def _print_group(console: Console, group: _Group) -> None:
         console.print(Text("  note: " + note, style="dim"))
     for line in folded(group.problems):
         console.print(Text("  - " + line))
+    for warning in group.warnings:
+        console.print(Text("  ! warning: " + str(warning), style="yellow"))
 
 
 @click.command("check")

@@ -2,13 +2,16 @@
 
 Each age is written ``AGE:ERROR`` in 14C yr BP (``4520:35``); ``--f14c`` reads them as
 F14C values instead (``0.5703:0.0025``). For every age the command prints the calibrated
-median, mode and mean [cal BP] and the HPD ranges at 68.3 % and 95.4 %. Nothing is written.
+median, mode and mean [cal BP] and the HPD ranges at 68.3 % and 95.4 %. ``--csv FILE`` also
+writes them as a table, one row per HPD range (columns in :data:`CSV_COLUMNS`), atomically;
+nothing else is written.
 
 Examples
 --------
 ``downcore radiocarbon 4520:35 9870:60 --curve curves/atmosphere.14c``
 ``downcore radiocarbon 1530:40 --curve curves/marine.14c --reservoir 120:45``
 ``downcore radiocarbon 0.5703:0.0025 --f14c --curve curves/atmosphere.14c --student-t``
+``downcore radiocarbon 4520:35 9870:60 --curve curves/atmosphere.14c --csv dates.csv``
 """
 
 from __future__ import annotations
@@ -18,7 +21,11 @@ import warnings
 import click
 import numpy as np
 
-__all__ = ["command", "parse_value_error"]
+__all__ = ["command", "parse_value_error", "ranges_table", "CSV_COLUMNS"]
+
+#: columns of ``--csv``: one row per HPD range of each age
+CSV_COLUMNS = ("input", "age_14c_bp", "error_14c_yr", "median_cal_bp", "mode_cal_bp", "mean_cal_bp",
+               "hpd_level", "range_young_cal_bp", "range_old_cal_bp", "range_probability")
 
 
 def parse_value_error(text: str, what: str) -> tuple[float, float]:
@@ -33,6 +40,19 @@ def parse_value_error(text: str, what: str) -> tuple[float, float]:
     return value, error
 
 
+def ranges_table(inputs, values, errors, median, mode, mean, levels):
+    """The ``--csv`` table: one row per HPD range (``levels``: ``{level: ranges per age}``)."""
+    import pandas as pd
+
+    rows = []
+    for i, text in enumerate(inputs):
+        for level, ranges in levels.items():
+            for young, old, share in ranges[i]:
+                rows.append((text, float(values[i]), float(errors[i]), float(median[i]), float(mode[i]),
+                             float(mean[i]), level, float(young), float(old), float(share)))
+    return pd.DataFrame(rows, columns=list(CSV_COLUMNS))
+
+
 @click.command(name="radiocarbon")
 @click.argument("ages", nargs=-1, required=True)
 @click.option("--curve", "curve_path", required=True, type=click.Path(dir_okay=False),
@@ -44,7 +64,9 @@ def parse_value_error(text: str, what: str) -> tuple[float, float]:
               help="Student-t likelihood (Christen & Perez 2009) instead of the normal.")
 @click.option("--step", default=1.0, show_default=True, type=click.FloatRange(min=0.0, max=100.0, min_open=True),
               help="Calendar grid step [yr], > 0 and at most 100.")
-def command(ages, curve_path, reservoir, as_f14c, student_t, step):
+@click.option("--csv", "csv_path", default=None, type=click.Path(dir_okay=False),
+              help="Also write the results as CSV (one row per HPD range) to this file.")
+def command(ages, curve_path, reservoir, as_f14c, student_t, step, csv_path):
     """Calibrate radiocarbon AGES (each AGE:ERROR, 14C yr BP) and print their calendar ranges."""
     from pipelines.curvefiles import read_curve_file
     from proxies.chronology import calibrate_radiocarbon
@@ -85,5 +107,12 @@ def command(ages, curve_path, reservoir, as_f14c, student_t, step):
         click.echo(f"  median {median[i]:.0f}  mode {mode[i]:.0f}  mean {mean[i]:.0f} cal BP")
         click.echo(f"  68.3% HPD: {format_ranges(hpd68[i])}")
         click.echo(f"  95.4% HPD: {format_ranges(hpd95[i])}")
+    if csv_path:
+        from pipelines.report.csv import table_csv_text
+        from pipelines.runfolder import atomic_write_text
+
+        table = ranges_table(list(ages), values, errors, median, mode, mean, {0.683: hpd68, 0.954: hpd95})
+        atomic_write_text(csv_path, table_csv_text(table))
+        click.echo(f"\nwritten: {csv_path}")
     for warning in caught:
         click.echo(f"warning: {warning.message}", err=True)

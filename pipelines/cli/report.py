@@ -13,7 +13,9 @@ __all__ = ["command"]
 @click.argument("run_dir", type=click.Path(exists=True, file_okay=False, path_type=pathlib.Path))
 @click.option("--no-csv", "no_csv", is_flag=True, default=False,
               help="Do not write CSV copies of the Parquet tables.")
-def command(run_dir: pathlib.Path, no_csv: bool) -> None:
+@click.option("--png", "png", is_flag=True, default=False,
+              help="Also write a PNG copy of every figure (each SVG figure drawn again as PNG).")
+def command(run_dir: pathlib.Path, no_csv: bool, png: bool) -> None:
     """Write report.html, figures/ and the exports (CSV, reconstructions.nc) of RUN_DIR.
 
     Reads only the run folder, never the inputs; running it twice gives the same files.
@@ -23,7 +25,7 @@ def command(run_dir: pathlib.Path, no_csv: bool) -> None:
     if not (run_dir / "summary.parquet").is_file() and not (run_dir / "manifest.json").is_file():
         raise click.ClickException(f"{run_dir} holds no summary.parquet or manifest.json -- give "
                                    "the folder a downcore run wrote")
-    report = write_run_report(run_dir)
+    report = write_run_report(run_dir, png=png)
     exports = write_exports(run_dir, csv=not no_csv)
     n_csv = sum(p.suffix == ".csv" for p in exports)
     nc = [p for p in exports if p.suffix == ".nc"]

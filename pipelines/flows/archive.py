@@ -24,7 +24,8 @@ from prefect import flow
 
 from pipelines.flows import stages, tasks
 from pipelines.flows.plan import RunPlan
-from pipelines.flows.stage_table import CORE_STAGES, SCIENCE_STAGES, STAGES, call_stage, probe_stage
+from pipelines.flows.stage_table import (CORE_STAGES, PUBLISH_STAGES, SCIENCE_STAGES, STAGES, call_stage,
+                                         probe_stage)
 from pipelines.flows.status import RECONSTRUCTED, finished_status
 from pipelines.flows.store import WorkStore
 
@@ -73,6 +74,8 @@ class CoreTrack:
     seconds: dict[str, float] = field(default_factory=dict)
     cached: dict[str, bool] = field(default_factory=dict)
     log: list[str] = field(default_factory=list)
+    publish_stages_asked: bool = False
+    publish_stages_left: int = 0
 
     def say(self, text: str) -> None:
         stamp = _dt.datetime.now(_dt.timezone.utc).strftime("%H:%M:%S")
@@ -220,11 +223,43 @@ class _Driver:
                 else:
                     self._record(track, stage, outcome)
 
+    def _ask_publish_stages(self, track: CoreTrack) -> bool:
+        """Submit the :data:`PUBLISH_STAGES` (the per-sample table) of a core that has their
+        first inputs (ingest and chronology: a dated core), once, before its folder is
+        published; True when something was submitted (the core is published when all are
+        done). Inputs the core lacks (a skipped calibration) are given as ``None``."""
+        if track.publish_stages_asked:
+            return False
+        track.publish_stages_asked = True
+        wanted = [s for s in PUBLISH_STAGES if all(n in track.entries for n in STAGES[s].inputs[:2])]
+        track.publish_stages_left = len(wanted)
+        for stage in wanted:
+            given = {n: track.entries.get(n) for n in STAGES[stage].inputs}
+            self._submit(track, stage, track.name, {**self._entries(track), **given})
+        return bool(wanted)
+
+    def _on_publish_stage(self, track: CoreTrack, stage: str, result: Any) -> None:
+        if isinstance(result, BaseException):
+            track.status, track.error = "failed", f"{stage}: {result}"
+            track.say(f"{stage} FAILED: {result}")
+        elif "skipped" in result:
+            track.notes.append(result["skipped"])
+        else:
+            track.entries[stage] = result
+            track.seconds[stage] = float(result.get("seconds", 0.0))
+            track.cached[stage] = bool(result.get("cached"))
+            track.warnings += [f"{stage}: {w}" for w in result.get("warnings", [])]
+        track.publish_stages_left -= 1
+        if track.publish_stages_left == 0:
+            self._publish(track)
+
     def _publish(self, track: CoreTrack) -> None:
+        if self._ask_publish_stages(track):
+            return
         if track.status == "running":
             track.status = finished_status(track.entries)
         track.say(f"finished: {track.status}, stage reached {track.reached or 'none'}")
-        entries = [track.entries[s] for s in SCIENCE_STAGES if s in track.entries]
+        entries = [track.entries[s] for s in (*SCIENCE_STAGES, *PUBLISH_STAGES) if s in track.entries]
         self.pending += 1
         self._send(track, "outputs", tasks.outputs_task, {"run_dir": self.run_dir, "label": track.name,
                                                           "entries": entries, "log_text": self._log_text(track)})
@@ -251,6 +286,9 @@ class _Driver:
                 self._next(track, track.reached)
 
     def _on_core(self, track: CoreTrack, stage: str, result: Any) -> None:
+        if stage in PUBLISH_STAGES:
+            self._on_publish_stage(track, stage, result)
+            return
         if stage == "outputs":
             if isinstance(result, BaseException):
                 track.status, track.error = "failed", f"writing outputs: {result}"
@@ -368,7 +406,7 @@ def archive_flow(plan: RunPlan, run_dir: str, cache_dir: str, recompute: bool = 
             stack = result
     archive_events = _archive_events(plan, tracks, store, recompute, notes)
     timings = [{"core_id": t.name, "stage": s, "seconds": t.seconds[s], "reused": t.cached.get(s, False)}
-               for t in tracks for s in CORE_STAGES if s in t.seconds]
+               for t in tracks for s in (*CORE_STAGES, *PUBLISH_STAGES) if s in t.seconds]
     return {"cores": [t.row() for t in tracks], "timings": timings, "training": driver.training,
             "stack": stack, "archive_events": archive_events, "notes": notes,
             "known_hashes": driver.known_hashes}

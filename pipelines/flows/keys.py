@@ -26,7 +26,8 @@ __all__ = ["canonical", "content_key", "code_fingerprint", "KEY_FORMAT"]
 KEY_FORMAT = "downcore-key/1"
 
 _PIPELINE_MODULES = ("ingest.py", "tables.py", "config.py", "curvefiles.py", "auxiliary.py",
-                     "runfolder.py", "flows/stages.py", "flows/keys.py", "flows/store.py")
+                     "runfolder.py", "flows/stages.py", "flows/dated_samples.py", "flows/keys.py",
+                     "flows/store.py")
 
 
 def canonical(value: Any) -> Any:

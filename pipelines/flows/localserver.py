@@ -12,6 +12,7 @@ server stops when the run ends. Nothing changes when the user has set ``PREFECT_
 from __future__ import annotations
 
 import contextlib
+import importlib.util
 import os
 import socket
 import subprocess
@@ -41,22 +42,33 @@ class LocalServer:
 
     @classmethod
     def start_if_needed(cls) -> "LocalServer | None":
-        """Start a server unless an API URL is configured or temporary servers are disabled."""
-        import prefect
+        """Start a server unless an API URL is configured or temporary servers are disabled.
+
+        The server process is spawned first and Prefect's settings are read afterwards:
+        importing Prefect takes ~1 s, which the server's own start-up (~3 s) then overlaps.
+        When the settings (e.g. a Prefect profile) name an API URL after all, the server just
+        spawned is stopped again.
+        """
+        if os.environ.get("PREFECT_API_URL") or os.environ.get(
+                "PREFECT_SERVER_EPHEMERAL_ENABLED", "").strip().lower() in ("0", "false", "no", "off"):
+            return None
+        spec = importlib.util.find_spec("prefect")
+        if spec is None or spec.origin is None:
+            return None
+        server = cls()
+        server._spawn(os.path.dirname(os.path.dirname(spec.origin)))
         from prefect.settings import PREFECT_API_URL, PREFECT_SERVER_EPHEMERAL_ENABLED
 
         if PREFECT_API_URL.value() or not PREFECT_SERVER_EPHEMERAL_ENABLED.value():
+            server.stop()
             return None
-        server = cls()
-        server._spawn(os.path.dirname(os.path.dirname(prefect.__file__)))
         return server
 
     def _log_path(self) -> str:
         """Where the server's own messages go (its shutdown prints harmless tracebacks when
         events are still being flushed; they belong in a file, not on the user's screen)."""
-        from prefect.settings import PREFECT_HOME
-
-        folder = str(PREFECT_HOME.value())
+        # Prefect's own default, read without importing Prefect (the server starts first)
+        folder = os.path.expanduser(os.environ.get("PREFECT_HOME") or os.path.join("~", ".prefect"))
         os.makedirs(folder, exist_ok=True)
         return os.path.join(folder, "downcore-local-server.log")
 

@@ -189,17 +189,23 @@ def _run_into(run_dir: pathlib.Path, plan: RunPlan, inputs: list, cache: pathlib
     runner = task_runner_for(choice, cache / "dask-scratch")
     observer_id = register_observer(progress) if progress is not None else None
     try:
+        if local_server is not None and progress is not None:
+            progress.phase("starting the Prefect server")
         api_url = local_server.wait_ready() if local_server is not None else None
         with prefect_run_settings(choice, api_url=api_url):
             result = archive_flow.with_options(task_runner=runner)(
                 plan=plan, run_dir=str(run_dir), cache_dir=str(cache), recompute=recompute,
                 observer_id=observer_id, inline_stages=choice.inline_stages(),
                 chain=choice.chain_core_stages())
+    except BaseException:
+        if progress is not None:
+            progress.close()
+        raise
     finally:
         if observer_id:
             unregister_observer(observer_id)
-        if progress is not None:
-            progress.close()
+    if progress is not None and not report:
+        progress.close()
     notes = list(result["notes"])
     _write_run_tables(run_dir, result)
 
@@ -219,7 +225,13 @@ def _run_into(run_dir: pathlib.Path, plan: RunPlan, inputs: list, cache: pathlib
     if report:
         # the report shows the run's facts: give it a provisional manifest in the marker
         atomic_write_json(run_dir / IN_PROGRESS_MARKER, manifest_now())
-        _write_report(run_dir, notes)
+        try:
+            if progress is not None:
+                progress.phase("writing the report and exports")
+            _write_report(run_dir, notes)
+        finally:
+            if progress is not None:
+                progress.close()
     manifest = manifest_now()
     seconds = manifest["seconds"]
     write_manifest(run_dir, manifest)

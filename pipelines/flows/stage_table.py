@@ -18,11 +18,12 @@ from dataclasses import dataclass
 from typing import Any, Callable
 
 from pipelines.flows import stages
+from pipelines.flows.dated_samples import run_dated_samples
 from pipelines.flows.keys import content_key
 from pipelines.flows.plan import RunPlan
 from pipelines.flows.store import WorkStore
 
-__all__ = ["Stage", "STAGES", "CORE_STAGES", "SCIENCE_STAGES", "KEY_PARTS", "stage_key", "call_stage",
+__all__ = ["Stage", "STAGES", "CORE_STAGES", "SCIENCE_STAGES", "PUBLISH_STAGES", "KEY_PARTS", "stage_key", "call_stage",
            "probe_stage"]
 
 
@@ -67,6 +68,10 @@ class Stage:
         Keys of :data:`KEY_PARTS` hashed into its cache key.
     per_core : bool
         Run once per core (else once per run).
+    at_publish : bool
+        A per-core stage that runs just before the core's folder is published, for every
+        core whose inputs exist, whatever stage it reached (not in :data:`CORE_STAGES`);
+        an input it lacks is given as ``None``.
     """
 
     name: str
@@ -75,6 +80,7 @@ class Stage:
     tables: tuple[str, ...]
     key_parts: tuple[str, ...]
     per_core: bool = True
+    at_publish: bool = False
 
 
 #: every stage, in the order a core goes through them (run-level stages where they run)
@@ -92,6 +98,8 @@ STAGES: dict[str, Stage] = {s.name: s for s in (
           ("reconstruction", "reconstruction_ensemble"), ("[reconstruction] settings", "seed")),
     Stage("events", stages.run_events, ("reconstruction",), ("events", "event_probability", "event_onsets"),
           ("[events] settings", "seed")),
+    Stage("samples", run_dated_samples, ("ingest", "chronology", "calibration"), ("samples_dated",), (),
+          at_publish=True),
     Stage("stack", stages.run_stack, ("reconstructions",), ("stack",), ("[reconstruction] settings", "seed"),
           per_core=False),
     Stage("archive_events", stages.run_archive_events, ("all_events",), ("archive_events", "lead_lag"),
@@ -99,7 +107,9 @@ STAGES: dict[str, Stage] = {s.name: s for s in (
 )}
 
 #: the stages of one core, in order
-CORE_STAGES: tuple[str, ...] = tuple(name for name, s in STAGES.items() if s.per_core)
+CORE_STAGES: tuple[str, ...] = tuple(name for name, s in STAGES.items() if s.per_core and not s.at_publish)
+#: per-core stages run just before a core's folder is published
+PUBLISH_STAGES: tuple[str, ...] = tuple(name for name, s in STAGES.items() if s.at_publish)
 #: a core's stages after ingest (chained into one task on Dask)
 SCIENCE_STAGES: tuple[str, ...] = CORE_STAGES[1:]
 

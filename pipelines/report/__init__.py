@@ -2,7 +2,7 @@
 
 Entry points:
 
-* :func:`write_run_report` -- ``report.html`` and ``figures/*.png|svg`` of a run folder;
+* :func:`write_run_report` -- ``report.html`` and ``figures/*.svg`` (PNG copies on request) of a run folder;
 * :func:`write_exports` -- CSV beside every Parquet table and ``reconstructions.nc``.
 
 Both read only the run folder, so they can be re-run on any finished run
@@ -14,11 +14,11 @@ from __future__ import annotations
 __all__ = ["write_run_report", "write_exports"]
 
 
-def write_run_report(run_dir):
+def write_run_report(run_dir, png: bool = False):
     """See :func:`pipelines.report.build.write_run_report`."""
     from pipelines.report.build import write_run_report as _write
 
-    return _write(run_dir)
+    return _write(run_dir, png=png)
 
 
 def write_exports(run_dir, csv: bool = True):

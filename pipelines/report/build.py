@@ -1,8 +1,10 @@
 """Write a run's HTML report and its figures from the files in the run folder.
 
 ``write_run_report(run_dir)`` reads the run folder (never the inputs), draws every figure
-the tables allow (PNG and SVG under ``figures/``), and writes ``report.html`` atomically. It
+the tables allow (SVG under ``figures/``), and writes ``report.html`` atomically. It
 can be called again on a finished run (``downcore report RUN``) and gives the same bytes.
+Each figure is drawn once, as SVG; PNG copies are drawn on request (``png=True``,
+``downcore report RUN --png``).
 """
 
 from __future__ import annotations
@@ -16,9 +18,11 @@ from pipelines.report import html as H
 from pipelines.report import style
 from pipelines.report.figures_calibration import (analogue_figure, cv_scatter_figure,
                                                   cv_statistics, training_sets_of)
-from pipelines.report.figures_chronology import (age_depth_figure, deposition_time_figure, hyperparameter_figure,
+from pipelines.report.figures_chronology import (NEGLIGIBLE_PROBABILITY, age_depth_figure,
+                                                 all_outlier_probabilities_negligible,
+                                                 deposition_time_figure, hyperparameter_figure,
                                                  outlier_figure)
-from pipelines.report.figures_events import event_figure, event_variables
+from pipelines.report.figures_events import event_figure, event_variables, lead_lag_figure
 from pipelines.report.figures_reconstruction import reconstruction_figure, stack_figure
 from pipelines.report.rundata import CoreData, RunData, downcore_version, read_run, reconstruction_series
 from pipelines.runfolder import atomic_write_text
@@ -31,8 +35,9 @@ REPORT_NAME = "report.html"
 class _Figures:
     """Numbers, saves and renders the figures of one report."""
 
-    def __init__(self, run_dir: pathlib.Path):
+    def __init__(self, run_dir: pathlib.Path, png: bool = False):
         self.run_dir = run_dir
+        self.png = png
         self.count = 0
         self.written: set[str] = set()
 
@@ -40,8 +45,8 @@ class _Figures:
         fig = make()
         if fig is None:
             return ""
-        saved = style.save_figure(fig, self.run_dir, key, title, caption)
-        self.written.update({pathlib.Path(saved.png).name, pathlib.Path(saved.svg).name})
+        saved = style.save_figure(fig, self.run_dir, key, title, caption, png=self.png)
+        self.written.update(pathlib.Path(f).name for f in (saved.png, saved.svg) if f)
         self.count += 1
         return H.figure_html(saved, self.count)
 
@@ -102,9 +107,9 @@ def _summary_section(run: RunData) -> str:
     lead = (f"{len(run.cores)} core(s): {n_ok} ok, {n_thin} thin (reconstruction mostly empty), "
             f"{n_dated} dated only, {n_failed} failed"
             f"{'' if shown == len(run.cores) else ', others incomplete'}.")
-    table = ('<table class="data"><thead><tr><th>core</th><th>status</th><th>stage reached</th>'
-             "<th>warnings</th><th>seconds</th><th>reason / first warning</th></tr></thead>"
-             f"<tbody>{''.join(rows)}</tbody></table>")
+    table = ('<div class="table-box"><table class="data"><thead><tr><th>core</th><th>status</th>'
+             "<th>stage reached</th><th>warnings</th><th>seconds</th><th>reason / first warning</th>"
+             f"</tr></thead><tbody>{''.join(rows)}</tbody></table></div>")
     body = H.key_value_html(_manifest_items(run)) + f"<p>{H.esc(lead)}</p>" + table
     for note in run.notes:
         body += H.note_html(note, "info")
@@ -122,10 +127,12 @@ def _dates_table(core: CoreData) -> str:
     shown["calibrated median [cal BP]"] = dates["cal_median_bp"].round()
     ranges = core.hpd_ranges(0.954)
     if any(ranges):
-        shown["95 % HPD [cal BP]"] = ["; ".join(f"{a:.0f}–{b:.0f}" for a, b in r) or "–" for r in ranges]
-    for column, header in (("outlier_prob", "outlier probability"), ("exclude", "excluded")):
-        if column in dates.columns:
-            shown[header] = dates[column]
+        shown["95 % HPD [cal BP]"] = ["; ".join(H.range_text(a, b) for a, b in r) or "–" for r in ranges]
+    if "outlier_prob" in dates.columns:
+        shown["outlier probability"] = [H.probability_text(p) for p in
+                                        pd.to_numeric(dates["outlier_prob"], errors="coerce")]
+    if "exclude" in dates.columns:
+        shown["excluded"] = dates["exclude"]
     return "<h4>Dates</h4>" + H.table_html(shown)
 
 
@@ -150,10 +157,20 @@ def _chronology_part(core: CoreData, figs: _Figures) -> str:
                  "deposition time, rate variability and, with memory, the persistence of the rate), "
                  "from their exact evidence."),
     ]
+    if all_outlier_probabilities_negligible(core.table("dates")):
+        parts.append(H.note_html(f"Outlier probability: below {NEGLIGIBLE_PROBABILITY:g} for every "
+                                 "date (no chart drawn).", "info"))
     body = "".join(parts)
     if not body:
         return H.note_html("No chronology: this core stopped before its age-depth model.")
     return body + _dates_table(core)
+
+
+def _training_units(run: RunData, name: str) -> str:
+    """The ``units`` of training set ``name`` as the run config gave them, or ``""``."""
+    resolved = ((run.manifest.get("config") or {}).get("resolved") or {})
+    entry = (resolved.get("training") or {}).get(name) or {}
+    return str(entry.get("units") or "") if isinstance(entry, dict) else ""
 
 
 def _calibration_part(core: CoreData, run: RunData, figs: _Figures) -> str:
@@ -163,7 +180,8 @@ def _calibration_part(core: CoreData, run: RunData, figs: _Figures) -> str:
     if skill is not None and len(skill):
         body += "<h4>Calibration skill</h4>" + H.table_html(skill)
     for training in training_sets_of(core, run.training):
-        body += figs.add(lambda t=training: cv_scatter_figure(t), f"{cid}_cv_{training.name}",
+        units = _training_units(run, training.name)
+        body += figs.add(lambda t=training, u=units: cv_scatter_figure(t, u), f"{cid}_cv_{training.name}",
                          f"Cross-validation of training set '{training.name}'",
                          "Cross-validated prediction against the observed value of each "
                          "modern sample (left; dashed: 1:1) and the residuals (right).")
@@ -254,14 +272,41 @@ def _stack_section(run: RunData, figs: _Figures) -> str:
     return H.section("composite", "Regional composite", body) if body else ""
 
 
-def write_run_report(run_dir: str | pathlib.Path) -> pathlib.Path:
-    """Write ``report.html`` and ``figures/*.png|svg`` for a run folder.
+def _archive_events_section(run: RunData, figs: _Figures) -> str:
+    """Events of the whole run with their q-values (which survive archive-wide FDR control)
+    and the lead/lag figure."""
+    from pipelines.outputs_schema import table as output_table
+
+    tables = {}
+    for key in ("archive_events", "lead_lag"):
+        path = run.folder / output_table(key).path
+        tables[key] = pd.read_parquet(path) if path.is_file() else None
+    events, lead_lag = tables["archive_events"], tables["lead_lag"]
+    if events is None or not len(events):
+        return ""
+    survive = int(events["survives_fdr"].astype(bool).sum())
+    body = H.note_html(f"{survive} of {len(events)} events survive false discovery rate control "
+                       "(Benjamini-Hochberg q-value at most alpha, over all cores and variables); "
+                       "events significant on their own but not after it are likely false among "
+                       "this many series.")
+    body += H.table_html(events, ["core_id", "event_id", "kind", "direction", "onset_median", "onset_q025",
+                                  "onset_q975", "p_value", "q_value", "significant", "survives_fdr", "note"])
+    body += figs.add(lambda: lead_lag_figure(lead_lag), "lead_lag", "Lead/lag across cores",
+                     "For each event found in several cores: the 95 % range and median of the onset "
+                     "difference over all member pairs (age ensembles taken as independent).")
+    return H.section("archive-events", "Events across the archive", body)
+
+
+def write_run_report(run_dir: str | pathlib.Path, png: bool = False) -> pathlib.Path:
+    """Write ``report.html`` and ``figures/*.svg`` (and ``*.png``) for a run folder.
 
     Parameters
     ----------
     run_dir : path-like
         A run folder (see DEVELOPERS.md, "The run folder"). Missing tables are tolerated:
         the report says what is absent.
+    png : bool
+        Also write a PNG copy of every figure (a second drawing of each).
 
     Returns
     -------
@@ -269,20 +314,24 @@ def write_run_report(run_dir: str | pathlib.Path) -> pathlib.Path:
         The report file.
     """
     run = read_run(run_dir)
-    figs = _Figures(run.folder)
+    figs = _Figures(run.folder, png=png)
     with style.report_style():
         stack = _stack_section(run, figs)
+        archive_events = _archive_events_section(run, figs)
         cores = [_core_section(core, run, figs) for core in run.cores]
     figs.remove_stale()
     toc = [("summary", "Archive summary")]
     if stack:
         toc.append(("composite", "Regional composite"))
+    if archive_events:
+        toc.append(("archive-events", "Events across the archive"))
     toc += [(f"core-{H.anchor(c.core_id)}", f"Core {c.core_id}") for c in run.cores]
     version = (run.manifest.get("versions") or {}).get("downcore") or downcore_version()
     title = f"downcore run report: {run.folder.name}"
     subtitle = (f"{len(run.cores)} core(s); ages in cal BP (years before 1950 CE); "
                 "bands are ensemble quantiles")
     footer = (f"Written by downcore {version} from the tables of this run folder. "
-              f"{figs.count} figures, also saved as PNG and SVG in figures/.")
-    text = H.page(title, subtitle, toc, _summary_section(run) + stack + "".join(cores), footer)
+              f"{figs.count} figures, also saved as {'PNG and ' if png else ''}SVG in figures/.")
+    text = H.page(title, subtitle, toc, _summary_section(run) + stack + archive_events + "".join(cores),
+                  footer)
     return atomic_write_text(run.folder / REPORT_NAME, text)

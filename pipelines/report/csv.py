@@ -1,8 +1,9 @@
 """CSV copies of the run's Parquet tables, for spreadsheets and tools without Parquet.
 
 Each ``X.parquet`` of a run folder gets ``X.csv`` beside it: comma-separated, UTF-8, one
-header row, no index, ``\\n`` line ends, floats in their shortest round-trip form, missing
-values as empty cells, list cells joined with ``"; "``. Same table, same bytes.
+header row, no index, ``\\n`` line ends, floats to :data:`SIGNIFICANT_DIGITS` significant
+digits (full precision stays in the Parquet table), missing values as empty cells, list cells
+joined with ``"; "``. Same table, same bytes.
 """
 
 from __future__ import annotations
@@ -16,7 +17,10 @@ import pyarrow.parquet as pq
 
 from pipelines.runfolder import atomic_write_text
 
-__all__ = ["parquet_tables", "table_csv_text", "write_csv_beside"]
+__all__ = ["parquet_tables", "table_csv_text", "write_csv_beside", "SIGNIFICANT_DIGITS"]
+
+#: significant digits of a float in a CSV copy (a spreadsheet's view; Parquet keeps all)
+SIGNIFICANT_DIGITS = 6
 
 
 def parquet_tables(run_dir: pathlib.Path) -> list[pathlib.Path]:
@@ -39,7 +43,7 @@ def table_csv_text(table: pd.DataFrame) -> str:
         if table[column].dtype == object:
             table[column] = table[column].map(_flatten)
     buffer = io.StringIO()
-    table.to_csv(buffer, index=False, lineterminator="\n")
+    table.to_csv(buffer, index=False, lineterminator="\n", float_format=f"%.{SIGNIFICANT_DIGITS}g")
     return buffer.getvalue()
 
 

@@ -42,8 +42,9 @@ def cv_statistics(cv: pd.DataFrame) -> dict[str, float]:
             "max_bias": float(max(bin_bias, key=abs))}
 
 
-def cv_scatter_figure(training: TrainingData):
-    """Cross-validated prediction against observation (with the 1:1 line) and residuals."""
+def cv_scatter_figure(training: TrainingData, units: str = ""):
+    """Cross-validated prediction against observation (with the 1:1 line) and residuals;
+    ``units`` of the training target label the axes."""
     cv = training.cv
     if cv is None or not len(cv):
         return None
@@ -59,8 +60,9 @@ def cv_scatter_figure(training: TrainingData):
     ax.plot(obs, pred, linestyle="none", marker="o", markersize=3.2,
             markerfacecolor=style.FOG, markeredgecolor=style.SLATE, markeredgewidth=0.7,
             label="training sample")
-    ax.set_xlabel("observed")
-    ax.set_ylabel("predicted (cross-validated)")
+    unit = f" [{units}]" if units else ""
+    ax.set_xlabel(f"observed{unit}")
+    ax.set_ylabel(f"predicted (cross-validated){unit}")
     text = f"n = {stats['n']:.0f}"
     if "rmsep" in stats:
         text += f"\nRMSEP = {stats['rmsep']:.3g}\nr² = {stats['r2']:.2f}"
@@ -70,8 +72,8 @@ def cv_scatter_figure(training: TrainingData):
     axr.axhline(0, color=style.INK, linewidth=0.8)
     axr.plot(obs, pred - obs, linestyle="none", marker="s", markersize=3,
              markerfacecolor="white", markeredgecolor=style.CLAY, markeredgewidth=0.7)
-    axr.set_xlabel("observed")
-    axr.set_ylabel("predicted − observed")
+    axr.set_xlabel(f"observed{unit}")
+    axr.set_ylabel(f"predicted − observed{unit}")
     if "max_bias" in stats:
         axr.set_title(f"residuals (max bias {stats['max_bias']:.2g})", fontweight="normal")
     return fig

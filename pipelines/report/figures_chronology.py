@@ -12,13 +12,18 @@ from matplotlib.lines import Line2D
 from matplotlib.patches import Patch
 
 from pipelines.report import style
+from pipelines.report.html import probability_text
 from pipelines.report.rundata import CoreData, member_columns
 
 __all__ = ["age_depth_figure", "deposition_time_figure", "outlier_figure", "hyperparameter_figure",
-           "OUTLIER_LINE", "ensemble_matrix", "hiatus_marks"]
+           "OUTLIER_LINE", "ensemble_matrix", "hiatus_marks", "all_outlier_probabilities_negligible",
+           "NEGLIGIBLE_PROBABILITY"]
 
 #: outlier probability above which a date is drawn as "more likely an outlier than not"
 OUTLIER_LINE = 0.5
+
+#: below this an outlier probability is printed "< 0.001" and counts as none
+NEGLIGIBLE_PROBABILITY = 0.001
 
 #: ensemble members drawn as thin lines behind the bands
 MEMBERS_DRAWN = 25
@@ -74,6 +79,25 @@ def _date_glyph_height(depth: np.ndarray) -> float:
     return max(span, 1.0) * 0.045
 
 
+#: a date density glyph is drawn through at most this many points (it is ~1/20 of the axis
+#: high; finer detail is not visible and only weighs down the vector figure)
+DENSITY_POINTS = 100
+
+
+def _thinned(age: np.ndarray, dens: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """A density curve resampled onto at most :data:`DENSITY_POINTS` evenly spaced ages,
+    keeping its end points; the peak height is preserved by rescaling."""
+    keep = np.isfinite(age) & np.isfinite(dens)
+    age, dens = age[keep], dens[keep]
+    if age.size <= DENSITY_POINTS:
+        return age, dens
+    grid = np.linspace(age[0], age[-1], DENSITY_POINTS)
+    thin = np.interp(grid, age, dens)
+    if thin.max() > 0:
+        thin *= dens.max() / thin.max()
+    return grid, thin
+
+
 def _draw_densities(ax, dates: pd.DataFrame, densities: pd.DataFrame, height: float) -> bool:
     """Calibrated date densities as bumps above each date's depth; True if any was drawn."""
     drawn = False
@@ -84,8 +108,7 @@ def _draw_densities(ax, dates: pd.DataFrame, densities: pd.DataFrame, height: fl
         if part.empty:
             continue
         part = part.sort_values("age_cal_bp")
-        age = part["age_cal_bp"].to_numpy(float)
-        dens = part["density"].to_numpy(float)
+        age, dens = _thinned(part["age_cal_bp"].to_numpy(float), part["density"].to_numpy(float))
         if not np.isfinite(dens).any() or np.nanmax(dens) <= 0:
             continue
         top = row.depth_cm - height * dens / np.nanmax(dens)
@@ -146,8 +169,8 @@ def age_depth_figure(core: CoreData):
         order = np.argsort(ens_depth)
         ens_depth, ens = ens_depth[order], ens[order]
         step = max(1, ens.shape[1] // MEMBERS_DRAWN)
-        for m in range(0, ens.shape[1], step):
-            ax.plot(ens[:, m], ens_depth, color=style.SLATE, linewidth=0.35, alpha=0.35, zorder=2)
+        style.ensemble_lines(ax, ens[:, ::step], ens_depth, color=style.SLATE, linewidth=0.35,
+                             alpha=0.35, zorder=2)
         q16, q84 = np.nanquantile(ens, [0.16, 0.84], axis=1)
         ax.fill_betweenx(ens_depth, q16, q84, color=style.BAND_DARK, linewidth=0, zorder=1.5)
         handles.append(Patch(color=style.BAND_DARK, label="68 % range"))
@@ -247,10 +270,22 @@ def deposition_time_figure(core: CoreData):
     return fig
 
 
+def all_outlier_probabilities_negligible(dates: pd.DataFrame | None) -> bool:
+    """True when every date has an outlier probability below :data:`NEGLIGIBLE_PROBABILITY`
+    (the chart would be a row of empty bars: the report says so in one line instead)."""
+    if dates is None or "outlier_prob" not in dates.columns or not len(dates):
+        return False
+    prob = _outlier_prob(dates)
+    return bool(np.isfinite(prob).all() and (prob < NEGLIGIBLE_PROBABILITY).all())
+
+
 def outlier_figure(core: CoreData):
-    """Posterior outlier probability of every date, in depth order."""
+    """Posterior outlier probability of every date, in depth order (None when every one is
+    negligible, see :func:`all_outlier_probabilities_negligible`)."""
     dates = core.table("dates")
     if dates is None or "outlier_prob" not in dates.columns or not len(dates):
+        return None
+    if all_outlier_probabilities_negligible(dates):
         return None
     dates = dates.sort_values("depth_cm", kind="stable")
     prob = _outlier_prob(dates)
@@ -266,13 +301,13 @@ def outlier_figure(core: CoreData):
         ax.barh(y[high], prob[high], facecolor="white", edgecolor=style.CLAY, hatch="////",
                 height=0.6, label=f"{OUTLIER_LINE:g} or more: likely outlier")
     for yi, p in zip(y, prob):
-        ax.text(min(np.nan_to_num(p) + 0.015, 0.93), yi, "n/a" if not np.isfinite(p) else f"{p:.2f}",
+        ax.text(min(np.nan_to_num(p) + 0.015, 0.93), yi, probability_text(p),
                 va="center", fontsize=7, color=style.INK)
     ax.axvline(OUTLIER_LINE, color=style.INK, linestyle=":", linewidth=0.8)
     ax.set_yticks(y, labels)
     ax.invert_yaxis()
     ax.set_xlim(0, 1)
-    ax.set_xlabel("posterior outlier probability")
+    ax.set_xlabel("posterior outlier probability [0–1]")
     ax.grid(axis="y", visible=False)
     ax.set_title(f"{core.core_id}: date outlier probability")
     ax.legend(loc="lower right")

@@ -1,5 +1,5 @@
-"""Event figures: the probability that an event is under way at each age, and the onset
-distribution of every detected event."""
+"""Event figures: the probability that an event is under way at each age, the onset
+distribution of every detected event, and the lead/lag of events found in several cores."""
 
 from __future__ import annotations
 
@@ -11,7 +11,7 @@ from matplotlib.patches import Patch
 from pipelines.report import style
 from pipelines.report.rundata import CoreData
 
-__all__ = ["event_figure", "event_variables", "ONSET_SAMPLE_FILE"]
+__all__ = ["event_figure", "event_variables", "lead_lag_figure", "ONSET_SAMPLE_FILE"]
 
 #: optional per-member onsets (event_id, onset_cal_bp); drawn as densities when present
 ONSET_SAMPLE_FILE = "event_onsets"
@@ -77,7 +77,7 @@ def event_figure(core: CoreData, variable: str):
         if not has_events and not np.nanmax(p, initial=0.0) > 0:
             ax.text(0.5, 0.55, "no event found in any ensemble member", transform=ax.transAxes,
                     ha="center", color=style.INK, fontsize=8.5)
-        ax.set_ylabel("event probability")
+        ax.set_ylabel("event probability [0–1]")
         ax.set_title(f"{core.core_id}: events in {variable}")
     if has_events:
         axe = axes[-1]
@@ -117,4 +117,29 @@ def event_figure(core: CoreData, variable: str):
         if not has_prob:
             axe.set_title(f"{core.core_id}: events in {variable}")
     style.age_axis(axes[-1])
+    return fig
+
+
+def lead_lag_figure(lead_lag: pd.DataFrame | None):
+    """One lane per pair of cores sharing an event: the 95 % range of ``onset_a - onset_b``
+    as a bar, its median as a diamond, zero (no lead) as a dotted line; the lane label gives
+    the probability that core a leads."""
+    if lead_lag is None or not len(lead_lag):
+        return None
+    rows = lead_lag.reset_index(drop=True)
+    fig, ax = style.new_figure(7.2, 1.2 + 0.42 * len(rows))
+    labels = []
+    for lane, row in enumerate(rows.itertuples(index=False)):
+        low, high = float(row.lag_q025_yr), float(row.lag_q975_yr)
+        ax.barh(lane, max(high - low, 1e-9), left=low, height=0.42, color=style.SLATE)
+        ax.plot([float(row.lag_median_yr)], [lane], marker="D", markersize=5, markerfacecolor=style.CLAY,
+                markeredgecolor=style.INK, linestyle="none")
+        labels.append(f"{row.core_a} vs {row.core_b} ({row.variable} {row.kind}), "
+                      f"P(a leads) = {float(row.probability_a_leads):.2f}")
+    ax.axvline(0.0, color=style.INK, linewidth=0.8, linestyle=":")
+    ax.set_yticks(range(len(labels)), labels)
+    ax.set_ylim(len(labels) - 0.4, -0.6)
+    ax.grid(axis="y", visible=False)
+    ax.set_xlabel("lag: onset in core a minus onset in core b [yr]; positive = core a leads")
+    ax.set_title("lead/lag of events found in several cores (95 % range, median)")
     return fig

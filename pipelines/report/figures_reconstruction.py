@@ -59,7 +59,9 @@ def _samples_for(core: CoreData, series: Series) -> pd.DataFrame | None:
         ages = sample_ages(core, part["depth_cm"].to_numpy(float))
         if ages is None:
             return None
-    return pd.DataFrame({"age": ages,
+    outside = part["outside_calibration_range"].fillna(False).to_numpy(bool) \
+        if "outside_calibration_range" in part.columns else np.zeros(len(part), dtype=bool)
+    return pd.DataFrame({"age": ages, "outside": outside,
                          "median": pd.to_numeric(part["value_median"], errors="coerce"),
                          "low": pd.to_numeric(part.get("value_q025"), errors="coerce")
                          if "value_q025" in part.columns else np.nan,
@@ -93,6 +95,12 @@ def reconstruction_figure(core: CoreData, series: Series):
                     markeredgewidth=0.7, zorder=5)
         handles.append(Line2D([], [], linestyle="none", marker="o", markerfacecolor="white",
                               markeredgecolor=style.CLAY, label="calibrated samples (95 %)"))
+        outside = samples[samples["outside"]]
+        if len(outside):
+            ax.plot(outside["age"], outside["median"], linestyle="none", marker="x",
+                    markersize=5, color=style.INK, markeredgewidth=0.9, zorder=6)
+            handles.append(Line2D([], [], linestyle="none", marker="x", color=style.INK,
+                                  label="outside the calibrated range"))
     ax.set_ylabel(f"{series.variable}{_unit_text(series.units)}")
     ax.legend(handles=handles, loc="best", ncol=2)
     ax.set_title(f"{core.core_id}: {series.label}")
@@ -124,7 +132,7 @@ def reconstruction_figure(core: CoreData, series: Series):
         axn = axes[next_ax]
         count = pd.to_numeric(rows["n_samples"], errors="coerce").to_numpy(float)
         axn.fill_between(age, 0, count, step="mid", color=style.MOSS, alpha=0.7, linewidth=0)
-        axn.set_ylabel("samples")
+        axn.set_ylabel("samples [count]")
         axn.set_ylim(bottom=0)
     style.age_axis(axes[-1])
     return fig
@@ -155,7 +163,7 @@ def stack_figure(stack: pd.DataFrame, variable: str, units: str = ""):
     if has_count:
         count = pd.to_numeric(rows["n_records"], errors="coerce").to_numpy(float)
         axes[1].step(age, count, where="mid", color=style.MOSS)
-        axes[1].set_ylabel("records")
+        axes[1].set_ylabel("records [count]")
         axes[1].set_ylim(0, max(1.0, np.nanmax(count) if np.isfinite(count).any() else 1) + 0.5)
     style.age_axis(axes[-1])
     return fig

@@ -19,7 +19,15 @@ import pandas as pd
 from pipelines.report.style import SavedFigure, inline_svg
 
 __all__ = ["esc", "fmt", "anchor", "page", "section", "table_html", "figure_html", "note_html",
-           "key_value_html", "list_html"]
+           "key_value_html", "list_html", "range_text", "probability_text", "header_with_units"]
+
+#: the minus sign (U+2212) of printed negative numbers: "−79", not the hyphen "-79"
+MINUS = "\u2212"
+
+#: column-name endings -> the unit shown in a table header (``depth_cm`` -> "depth [cm]")
+UNIT_SUFFIXES = (("_yr_cm", "yr/cm"), ("_cal_bp", "cal BP"), ("_14c_bp", "14C yr BP"),
+                 ("_mmol_mol", "mmol/mol"), ("_percent", "%"), ("_permil", "‰"), ("_degc", "°C"),
+                 ("_cm", "cm"), ("_mm", "mm"), ("_yr", "yr"), ("_s", "s"))
 
 CSS = """
 :root { --ink: #20262b; --muted: #5a646b; --rule: #d5dde1; --paper: #fbfaf7;
@@ -39,6 +47,8 @@ h2 { margin-top: 2.4rem; padding-bottom: .2rem; border-bottom: 1px solid var(--i
 h3 { margin-top: 1.6rem; font-size: 1.05rem; color: var(--accent); text-transform: uppercase;
      letter-spacing: .06em; }
 section.core { page-break-before: always; }
+.table-box { max-width: 100%; overflow-x: auto; margin: .6rem 0 1rem; }
+.table-box table.data { margin: 0; }
 table.data { border-collapse: collapse; margin: .6rem 0 1rem; font-size: .86rem; background: #fff; }
 table.data th, table.data td { padding: .25rem .6rem; border-bottom: 1px solid var(--rule);
      text-align: left; vertical-align: top; }
@@ -92,6 +102,35 @@ def fmt(value: object) -> str:
     return text if text.strip() else "–"
 
 
+def _signed(value: float, digits: int) -> str:
+    return f"{value:.{digits}f}".replace("-", MINUS)
+
+
+def range_text(low: float, high: float, digits: int = 0) -> str:
+    """A range as printed in the report: ``"−79 to −59"`` (true minus signs, and "to", so a
+    negative bound cannot be read as a dash)."""
+    return f"{_signed(low, digits)} to {_signed(high, digits)}"
+
+
+def probability_text(p: float) -> str:
+    """A probability as printed: two decimals, ``"< 0.001"`` when tiny, ``"n/a"`` when missing."""
+    if p is None or not math.isfinite(float(p)):
+        return "n/a"
+    p = float(p)
+    if p < 0.001:
+        return "< 0.001"
+    return f"{p:.3f}" if p < 0.01 else f"{p:.2f}"
+
+
+def header_with_units(column: str) -> str:
+    """``"depth_cm"`` -> ``"depth [cm]"``; names without a known unit ending are kept."""
+    lowered = column.lower()
+    for suffix, unit in UNIT_SUFFIXES:
+        if lowered.endswith(suffix) and len(column) > len(suffix):
+            return f"{column[:-len(suffix)].replace('_', ' ')} [{unit}]"
+    return column
+
+
 def anchor(text: str) -> str:
     """An id usable as an in-page anchor."""
     return re.sub(r"[^A-Za-z0-9_-]+", "-", text).strip("-").lower() or "x"
@@ -99,10 +138,12 @@ def anchor(text: str) -> str:
 
 def table_html(table: pd.DataFrame, columns: Iterable[str] | None = None,
                headers: dict[str, str] | None = None, css_class: str = "data") -> str:
-    """A DataFrame as an HTML table (numbers right-aligned)."""
+    """A DataFrame as an HTML table (numbers right-aligned, unit endings of column names shown
+    as units in the header), in a box that scrolls sideways when the table is wider than the
+    page."""
     columns = [c for c in (columns or table.columns) if c in table.columns]
     headers = headers or {}
-    head = "".join(f"<th>{esc(headers.get(c, c))}</th>" for c in columns)
+    head = "".join(f"<th>{esc(headers.get(c, header_with_units(str(c))))}</th>" for c in columns)
     body = []
     for _, row in table.iterrows():
         cells = []
@@ -113,14 +154,14 @@ def table_html(table: pd.DataFrame, columns: Iterable[str] | None = None,
             cls = ' class="num"' if numeric else ""
             cells.append(f"<td{cls}>{esc(fmt(value))}</td>")
         body.append("<tr>" + "".join(cells) + "</tr>")
-    return (f'<table class="{css_class}"><thead><tr>{head}</tr></thead>'
-            f'<tbody>{"".join(body)}</tbody></table>')
+    return (f'<div class="table-box"><table class="{css_class}"><thead><tr>{head}</tr></thead>'
+            f'<tbody>{"".join(body)}</tbody></table></div>')
 
 
 def key_value_html(items: list[tuple[str, object]]) -> str:
     """A two-column table of labels and values."""
     rows = "".join(f"<tr><th>{esc(k)}</th><td>{esc(fmt(v))}</td></tr>" for k, v in items)
-    return f'<table class="data kv"><tbody>{rows}</tbody></table>'
+    return f'<div class="table-box"><table class="data kv"><tbody>{rows}</tbody></table></div>'
 
 
 def list_html(items: Iterable[str], css_class: str = "") -> str:
@@ -136,12 +177,14 @@ def note_html(text: str, kind: str = "") -> str:
 
 
 def figure_html(saved: SavedFigure, number: int) -> str:
-    """A numbered figure: inline SVG, caption and relative links to the PNG and SVG files."""
+    """A numbered figure: inline SVG, caption and relative links to its SVG (and PNG) file."""
     svg = inline_svg(saved.svg_text, f"f{number}")
+    links = [("SVG", saved.svg)] + ([("PNG", saved.png)] if saved.png else [])
+    files = " · ".join(f'<a href="{esc(path)}">{name}</a>' for name, path in links)
     svg = svg.replace('role="img"', f'role="img" aria-label="{esc(saved.title)}"', 1)
     return (f'<figure class="plot" id="fig-{esc(saved.key)}" data-figure="{esc(saved.key)}">'
             f"{svg}<figcaption><b>Figure {number}. {esc(saved.title)}.</b> {esc(saved.caption)} "
-            f'Files: <a href="{esc(saved.png)}">PNG</a> · <a href="{esc(saved.svg)}">SVG</a>.'
+            f"Files: {files}."
             "</figcaption></figure>")
 
 

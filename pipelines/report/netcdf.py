@@ -2,7 +2,7 @@
 
 Layout (CF-1.8, written with xarray's h5netcdf engine; see the README section "Exports")::
 
-    dimensions: core (C), age (T), quantile (Q), bound (2)
+    dimensions: core (C), age (T), quantile (Q), bound (2), sample (S, the most samples of a core)
     age(age)              float64  "year", calendar years before present (1950 CE)
     time(age)             float64  "days since 1950-01-01 00:00:00", calendar "365_day",
                                    standard_name "time", axis "T"  (= -365 * age)
@@ -14,6 +14,8 @@ Layout (CF-1.8, written with xarray's h5netcdf engine; see the README section "E
     <v>_n_samples(core, age)          samples behind each grid point
     <v>_reference_window(core, bound) reference window [cal BP]
     stack_<v>(quantile, age), stack_<v>_n_records(age)   regional composite
+    sample_<column>(core, sample)     every column of the cores' per-sample tables
+                                      (samples_dated.parquet; see netcdf_samples.py)
 
 Why two time coordinates: ages before present run backwards and CF's ``since`` units only
 run forwards, so the dimension coordinate ``age`` carries plain years (``units = "year"``,
@@ -34,6 +36,7 @@ import xarray as xr
 
 from pipelines.report.rundata import (RunData, Series, downcore_version, quantile_columns,
                                       reconstruction_series)
+from pipelines.report.netcdf_samples import cores_with_samples, sample_variables
 from pipelines.runfolder import atomic_write_bytes
 
 __all__ = ["NETCDF_NAME", "build_dataset", "write_netcdf", "cf_units", "standard_name_for",
@@ -140,14 +143,18 @@ def build_dataset(run: RunData) -> xr.Dataset | None:
     """The CF dataset of a run's reconstructions and composite, or None if there are none."""
     pairs = _series_by_core(run)
     stack = run.stack if run.stack is not None and len(run.stack) else None
-    if not pairs and stack is None:
+    dated = cores_with_samples(run)
+    if not pairs and stack is None and not dated:
         return None
     tables = [s.rows for _, s in pairs] + ([stack] if stack is not None else [])
-    ages = np.unique(np.concatenate([t["age_cal_bp"].to_numpy(float) for t in tables]))
+    ages = np.unique(np.concatenate([t["age_cal_bp"].to_numpy(float) for t in tables] or [np.zeros(0)]))
     ages = ages[np.isfinite(ages)]
     age_index = {float(a): i for i, a in enumerate(ages)}
     levels = _quantile_levels(tables)
-    core_ids = list(dict.fromkeys(cid for cid, _ in pairs))
+    reconstructed = {cid for cid, _ in pairs}
+    core_ids = [c.core_id for c in run.cores if c.core_id in reconstructed or c.core_id in dated]
+    core_ids += [cid for cid, _ in pairs if cid not in core_ids]
+    core_ids = list(dict.fromkeys(core_ids))
     core_index = {c: i for i, c in enumerate(core_ids)}
     names = _names(pairs)
     units_by_variable: dict[str, str] = {}
@@ -227,6 +234,7 @@ def build_dataset(run: RunData) -> xr.Dataset | None:
                 data_vars[f"{name}_n_records"] = xr.Variable(
                     ("age",), n, {"long_name": f"number of cores in the composite of {variable}",
                                   "units": "1", "_FillValue": np.int32(-1)})
+    data_vars.update(sample_variables(run, core_ids))
     coords = {
         "age": ("age", ages, {"long_name": "age in calendar years before present (1950 CE)",
                               "units": "year",

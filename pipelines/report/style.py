@@ -1,9 +1,12 @@
 """The report's look: palette, line styles, Matplotlib settings and deterministic saving.
 
 Our own palette, chosen to survive grey-scale printing: series are told apart by lightness,
-line style and marker as well as by hue. Every figure is drawn with the Agg backend (no
-display) and saved as PNG and SVG with the dates and software stamps removed and a fixed
-SVG hash salt, so that a rerun gives byte-identical files.
+line style and marker as well as by hue. Every figure is drawn once, as SVG (the report shows
+it inline), with text kept as text, and artists holding thousands of points (ensemble lines,
+date densities, long bands) rasterised inside the SVG at :data:`RASTER_DPI`, so a figure
+stays light whatever the ensemble size. A PNG copy is drawn only on request. Dates and
+software stamps are removed and the SVG hash salt is fixed, so a rerun gives byte-identical
+files.
 """
 
 from __future__ import annotations
@@ -26,7 +29,8 @@ from pipelines.runfolder import atomic_write_bytes  # noqa: E402
 
 __all__ = ["INK", "SLATE", "SAND", "CLAY", "MOSS", "FOG", "PAPER", "BAND_DARK", "BAND_LIGHT",
            "WARM", "COOL", "SERIES_STYLES", "report_style", "new_figure", "SavedFigure",
-           "save_figure", "inline_svg", "age_axis"]
+           "save_figure", "inline_svg", "age_axis", "rasterise_dense", "ensemble_lines",
+           "without_embedded_pictures"]
 
 # Palette (hex). Lightness (L* roughly) in brackets: the grey-scale print keeps them apart.
 INK = "#20262b"        # near-black blue-grey: medians, text            [L* 15]
@@ -77,12 +81,21 @@ _RC = {
     "figure.facecolor": "white",
     "savefig.facecolor": "white",
     "svg.hashsalt": "downcore-report",
-    "svg.fonttype": "path",
+    "svg.fonttype": "none",
     "path.simplify": True,
 }
 
 #: PNG resolution [dots per inch]
 PNG_DPI = 120
+
+#: resolution of the rasterised parts inside an SVG [dots per inch]
+RASTER_DPI = 100
+
+#: an artist with more vertices than this is rasterised inside the SVG
+DENSE_VERTICES = 600
+
+#: a collection of more than this many separate paths (error bars, markers) is rasterised too
+MANY_PATHS = 100
 
 
 @contextlib.contextmanager
@@ -113,7 +126,7 @@ class SavedFigure:
     key: str
     title: str
     caption: str
-    png: str
+    png: str | None
     svg: str
     svg_text: str
 
@@ -124,16 +137,56 @@ def _png_bytes(fig: Figure) -> bytes:
     return buffer.getvalue()
 
 
+_PATH_DATA = re.compile(r'(?<=\sd=")[^"]*')
+_DECIMALS = re.compile(r"(\d+\.\d{2})\d+")
+
+
+def _compact_path(match: re.Match) -> str:
+    """Path data with coordinates to 0.01 pt (1/7200 inch) and one line per path."""
+    return _DECIMALS.sub(r"\1", match.group(0)).replace(" \n", " ").replace("\n", " ")
+
+
 def _svg_text(fig: Figure) -> str:
     buffer = io.StringIO()
-    fig.savefig(buffer, format="svg",
+    fig.savefig(buffer, format="svg", dpi=RASTER_DPI,
                 metadata={"Date": None, "Creator": None, "Format": None, "Type": None})
-    return buffer.getvalue()
+    return _PATH_DATA.sub(_compact_path, buffer.getvalue())
+
+
+def _vertex_count(artist) -> int:
+    if hasattr(artist, "get_xydata"):
+        return len(artist.get_xydata())
+    if hasattr(artist, "get_paths"):
+        return sum(len(path.vertices) for path in artist.get_paths())
+    return 0
+
+
+def rasterise_dense(fig: Figure, limit: int = DENSE_VERTICES) -> int:
+    """Mark every line or collection of ``fig`` holding more than ``limit`` vertices or more
+    than :data:`MANY_PATHS` separate paths for rasterising inside vector output (thin
+    ensemble lines are marked when drawn, see :func:`ensemble_lines`); return how many were
+    marked."""
+    marked = 0
+    for ax in fig.axes:
+        for artist in [*ax.lines, *ax.collections]:
+            many_paths = len(getattr(artist, "get_paths", list)()) > MANY_PATHS
+            if not artist.get_rasterized() and (many_paths or _vertex_count(artist) > limit):
+                artist.set_rasterized(True)
+                marked += 1
+    return marked
+
+
+def ensemble_lines(ax, x, y, **style_kw) -> None:
+    """Draw each column of ``x`` (or ``y``) as a thin line, rasterised in vector output
+    (many members are one picture, not thousands of separate paths)."""
+    for line in ax.plot(x, y, **style_kw):
+        line.set_rasterized(True)
 
 
 def save_figure(fig: Figure, run_dir: pathlib.Path, key: str, title: str,
-                caption: str) -> SavedFigure:
-    """Write ``figures/<key>.png`` and ``figures/<key>.svg`` atomically and close the figure.
+                caption: str, png: bool = False) -> SavedFigure:
+    """Write ``figures/<key>.svg`` (and ``figures/<key>.png`` when ``png``) atomically and
+    close the figure.
 
     Parameters
     ----------
@@ -145,17 +198,32 @@ def save_figure(fig: Figure, run_dir: pathlib.Path, key: str, title: str,
         File stem, unique in the run (letters, digits, ``-``, ``_``).
     title, caption : str
         Shown above and below the figure in the report.
+    png : bool
+        Also write a PNG copy (a second drawing, at :data:`PNG_DPI`).
     """
     safe = re.sub(r"[^A-Za-z0-9_.-]+", "_", key)
-    png = _png_bytes(fig)
-    # the layout is settled by the first save; freezing it saves a second constrained-layout
-    # pass (the slowest part of drawing) and keeps the SVG identical in layout to the PNG
-    fig.set_layout_engine("none")
+    rasterise_dense(fig)
     svg = _svg_text(fig)
+    png_name = None
+    if png:
+        # the layout is settled by the first save; freezing it saves a second constrained-layout
+        # pass (the slowest part of drawing) and keeps the PNG identical in layout to the SVG
+        fig.set_layout_engine("none")
+        png_name = f"figures/{safe}.png"
+        atomic_write_bytes(run_dir / png_name, _png_bytes(fig))
     plt.close(fig)
-    atomic_write_bytes(run_dir / "figures" / f"{safe}.png", png)
     atomic_write_bytes(run_dir / "figures" / f"{safe}.svg", svg.encode("utf-8"))
-    return SavedFigure(safe, title, caption, f"figures/{safe}.png", f"figures/{safe}.svg", svg)
+    return SavedFigure(safe, title, caption, png_name, f"figures/{safe}.svg", svg)
+
+
+#: a picture embedded in an SVG (a rasterised part of a figure): data, not an address
+EMBEDDED_PICTURE = re.compile(r"data:image/png;base64,[A-Za-z0-9+/=\s]+")
+
+
+def without_embedded_pictures(text: str) -> str:
+    """``text`` with the payload of every embedded picture removed (its base64 letters can
+    spell anything, ``//`` included), for checks that the page refers to no address."""
+    return EMBEDDED_PICTURE.sub("data:image/png;base64,", text)
 
 
 _PROLOGUE = re.compile(r"^.*?(?=<svg\b)", re.S)

@@ -19,6 +19,7 @@ mgca_elderfield2000 Mg/Ca = 0.52 exp(0.10 T)                    Elderfield & Gan
 uk37_mueller1998    UK'37 = 0.033 T + 0.044                     Mueller et al. 1998
 uk37_prahl1988      UK'37 = 0.034 T + 0.039                     Prahl et al. 1988
 tex86_kim2010       T = 68.4 log10(TEX86) + 38.6                Kim et al. 2010 (TEX86H)
+tex86l_kim2010      T = 67.5 TEX86L + 46.9                      Kim et al. 2010 (TEX86L)
 d18o_shackleton1974 T = 16.9 - 4.38 d + 0.10 d^2,               Shackleton 1974; Hut 1987
                     d = dc(VPDB) - (dw(VSMOW) - 0.27)
 d18o_kim1997        1000 ln a = 18.03 (1e3 / T[K]) - 32.42      Kim & O'Neil 1997; Coplen 1983
@@ -42,6 +43,7 @@ __all__ = [
     "uk37_from_temperature_mueller1998", "temperature_from_uk37_mueller1998",
     "uk37_from_temperature_prahl1988", "temperature_from_uk37_prahl1988",
     "tex86_from_temperature_kim2010", "temperature_from_tex86_kim2010",
+    "tex86l_from_temperature_kim2010", "temperature_from_tex86l_kim2010",
     "vpdb_from_vsmow_water_hut1987", "vsmow_from_vpdb_calcite_coplen1983",
     "temperature_from_d18o_shackleton1974", "d18o_from_temperature_shackleton1974",
     "temperature_from_d18o_kim1997", "d18o_from_temperature_kim1997",
@@ -170,6 +172,25 @@ def tex86_from_temperature_kim2010(temperature, slope=68.4, intercept=38.6):
     return 10.0 ** ((np.asarray(temperature, dtype=float) - intercept) / slope)
 
 
+def temperature_from_tex86l_kim2010(tex86l, slope=67.5, intercept=46.9):
+    """SST [degC] from the low-temperature index: ``T = 67.5 TEX86L + 46.9``.
+
+    ``TEX86L = log10(GDGT-2 / (GDGT-1 + GDGT-2 + GDGT-3))`` (a logarithm already, so it is
+    negative); the companion of the TEX86H equation for waters below about 15 degC.
+
+    References
+    ----------
+    Kim, J.-H. et al. (2010). Geochim. Cosmochim. Acta 74, 4639-4654, eq. for TEX86L.
+    doi:10.1016/j.gca.2010.05.027
+    """
+    return climate_from_linear(tex86l, 1.0 / slope, -intercept / slope)
+
+
+def tex86l_from_temperature_kim2010(temperature, slope=67.5, intercept=46.9):
+    """TEX86L from SST [degC]: ``TEX86L = (T - 46.9) / 67.5`` (Kim et al. 2010)."""
+    return (np.asarray(temperature, dtype=float) - intercept) / slope
+
+
 # --------------------------------------------------------------------------- oxygen isotopes
 def vpdb_from_vsmow_water_hut1987(d18o_water_vsmow, offset=-0.27):
     """Express a water d18O [permil VSMOW] on the VPDB scale: ``dw(VPDB) = dw(VSMOW) - 0.27``.
@@ -296,6 +317,16 @@ class PublishedEquation:
         The inverse (used for reconstruction) and forward functions.
     needs_seawater : bool
         True for d18O equations, which take a seawater d18O [permil VSMOW] argument.
+    climate_range : (float, float)
+        Climate values of the paper's calibration data [units]; samples outside are flagged.
+    companion : str
+        Another equation of the field for the range beyond this one ('' when none), with why.
+
+    Notes
+    -----
+    ``residual_sd`` is the paper's *total* calibration error; the coefficients are stored
+    without their sigmas because the papers give no covariance for them, and drawing both
+    would count the calibration error twice.
     """
 
     name: str
@@ -310,6 +341,17 @@ class PublishedEquation:
     climate_from_proxy: Callable
     proxy_from_climate: Callable
     needs_seawater: bool = False
+    climate_range: tuple[float, float] = (-np.inf, np.inf)
+    companion: str = ""
+
+    @property
+    def proxy_range(self) -> tuple[float, float] | None:
+        """Proxy values that correspond to :attr:`climate_range` (``None`` for the d18O
+        equations, whose proxy also depends on seawater d18O)."""
+        if self.needs_seawater:
+            return None
+        ends = np.sort(np.asarray(self.proxy_from_climate(np.asarray(self.climate_range))))
+        return float(ends[0]), float(ends[1])
 
 
 def _frozen(mapping):
@@ -321,29 +363,34 @@ PUBLISHED_EQUATIONS: Mapping[str, PublishedEquation] = _frozen({
         PublishedEquation(
             "mgca_anand2003", "Mg/Ca [mmol/mol]", "temperature", "degC",
             "Mg/Ca = 0.38 exp(0.090 T)",
-            _frozen({"a": Coefficient(0.38, 0.02), "b": Coefficient(0.090, 0.003)}), 1.2,
+            _frozen({"a": Coefficient(0.38), "b": Coefficient(0.090)}), 1.2,
             "Anand et al. (2003), Paleoceanography 18:1050, doi:10.1029/2002PA000846",
-            "a = 0.38 +- 0.02, b = 0.090 +- 0.003 and +-1.2 degC as stated in the paper "
-            "(from memory)",
-            temperature_from_mgca_anand2003, mgca_from_temperature_anand2003),
+            "+-1.2 degC total as stated in the paper (from memory); the paper's a = 0.38 +- "
+            "0.02 and b = 0.090 +- 0.003 are part of that total and are not drawn again; "
+            "calibrated on about 8-30 degC (from memory)",
+            temperature_from_mgca_anand2003, mgca_from_temperature_anand2003,
+            climate_range=(8.0, 30.0)),
         PublishedEquation(
             "mgca_elderfield2000", "Mg/Ca [mmol/mol]", "temperature", "degC",
             "Mg/Ca = 0.52 exp(0.10 T)",
             _frozen({"a": Coefficient(0.52), "b": Coefficient(0.10)}), 1.2,
             "Elderfield & Ganssen (2000), Nature 405:442, doi:10.1038/35013033",
             "coefficient sigmas not recalled (0); residual 1.2 degC assumed like Anand et al. "
-            "2003 (common practice) -- set residual_error to the paper's value",
-            temperature_from_mgca_elderfield2000, mgca_from_temperature_elderfield2000),
+            "2003 (common practice) -- set residual_error to the paper's value; core tops of "
+            "about 1-25 degC (from memory)",
+            temperature_from_mgca_elderfield2000, mgca_from_temperature_elderfield2000,
+            climate_range=(1.0, 25.0)),
         PublishedEquation(
             "uk37_mueller1998", "UK'37 [unitless]", "sst", "degC",
             "UK'37 = 0.033 T + 0.044",
-            _frozen({"slope": Coefficient(0.033, 0.0), "intercept": Coefficient(0.044, 0.0)}),
+            _frozen({"slope": Coefficient(0.033), "intercept": Coefficient(0.044)}),
             1.5,
             "Mueller et al. (1998), Geochim. Cosmochim. Acta 62:1757, "
             "doi:10.1016/S0016-7037(98)00097-0",
-            "standard error of estimate about 1.5 degC (from memory); coefficient sigmas not "
-            "recalled (0)",
-            temperature_from_uk37_mueller1998, uk37_from_temperature_mueller1998),
+            "standard error of estimate about 1.5 degC (from memory); core tops of 0-29 degC "
+            "(60N-60S), UK'37 saturates near 1 at the warm end (from memory)",
+            temperature_from_uk37_mueller1998, uk37_from_temperature_mueller1998,
+            climate_range=(0.0, 29.0)),
         PublishedEquation(
             "uk37_prahl1988", "UK'37 [unitless]", "temperature", "degC",
             "UK'37 = 0.034 T + 0.039",
@@ -351,15 +398,29 @@ PUBLISHED_EQUATIONS: Mapping[str, PublishedEquation] = _frozen({
             "Prahl et al. (1988), Geochim. Cosmochim. Acta 52:2303, "
             "doi:10.1016/0016-7037(88)90132-9",
             "residual 1.5 degC assumed as for Mueller et al. 1998 (common practice); set "
-            "residual_error to the paper's value",
-            temperature_from_uk37_prahl1988, uk37_from_temperature_prahl1988),
+            "residual_error to the paper's value; cultures at about 8-25 degC (from memory)",
+            temperature_from_uk37_prahl1988, uk37_from_temperature_prahl1988,
+            climate_range=(8.0, 25.0)),
         PublishedEquation(
             "tex86_kim2010", "TEX86 [unitless]", "sst", "degC",
             "T = 68.4 log10(TEX86) + 38.6",
             _frozen({"slope": Coefficient(68.4), "intercept": Coefficient(38.6)}), 2.5,
             "Kim et al. (2010), Geochim. Cosmochim. Acta 74:4639, doi:10.1016/j.gca.2010.05.027",
-            "calibration error +-2.5 degC for TEX86H (from memory)",
-            temperature_from_tex86_kim2010, tex86_from_temperature_kim2010),
+            "calibration error +-2.5 degC for TEX86H, recommended above 15 degC; core tops up "
+            "to about 30 degC (from memory)",
+            temperature_from_tex86_kim2010, tex86_from_temperature_kim2010,
+            climate_range=(15.0, 30.0),
+            companion="tex86l_kim2010 (TEX86L index) for waters below 15 degC"),
+        PublishedEquation(
+            "tex86l_kim2010", "TEX86L [unitless, log10]", "sst", "degC",
+            "T = 67.5 TEX86L + 46.9",
+            _frozen({"slope": Coefficient(67.5), "intercept": Coefficient(46.9)}), 4.0,
+            "Kim et al. (2010), Geochim. Cosmochim. Acta 74:4639, doi:10.1016/j.gca.2010.05.027",
+            "calibration error +-4.0 degC for TEX86L on core tops of about -3 to 30 degC "
+            "(from memory)",
+            temperature_from_tex86l_kim2010, tex86l_from_temperature_kim2010,
+            climate_range=(-3.0, 30.0),
+            companion="tex86_kim2010 (TEX86H) above 15 degC, with the smaller error"),
         PublishedEquation(
             "d18o_shackleton1974", "calcite d18O [permil VPDB]", "temperature", "degC",
             "T = 16.9 - 4.38 (dc - dw) + 0.10 (dc - dw)^2, dw(VPDB) = dw(VSMOW) - 0.27",
@@ -367,8 +428,9 @@ PUBLISHED_EQUATIONS: Mapping[str, PublishedEquation] = _frozen({
             0.5,
             "Shackleton (1974), Colloq. Int. CNRS 219:203; VSMOW->VPDB: Hut (1987)",
             "no stated uncertainty recalled; 0.5 degC residual is an allowance (common "
-            "practice)",
-            temperature_from_d18o_shackleton1974, d18o_from_temperature_shackleton1974, True),
+            "practice); benthic foraminifera at about -2 to 22 degC (from memory)",
+            temperature_from_d18o_shackleton1974, d18o_from_temperature_shackleton1974, True,
+            climate_range=(-2.0, 22.0)),
         PublishedEquation(
             "d18o_kim1997", "calcite d18O [permil VPDB]", "temperature", "degC",
             "1000 ln(alpha) = 18.03 (1e3/T[K]) - 32.42",
@@ -376,8 +438,9 @@ PUBLISHED_EQUATIONS: Mapping[str, PublishedEquation] = _frozen({
             "Kim & O'Neil (1997), Geochim. Cosmochim. Acta 61:3461, "
             "doi:10.1016/S0016-7037(97)00169-5; VPDB->VSMOW: Coplen et al. (1983)",
             "no stated uncertainty recalled; 0.5 degC residual is an allowance (common "
-            "practice)",
-            temperature_from_d18o_kim1997, d18o_from_temperature_kim1997, True),
+            "practice); synthetic calcite at 10-40 degC",
+            temperature_from_d18o_kim1997, d18o_from_temperature_kim1997, True,
+            climate_range=(10.0, 40.0)),
     ]
 })
 

@@ -8,7 +8,7 @@ from sklearn.utils.validation import check_is_fitted, validate_data
 
 from .wa import row_profiles
 
-__all__ = ["MAT", "squared_chord_distances", "nearest_analogues"]
+__all__ = ["MAT", "squared_chord_distances", "nearest_analogues", "distance_roots"]
 
 _BLOCK = 1024  # rows per block: bounds memory at _BLOCK x n_train float64
 
@@ -70,11 +70,32 @@ def nearest_analogues(roots_query, roots_train, k, exclude=None):
     return distances, indices
 
 
+def distance_roots(X, transform="none"):
+    """Rows whose squared Euclidean distances are the squared-chord distances.
+
+    ``transform`` says what was already done to the abundances (applied once, never
+    again): ``"none"`` -> square roots of the row proportions; ``"sqrt"`` -> the rows are
+    already square roots of abundances, so they are scaled to unit length
+    (``sqrt(p / sum p) = r / |r|``) and give exactly the squared-chord distance of the
+    untransformed abundances; ``"log"`` -> square roots of the proportions of the
+    transformed values (squared-chord distance of ``ln(1 + x)``).
+    """
+    X = np.asarray(X, dtype=float)
+    if transform == "sqrt":
+        norms = np.sqrt(np.einsum("ij,ij->i", X, X))[:, None]
+        with np.errstate(invalid="ignore", divide="ignore"):
+            return np.where(norms > 0, X / np.where(norms > 0, norms, 1.0), np.nan)
+    if transform in ("none", "log"):
+        return np.sqrt(row_profiles(X))
+    raise ValueError(f"unknown transform {transform!r}; use 'none', 'sqrt' or 'log'")
+
+
 class MAT(RegressorMixin, BaseEstimator):
     """Modern analogue technique: the mean target of the k nearest training samples.
 
     Distances are squared-chord distances between sample proportions (rows divided by
-    their totals), ranging from 0 (identical) to 2 (no taxon in common).
+    their totals), ranging from 0 (identical) to 2 (no taxon in common); with
+    ``input_transform`` the inputs' transform is taken into account (:func:`distance_roots`).
 
     Parameters
     ----------
@@ -82,6 +103,8 @@ class MAT(RegressorMixin, BaseEstimator):
         Number of analogues k.
     weighted : bool
         Weight analogues by inverse distance instead of a plain mean.
+    input_transform : {"none", "sqrt", "log"}
+        The transform already applied to ``X`` (see :func:`distance_roots`).
 
     Attributes
     ----------
@@ -96,9 +119,10 @@ class MAT(RegressorMixin, BaseEstimator):
     doi:10.1016/0033-5894(85)90074-2
     """
 
-    def __init__(self, n_analogues=5, weighted=False):
+    def __init__(self, n_analogues=5, weighted=False, input_transform="none"):
         self.n_analogues = n_analogues
         self.weighted = weighted
+        self.input_transform = input_transform
 
     def __sklearn_tags__(self):
         tags = super().__sklearn_tags__()
@@ -114,14 +138,14 @@ class MAT(RegressorMixin, BaseEstimator):
             raise ValueError("Negative values in data: abundances must be non-negative")
         if not np.any(X.sum(axis=1) > 0):
             raise ValueError("no training sample has a positive total abundance")
-        self.training_roots_ = np.sqrt(row_profiles(X))
+        self.training_roots_ = distance_roots(X, self.input_transform)
         self.training_target_ = np.asarray(y, dtype=float)
         return self
 
     def _roots(self, X):
         check_is_fitted(self)
         X = validate_data(self, X, reset=False, dtype=np.float64)
-        return np.sqrt(row_profiles(X))
+        return distance_roots(X, self.input_transform)
 
     def kneighbors(self, X, n_analogues=None):
         """Distances and indices of the nearest training samples, each (n_samples, k)."""

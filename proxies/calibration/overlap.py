@@ -20,7 +20,7 @@ from .skill import (coefficient_of_efficiency, durbin_watson, effective_sample_s
 __all__ = [
     "aggregate_windows", "OverlapFit", "fit_inverse", "fit_classical",
     "fit_errors_in_variables", "FITS", "split_period_skill", "OverlapCalibration",
-    "calibrate_overlap",
+    "calibrate_overlap", "inflate_for_autocorrelation", "with_residual_sd",
 ]
 
 
@@ -228,23 +228,79 @@ class OverlapCalibration:
     Attributes
     ----------
     values : ndarray (n, M)
-        Climate ensemble for every proxy sample (NaN where the proxy is missing or the
-        member had too few overlap pairs).
+        Climate ensemble for every proxy sample (NaN where the proxy is missing, and for
+        every sample of a member that could not be fitted at all).
     skill : pandas.DataFrame
         One row per period (``full``, ``verify_early``, ``verify_late``): medians over the
         members of ``n_calibration, n_verification, r2, rmse, re, ce, durbin_watson,
-        n_effective`` and ``n_members`` used.
+        n_effective``, the members used (``n_members``), those fitted on fewer than
+        ``min_pairs`` pairs (``n_members_few_pairs``) and those that could not be fitted
+        (``n_members_failed``: fewer than 3 pairs or no spread).
     has_skill : bool
-        False when the median verification RE of either split is <= 0 (or not computable).
+        False when the median verification RE (and CE, with ``skill_test = "re_and_ce"``)
+        of either split is <= 0 or not computable.
+    median_pairs : float
+        Median number of overlap pairs over the members.
     """
 
     values: np.ndarray
     skill: pd.DataFrame
     has_skill: bool
+    median_pairs: float = float("nan")
+
+    @property
+    def n_failed(self) -> int:
+        return int(self.skill["n_members_failed"].iloc[0])
 
 
-def calibrate_overlap(proxy, climate, age_cal_bp, method, rng, error_ratio=None, min_pairs=8):
+def inflate_for_autocorrelation(fit: OverlapFit, n_effective: float) -> OverlapFit:
+    """The fit with its coefficient covariance scaled by ``n / n_eff``.
+
+    Autocorrelated pairs carry less information than their number says; the standard
+    errors of the coefficients grow like ``sqrt(n / n_eff)`` (Bretherton et al. 1999).
+    """
+    scale = max(fit.n / max(n_effective, 2.0), 1.0)
+    return OverlapFit(fit.method, fit.intercept, fit.slope, fit.covariance * scale,
+                      fit.residual_sd, fit.n)
+
+
+def with_residual_sd(fit: OverlapFit, residual_sd: float) -> OverlapFit:
+    """The fit with another residual scatter [units of the line's dependent variable]."""
+    return OverlapFit(fit.method, fit.intercept, fit.slope, fit.covariance, float(residual_sd),
+                      fit.n)
+
+
+#: quantile of the members' residual scatter used for every member (see calibrate_overlap)
+ALIGNED_QUANTILE = 0.05
+
+
+def _member_fit(p, c, method, error_ratio):
+    """The fit of one member with its covariance scaled for autocorrelation: the effective
+    sample size of the regressor and the residuals (the two series whose products make up
+    the slope's error; Bretherton et al. 1999, eq. 31)."""
+    fit = _fit(method, p, c, error_ratio)
+    regressor, dependent = (c, p) if method == "classical" else (p, c)
+    residual = dependent - (fit.intercept + fit.slope * regressor)
+    n_eff = effective_sample_size(p.size, lag1_autocorrelation(regressor),
+                                  lag1_autocorrelation(residual))
+    return inflate_for_autocorrelation(fit, n_eff)
+
+
+def calibrate_overlap(proxy, climate, age_cal_bp, method, rng, error_ratio=None, min_pairs=8,
+                      skill_test="re_and_ce"):
     """Fit, verify and apply a proxy-climate line for every age-ensemble member.
+
+    No member is dropped: a member with fewer than ``min_pairs`` pairs is fitted on the
+    pairs it has (its coefficient covariance is then wider); one that cannot be fitted at
+    all (fewer than 3 pairs, or no spread) is counted in ``n_members_failed`` -- the caller
+    refuses the record then, because keeping only the other members would bias the ages.
+    The coefficient covariance is scaled by ``n / n_eff`` (effective sample size of the
+    autocorrelated pairs). A member whose ages are off pairs each proxy value with the
+    climate of the wrong years, which inflates its scatter by age error that the members
+    already carry; the scatter of the best-aligned members (the ``ALIGNED_QUANTILE`` of the
+    members' residual SDs, our choice checked by the coverage simulation in
+    tests/test_overlap_coverage.py) is used for every member instead. Coefficients are drawn
+    once per member (shared by its samples), the residual scatter per sample.
 
     Parameters
     ----------
@@ -260,35 +316,48 @@ def calibrate_overlap(proxy, climate, age_cal_bp, method, rng, error_ratio=None,
     error_ratio : float or None
         For errors-in-variables, see :func:`fit_errors_in_variables`.
     min_pairs : int
-        Members with fewer overlap pairs give NaN.
+        Members with fewer overlap pairs are counted in ``n_members_few_pairs``.
+    skill_test : {"re_and_ce", "re"}
     """
     proxy = np.asarray(proxy, dtype=float)
     n, M = climate.shape
     values = np.full((n, M), np.nan)
     rows = {"full": [], "verify_early": [], "verify_late": []}
     has_proxy = np.isfinite(proxy)
+    failed = few = 0
+    pairs_per_member = np.zeros(M)
+    fits = {}
     for m in range(M):
         pair = has_proxy & np.isfinite(climate[:, m])
-        if pair.sum() < min_pairs:
-            continue
+        pairs_per_member[m] = pair.sum()
         order = np.flatnonzero(pair)[np.argsort(-age_cal_bp[pair, m], kind="stable")]
         p, c = proxy[order], climate[order, m]
-        if np.ptp(p) == 0 or np.ptp(c) == 0:
+        if p.size < 3 or np.ptp(p) == 0 or np.ptp(c) == 0:
+            failed += 1
             continue
-        fit = _fit(method, p, c, error_ratio)
-        values[has_proxy, m] = fit.draw_climate(proxy[has_proxy], rng)
-        rows["full"].append(_full_skill(p, c, fit))
-        rows["verify_early"].append(split_period_skill(p, c, method, "early", error_ratio))
-        rows["verify_late"].append(split_period_skill(p, c, method, "late", error_ratio))
+        few += int(p.size < min_pairs)
+        fits[m] = _member_fit(p, c, method, error_ratio)
+        rows["full"].append(_full_skill(p, c, fits[m]))
+        if p.size >= 6:
+            rows["verify_early"].append(split_period_skill(p, c, method, "early", error_ratio))
+            rows["verify_late"].append(split_period_skill(p, c, method, "late", error_ratio))
+    if fits:
+        aligned = float(np.quantile([f.residual_sd for f in fits.values()], ALIGNED_QUANTILE))
+        for m, fit in fits.items():
+            fit = with_residual_sd(fit, min(fit.residual_sd, aligned))
+            values[has_proxy, m] = fit.draw_climate(proxy[has_proxy], rng)
     table = []
     for period, stats in rows.items():
         frame = pd.DataFrame(stats)
-        row = {"period": period, "n_members": len(stats)}
+        row = {"period": period, "n_members": len(stats), "n_members_few_pairs": few,
+               "n_members_failed": failed}
         for column in ("n_calibration", "n_verification", "r2", "rmse", "re", "ce",
                        "durbin_watson", "n_effective"):
             row[column] = float(frame[column].median()) if len(frame) else np.nan
         table.append(row)
     skill = pd.DataFrame(table)
-    re = skill.loc[skill["period"] != "full", "re"].to_numpy()
-    has_skill = bool(np.all(np.isfinite(re)) and np.all(re > 0))
-    return OverlapCalibration(values, skill, has_skill)
+    verify = skill.loc[skill["period"] != "full"]
+    tests = ("re", "ce") if skill_test == "re_and_ce" else ("re",)
+    scores = verify[list(tests)].to_numpy()
+    has_skill = bool(np.all(np.isfinite(scores)) and np.all(scores > 0))
+    return OverlapCalibration(values, skill, has_skill, float(np.median(pairs_per_member)))

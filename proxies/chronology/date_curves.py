@@ -19,7 +19,7 @@ from proxies.chronology.curves import CalibrationCurve, blend_curves
 from proxies.cores.validation import resolve_curve_name
 from proxies.problems import Problem
 
-__all__ = ["curve_choice", "calibrate_radiocarbon_rows"]
+__all__ = ["curve_choice", "calibrate_radiocarbon_rows", "lead210_rows"]
 
 
 def curve_choice(cell, settings, curves: dict) -> CurveChoice | None:
@@ -75,8 +75,11 @@ def calibrate_radiocarbon_rows(table: pd.DataFrame, rows, curves: dict, settings
     for key, (choice, positions) in groups.items():
         positions = np.asarray(positions)
         ages = table["age"].to_numpy(float)[positions]
+        errors = table["error"].to_numpy(float)[positions]
         young_end = min(curves[name].cal_range[0] for name in choice.names)
-        post_bomb = ages < 0
+        lowest = min(float(curves[name].c14_age.min()) for name in choice.names)
+        # post-bomb: F14C > 1 beyond the curve's youngest radiocarbon age by more than 4 sigma
+        post_bomb = (ages < 0) & (ages + 4 * errors < lowest)
         if young_end >= 0 and post_bomb.any():
             for i in positions[post_bomb]:
                 problems.append(Problem(
@@ -118,3 +121,21 @@ def _calibrate_group(table, positions, weighted_curves, settings, file, key, row
     if len(pieces) == 1:
         return pieces[0], []
     return average_calibrated(pieces, np.asarray(weights)), []
+
+
+def lead210_rows(core, settings, columns, rng: np.random.Generator) -> pd.DataFrame:
+    """The 210Pb ages of a core as calendar constraints (rows for the dates table).
+
+    Each dated 210Pb sample becomes a calendar age ``1950 - collected + t`` [cal BP] with its
+    Monte Carlo error (at least 1 yr), labelled ``210Pb <depth> cm``, a constraint (no
+    outlier component). The Monte Carlo draws come from ``rng``.
+    """
+    from proxies.chronology.lead210 import lead210_ages
+
+    ages = lead210_ages(core.lead210, settings.lead210_model, settings.lead210_draws, rng)
+    rows = {c: [None] * len(ages) for c in columns}
+    rows.update(label=[f"210Pb {d:g} cm" for d in ages["depth_cm"]], depth_cm=ages["depth_cm"].to_numpy(float),
+                kind="calendar", age=core.top_age_cal_bp + ages["age_yr"].to_numpy(float),
+                error=np.maximum(ages["error_yr"].to_numpy(float), 1.0), thickness_cm=0.0, reservoir_offset=0.0,
+                reservoir_error=0.0, exclude=False, source_row=np.nan, constraint=True)
+    return pd.DataFrame(rows)

@@ -81,6 +81,9 @@ class ChronologySettings:
                              "that cannot be an outlier; core.toml's top_intact overrides it per core")
     top_age_error_yr: float = setting(5.0, "core-top error when core.toml gives none [yr]",
                                       low=0.0, low_open=True)
+    lead210_model: str = setting("crs", "model dating a core's lead210 table (CRS: constant rate of "
+                                 "supply; CIC: constant initial concentration)", choices=("crs", "cic"))
+    lead210_draws: int = setting(1000, "Monte Carlo draws of the 210Pb activities", low=10, high=100000)
     output_step_cm: float = setting(1.0, "depth step of chronology.parquet and the ensemble table [cm]",
                                     low=0.0, low_open=True)
 

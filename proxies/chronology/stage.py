@@ -22,7 +22,7 @@ from proxies.chronology.calibrate import (
     stack_calibrated,
 )
 from proxies.chronology.curves import CalibrationCurve
-from proxies.chronology.date_curves import calibrate_radiocarbon_rows
+from proxies.chronology.date_curves import calibrate_radiocarbon_rows, lead210_rows
 from proxies.chronology.model_runs import HYPERPARAMETER_COLUMNS, run_accumulation, run_interpolation
 from proxies.chronology.settings import ChronologySettings
 from proxies.cores.datability import (age_control_problems, event_layer_problems, grid_memory_problems,
@@ -123,8 +123,12 @@ def _dates_file(core) -> str:
     return f"{folder}/dates" if folder else f"dates of core {getattr(core, 'id', '?')}"
 
 
-def calibrate_core_dates(core, curves: dict[str, CalibrationCurve], settings: ChronologySettings):
-    """Calibrate every date of a core (and the core top), grouped by curve.
+def calibrate_core_dates(core, curves: dict[str, CalibrationCurve], settings: ChronologySettings,
+                         rng: np.random.Generator | None = None):
+    """Calibrate every date of a core (and the core top, and its 210Pb ages), grouped by curve.
+
+    ``rng`` draws the Monte Carlo errors of the 210Pb ages (needed when the core has a
+    ``lead210`` table).
 
     Returns
     -------
@@ -153,6 +157,10 @@ def calibrate_core_dates(core, curves: dict[str, CalibrationCurve], settings: Ch
                    exclude=False, source_row=np.nan, constraint=True)
         table = pd.concat([pd.DataFrame([top]), table], ignore_index=True)
     table["constraint"] = table["constraint"].astype(bool)
+    if core.lead210 is not None:
+        if rng is None:
+            raise ValueError("a core with a lead210 table needs a random generator for its Monte Carlo errors")
+        table = pd.concat([table, lead210_rows(core, settings, table.columns, rng)], ignore_index=True)
     table["reservoir_offset"] = pd.to_numeric(table["reservoir_offset"]).fillna(0.0)
     table["reservoir_error"] = pd.to_numeric(table["reservoir_error"]).fillna(0.0)
     table["exclude"] = table["exclude"].fillna(False).astype(bool)
@@ -250,7 +258,9 @@ def build_chronology(core, curves: dict[str, CalibrationCurve], settings: Chrono
     messages: list[str] = []
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
-        table, calibrated = calibrate_core_dates(core, curves, settings)
+        # a core with 210Pb data takes its Monte Carlo generator from the stage's, first
+        lead_rng = np.random.default_rng(rng.integers(2**63)) if core.lead210 is not None else None
+        table, calibrated = calibrate_core_dates(core, curves, settings, lead_rng)
     messages.extend(str(w.message) for w in caught)
     depth_scale = getattr(core, "depth_scale", None)
     table["event_free_depth_cm"] = _event_free(depth_scale, table["depth_cm"].to_numpy(float))

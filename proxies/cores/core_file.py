@@ -41,7 +41,7 @@ RUN_FOLDER_ENTRIES = frozenset({"figures", "training", "exports", "report", "log
 TOP_LEVEL_KEYS = ("core", "files", "sections", "event_layers", "hiatuses")
 CORE_KEYS = ("id", "archive", "latitude", "longitude", "collected", "depth_unit", "site", "top_age_error",
              "top_intact")
-FILE_KEYS = ("samples", "dates", "counts")
+FILE_KEYS = ("samples", "dates", "counts", "lead210")
 
 
 def current_year() -> int:
@@ -301,7 +301,7 @@ def _file_entry(where: _Collector, files: dict, key: str) -> tuple[str | None, s
             where.add(f"files.{key} names a sheet but {name!r} is not an .xlsx workbook",
                       "remove sheet, or give the workbook", f"files.{key}.sheet")
         return name, sheet
-    return _text(where, files, key, f"files.{key}", required=key != "counts"), None
+    return _text(where, files, key, f"files.{key}", required=key not in ("counts", "lead210")), None
 
 
 def _check_files(where: _Collector, files: dict) -> tuple[dict[str, str], dict[str, str]]:

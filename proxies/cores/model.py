@@ -109,6 +109,10 @@ class Core:
         ``core.toml``'s ``top_intact``: ``True`` when the core top is the sediment surface of
         the collection year, ``False`` for a lost or older top; ``None`` when not given (the
         run's ``[chronology] core_top`` decides).
+    lead210 : DataFrame or None
+        The optional 210Pb table (:mod:`proxies.cores.lead210`): ``depth_cm``,
+        ``dry_mass_g_cm2``, ``pb210_bq_kg``, ``pb210_error``, optional ``ra226_bq_kg``,
+        ``ra226_error``, ``source_row``.
     """
 
     id: str
@@ -127,6 +131,7 @@ class Core:
     folder: str = ""
     files: dict = field(default_factory=dict, repr=False)
     top_intact: bool | None = None
+    lead210: pd.DataFrame | None = field(default=None, repr=False)
 
     @property
     def top_age_cal_bp(self) -> float:

@@ -69,6 +69,32 @@ CALENDAR_TOP_SLACK_YR = 5.0
 # ---------------------------------------------------------------------------------------------
 # cells
 # ---------------------------------------------------------------------------------------------
+#: columns the dates table knows (besides depth and thickness in the core's unit)
+DATES_COLUMNS = ("label", "kind", "age", "error", "curve", "reservoir_offset", "reservoir_error", "exclude",
+                 "section")
+
+
+def _misspelt_column(checker, column: str, known: tuple[str, ...], exact_case: bool = False) -> None:
+    """A column that is a known column written differently would be read as something else
+    (an extra text column, a proxy): refuse it with the name to use."""
+    if column in known or column in TEXT_COLUMNS:
+        return
+    lowered = column.lower().replace(" ", "_")
+    near = next((k for k in known if k == lowered), None)
+    if near is None and not exact_case:
+        hint = did_you_mean(column, known)
+        near = hint.split("'")[1] if hint and difflib_ratio(column, hint.split("'")[1]) >= 0.8 else None
+    if near is not None:
+        checker.add(f"column '{column}' looks like '{near}' but is not spelt so: it would not be read as "
+                    f"'{near}'", f"rename the column to '{near}'", row=1, column=column)
+
+
+def difflib_ratio(a: str, b: str) -> float:
+    import difflib
+
+    return difflib.SequenceMatcher(None, a, b).ratio()
+
+
 def _near_column(wanted: str, header: list[str]) -> str | None:
     """A header name that is ``wanted`` written differently (case, blanks, a typo)."""
     for name in header:
@@ -215,6 +241,8 @@ def _numeric_columns_with_layout(
     out: dict[str, Any] = {}
     values: list[str] = []
     for column in checker.table.columns:
+        if column not in (depth_column, thickness_column):
+            _misspelt_column(checker, column, (depth_column, thickness_column, "section"), exact_case=True)
         if column == depth_column:
             out["depth_cm"] = depth_cm
             if section_depth is not None:
@@ -356,6 +384,7 @@ def check_dates(table: pd.DataFrame, file: str, spec: CoreSpec) -> tuple[pd.Data
             checker.add(f"column name '{column}' is reserved here",
                         "rename the column (depth columns follow core.toml depth_unit)", row=1, column=column)
         else:
+            _misspelt_column(checker, column, DATES_COLUMNS + (depth_column, f"thickness_{spec.depth_unit}"))
             out[column] = list(table[column])
     if checker.problems:
         return None, checker.problems

@@ -63,7 +63,7 @@ def _max_per_series(cands: Candidates, n_series: int) -> dict[int, np.ndarray]:
 STEP_SUPPORT_POINTS = 5
 KEPT_STEPS = 1
 #: Largest factor by which the bias correction of the null persistence may raise the data
-#: estimate: beyond it the estimator saturates (a background-removed series of a few hundred
+#: estimate when lasting steps are removed before estimating: beyond it the estimator saturates (a background-removed series of a few hundred
 #: points cannot show persistence much beyond the background window), and on ensemble-median
 #: series -- smoothed by age errors, so not exactly AR(1) -- the fixed point ran away
 #: (4 grid steps estimated, 31 "corrected").
@@ -183,6 +183,8 @@ def matched_null_tau(work: np.ndarray, observed: np.ndarray, background_points: 
         return 0.0, target
     n_points = work.shape[0]
     tau = target
+    # with steps removed the estimate saturates early, so the correction is bounded there
+    ceiling = MAX_CORRECTION * target if keep_steps > 0 else np.inf
     for _ in range(iterations):
         pattern = observed[:, rng.integers(0, observed.shape[1], n_series)]
         sur = ar1_surrogates(np.arange(n_points, dtype=float), tau, n_series, rng)
@@ -190,7 +192,7 @@ def matched_null_tau(work: np.ndarray, observed: np.ndarray, background_points: 
         estimate = _median_tau_steps(prepared, mask_top_block(prepared, pattern, mask_points), keep_steps)
         if estimate <= 0:
             break
-        tau = min(tau * target / estimate, MAX_CORRECTION * target, 10.0 * n_points)
+        tau = min(tau * target / estimate, ceiling, 10.0 * n_points)
     return float(tau), target
 
 

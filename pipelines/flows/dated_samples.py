@@ -1,0 +1,39 @@
+"""Stage runner of the per-sample table (``<core id>/samples_dated.parquet``).
+
+It runs for every core whose chronology finished, whatever happened after (calibration
+skipped, reconstruction thin or failed), just before the core's folder is published (a stage
+of :data:`pipelines.flows.stage_table.STAGES` with ``at_publish``), so that
+every dated core has its samples with ages -- calibrated or not. The science is
+:func:`proxies.reconstruction.dated_samples.dated_sample_table`; the CSV copy is written with
+the other exports (``samples_dated.csv``).
+"""
+
+from __future__ import annotations
+
+import pathlib
+
+from pipelines.flows.plan import RunPlan
+from pipelines.flows.stages import _cached_or_build, _collect_warnings, _unique, write_tables
+from pipelines.flows.store import WorkStore, load_object
+
+__all__ = ["run_dated_samples"]
+
+
+def run_dated_samples(plan: RunPlan, store: WorkStore, key: str, recompute: bool, *, ingest: dict,
+                      chronology: dict, calibration: dict | None) -> dict:
+    """Write the per-sample table of one core (ages from its chronology, calibrated values
+    from its calibration when there is one: ``calibration`` is ``None`` when the core's
+    calibration was skipped or failed)."""
+    core_id = ingest["core_id"]
+
+    def produce(staged: pathlib.Path) -> dict:
+        from proxies.reconstruction.dated_samples import dated_sample_table
+
+        core, chron = load_object(ingest), load_object(chronology)
+        cal = load_object(calibration) if calibration else None
+        with _collect_warnings() as caught:
+            result = dated_sample_table(core, chron, cal)
+        files = write_tables(staged, {"samples_dated": result.table})
+        return {"files": files, "n_samples": len(result.table), "warnings": _unique(caught)}
+
+    return _cached_or_build(store, "samples", key, produce, {"core_id": core_id}, recompute)
