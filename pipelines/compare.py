@@ -24,6 +24,7 @@ import pathlib
 import numpy as np
 import pandas as pd
 
+from pipelines.outputs_schema import TABLES
 from pipelines.runfolder import read_parquet
 
 __all__ = ["compare_runs", "COMPARE_COLUMNS"]
@@ -34,12 +35,14 @@ COMPARE_COLUMNS = ["core_id", "status_a", "status_b", "age_shift_median_yr", "ag
                    "onset_shift_median_yr", "onset_shift_max_abs_yr"]
 
 
-def _read(path: pathlib.Path) -> pd.DataFrame | None:
+def _read(run: pathlib.Path, key: str, core: str = "") -> pd.DataFrame | None:
+    """Table ``key`` of the run-folder schema (``None`` when the run has none)."""
+    path = run / TABLES[key].path.replace("<core>", core)
     return read_parquet(path) if path.is_file() else None
 
 
 def _statuses(run: pathlib.Path) -> dict[str, str]:
-    summary = _read(run / "summary.parquet")
+    summary = _read(run, "summary")
     if summary is None:
         raise FileNotFoundError(f"{run}: no summary.parquet -- give two downcore run folders")
     return dict(zip(summary["core_id"], summary["status"]))
@@ -104,9 +107,9 @@ def compare_runs(run_a: str | os.PathLike[str], run_b: str | os.PathLike[str]) -
     for core in sorted(set(status_a) | set(status_b)):
         row: dict = {"core_id": core, "status_a": status_a.get(core, "absent"),
                      "status_b": status_b.get(core, "absent")}
-        row |= _chronology(_read(a / core / "chronology.parquet"), _read(b / core / "chronology.parquet"))
-        row |= _reconstruction(_read(a / core / "reconstruction.parquet"), _read(b / core / "reconstruction.parquet"))
-        row |= _events(_read(a / core / "events.parquet"), _read(b / core / "events.parquet"))
+        row |= _chronology(_read(a, "chronology", core), _read(b, "chronology", core))
+        row |= _reconstruction(_read(a, "reconstruction", core), _read(b, "reconstruction", core))
+        row |= _events(_read(a, "events", core), _read(b, "events", core))
         rows.append(row)
     table = pd.DataFrame(rows, columns=COMPARE_COLUMNS)
     return table.astype({"events_a": "Int64", "events_b": "Int64"})
