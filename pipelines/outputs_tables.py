@@ -265,6 +265,8 @@ TABLES: dict[str, OutputTable] = {t.key: t for t in (
                "the units in its name", "median / 2.5 % / 97.5 % of <variable> calibrated from <proxy>"),
         Family(r".+_uncalibrated", "uk37_uncalibrated", "bool", "",
                "<proxy> measured but no calibrated value (e.g. outside the equation's domain)"),
+        Family(r".+_outside_range", "uk37_outside_range", "bool", "",
+               "<proxy> or its calibrated value outside the equation's calibrated range"),
         Family(r".+_poor_analogue", "counts_poor_analogue", "bool", "",
                "no close modern analogue in the training set"),
         Family(r".+_analogue", "counts_analogue", "string", "", "nearest modern analogue: good | fair | none"),

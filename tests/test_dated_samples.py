@@ -63,7 +63,8 @@ def built():
     tex = rng.normal(25.0, 1.0, (4, MEMBERS))
     tex[2] = np.nan  # TEX86 < 0 has no temperature: the equation gives nothing
     records = [CalibratedRecord("tex86", "sst", "degC", "equation", "Kim et al. (2010)",
-                                np.array([2.0, 7.0, 12.0, 52.0]), tex),
+                                np.array([2.0, 7.0, 12.0, 52.0]), tex,
+                                outside_range=np.array([False, False, False, True])),
                CalibratedRecord("counts", "july_temperature", "degC", "transfer", "WA-PLS",
                                 np.array([7.0, 55.0]), rng.normal(12.0, 0.8, (2, MEMBERS)))]
     diagnostics = pd.DataFrame({"depth_cm": [7.0, 55.0], "proxy": "counts",
@@ -115,6 +116,8 @@ def test_raw_calibrated_and_flags_for_every_proxy(built):
     np.testing.assert_allclose(table["sst_degC_from_tex86_q975"].to_numpy()[[0, 1, 3]],
                                np.quantile(records[0].values[[0, 1, 3]], 0.975, axis=1))
     assert list(table["tex86_uncalibrated"]) == [False, False, True, False, False, False]
+    assert list(table["tex86_outside_range"]) == [False, False, False, True, False, False]
+    assert "counts_outside_range" not in table   # transfer functions carry no equation range
     assert list(table["counts_analogue"]) == ["", "good", "", "", "none", ""]
     assert list(table["counts_poor_analogue"]) == [False, False, False, False, True, False]
     assert np.isfinite(table["july_temperature_degC_from_counts_median"]).sum() == 2

@@ -15,7 +15,9 @@ where they coincide), in depth order. Columns, with their units in the name:
   ``count_sum`` (total count of the sample) for assemblage counts;
 - per calibrated record: ``<variable>_<units>_from_<proxy>_median``, ``_q025``, ``_q975``
   (over the calibration members), ``<proxy>_uncalibrated`` (a raw value without a calibrated
-  value, e.g. outside an equation's domain) and, for transfer functions,
+  value, e.g. outside an equation's domain), ``<proxy>_outside_range`` (the proxy or its
+  calibrated value lies outside the range the published equation was calibrated on) and, for
+  transfer functions,
   ``<proxy>_analogue`` (good | fair | none) and ``<proxy>_poor_analogue``
   (no close modern analogue).
 
@@ -180,6 +182,9 @@ def _record_columns(record, levels: np.ndarray, raw: dict[str, np.ndarray],
     else:
         measured = np.isin(levels, np.asarray(record.depth_cm, dtype=float))
     out[f"{record.proxy}_uncalibrated"] = measured & ~np.isfinite(out[f"{stem}_median"])
+    if record.outside_range is not None:
+        outside = np.asarray(record.outside_range, dtype=bool)
+        out[f"{record.proxy}_outside_range"] = _placed(levels, record.depth_cm, outside, False, bool)
     if diagnostics is not None and len(diagnostics) and "analogue_quality" in diagnostics:
         rows = diagnostics[diagnostics["proxy"].astype(str) == str(record.proxy)]
         if len(rows):
@@ -215,6 +220,8 @@ def _descriptions(table: pd.DataFrame, records) -> dict[str, str]:
         out[f"{stem}_q025"] = f"2.5 % quantile of {what}"
         out[f"{stem}_q975"] = f"97.5 % quantile of {what}"
         out[f"{record.proxy}_uncalibrated"] = f"{record.proxy} measured but no calibrated value"
+        out[f"{record.proxy}_outside_range"] = (f"{record.proxy} or its calibrated value lies outside "
+                                                "the range the equation was calibrated on")
         out[f"{record.proxy}_analogue"] = "closeness of the nearest modern analogue (good | fair | none)"
         out[f"{record.proxy}_poor_analogue"] = "no close modern analogue in the training set"
     for column in table.columns:
