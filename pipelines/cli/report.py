@@ -9,6 +9,21 @@ import click
 __all__ = ["command"]
 
 
+def _refuse_a_live_run(run_dir: pathlib.Path) -> None:
+    """Stop when a run is still writing ``run_dir`` (its lock is held): the report would be
+    rewritten under it. A finished or killed run's folder passes."""
+    from pipelines.runlock import LOCK_NAME, RunBusyError, acquire_run_lock, describe_owner, read_lock_record
+
+    if not (run_dir / LOCK_NAME).is_file():
+        return
+    try:
+        acquire_run_lock(run_dir).release(finished=False)
+    except RunBusyError:
+        raise click.ClickException(
+            f"a run is still writing {run_dir} ({describe_owner(read_lock_record(run_dir))}) -- wait "
+            "for it to finish, then run downcore report again; nothing was changed") from None
+
+
 @click.command("report")
 @click.argument("run_dir", type=click.Path(exists=True, file_okay=False, path_type=pathlib.Path))
 @click.option("--no-csv", "no_csv", is_flag=True, default=False,
@@ -25,8 +40,12 @@ def command(run_dir: pathlib.Path, no_csv: bool, png: bool) -> None:
     if not (run_dir / "summary.parquet").is_file() and not (run_dir / "manifest.json").is_file():
         raise click.ClickException(f"{run_dir} holds no summary.parquet or manifest.json -- give "
                                    "the folder a downcore run wrote")
+    _refuse_a_live_run(run_dir)
     report = write_run_report(run_dir, png=png)
-    exports = write_exports(run_dir, csv=not no_csv)
+    unreadable: list[str] = []
+    exports = write_exports(run_dir, csv=not no_csv, unreadable=unreadable)
+    for sentence in unreadable:
+        click.echo(f"warning: {sentence}", err=True)
     n_csv = sum(p.suffix == ".csv" for p in exports)
     nc = [p for p in exports if p.suffix == ".nc"]
     click.echo(f"report: {report}")

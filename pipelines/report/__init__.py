@@ -21,8 +21,8 @@ def write_run_report(run_dir, png: bool = False):
     return _write(run_dir, png=png)
 
 
-def write_exports(run_dir, csv: bool = True):
+def write_exports(run_dir, csv: bool = True, unreadable: list | None = None):
     """See :func:`pipelines.report.exports.write_exports`."""
     from pipelines.report.exports import write_exports as _write
 
-    return _write(run_dir, csv=csv)
+    return _write(run_dir, csv=csv, unreadable=unreadable)

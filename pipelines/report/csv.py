@@ -47,10 +47,20 @@ def table_csv_text(table: pd.DataFrame) -> str:
     return buffer.getvalue()
 
 
-def write_csv_beside(run_dir: str | pathlib.Path) -> list[pathlib.Path]:
-    """Write ``X.csv`` beside every ``X.parquet`` of the run folder; return the CSV paths."""
+def write_csv_beside(run_dir: str | pathlib.Path,
+                     unreadable: list[str] | None = None) -> list[pathlib.Path]:
+    """Write ``X.csv`` beside every ``X.parquet`` of the run folder; return the CSV paths.
+
+    A Parquet file that cannot be read (truncated, not Parquet) gets no CSV copy; a sentence
+    naming it and the reader's error is appended to ``unreadable`` when given.
+    """
     written = []
     for path in parquet_tables(pathlib.Path(run_dir)):
-        text = table_csv_text(pq.read_table(path).to_pandas())
-        written.append(atomic_write_text(path.with_suffix(".csv"), text))
+        try:
+            table = pq.read_table(path).to_pandas()
+        except (OSError, ValueError) as error:  # pyarrow's ArrowInvalid is a ValueError
+            if unreadable is not None:
+                unreadable.append(f"{path} cannot be read as Parquet ({error}); no CSV copy written")
+            continue
+        written.append(atomic_write_text(path.with_suffix(".csv"), table_csv_text(table)))
     return written

@@ -11,7 +11,8 @@ from pipelines.report.rundata import read_run
 __all__ = ["write_exports"]
 
 
-def write_exports(run_dir: str | pathlib.Path, csv: bool = True) -> list[pathlib.Path]:
+def write_exports(run_dir: str | pathlib.Path, csv: bool = True,
+                  unreadable: list[str] | None = None) -> list[pathlib.Path]:
     """Write the exports of a finished run folder.
 
     Parameters
@@ -20,6 +21,8 @@ def write_exports(run_dir: str | pathlib.Path, csv: bool = True) -> list[pathlib
         The run folder.
     csv : bool
         Also write ``X.csv`` beside every ``X.parquet`` (default True).
+    unreadable : list, optional
+        Receives a sentence for every Parquet file that could not be read (no CSV copy).
 
     Returns
     -------
@@ -28,7 +31,7 @@ def write_exports(run_dir: str | pathlib.Path, csv: bool = True) -> list[pathlib
         has reconstructions or a composite).
     """
     folder = pathlib.Path(run_dir)
-    written = write_csv_beside(folder) if csv else []
+    written = write_csv_beside(folder, unreadable) if csv else []
     nc = write_netcdf(read_run(folder))
     if nc is not None:
         written.append(nc)
