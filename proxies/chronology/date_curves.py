@@ -78,8 +78,10 @@ def calibrate_radiocarbon_rows(table: pd.DataFrame, rows, curves: dict, settings
         errors = table["error"].to_numpy(float)[positions]
         young_end = min(curves[name].cal_range[0] for name in choice.names)
         lowest = min(float(curves[name].c14_age.min()) for name in choice.names)
-        # post-bomb: F14C > 1 beyond the curve's youngest radiocarbon age by more than 4 sigma
-        post_bomb = (ages < 0) & (ages + 4 * errors < lowest)
+        # post-bomb: F14C > 1 beyond 3 sigma (a negative age within its noise of 0 is a
+        # pre-bomb sample measured near the top) and beyond the curve's youngest radiocarbon age
+        # by more than 4 sigma
+        post_bomb = (ages + 3 * errors < 0) & (ages + 4 * errors < lowest)
         if young_end >= 0 and post_bomb.any():
             for i in positions[post_bomb]:
                 problems.append(Problem(
