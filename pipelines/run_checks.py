@@ -125,7 +125,8 @@ def run_time_checks(config, grouped: dict, name: str) -> None:
     reconstruction = _settings_or_none(config, "reconstruction")
     curves, curve_problems = _read_curves(config, name)
     config_problems.extend(curve_problems)
-    config_problems.extend(_auxiliary_problems(config))
+    # a section's key problems are found by the settings and again by the file reader: once
+    config_problems.extend(p for p in _auxiliary_problems(config) if p not in config_problems)
     loaded = [core for key, (core, _) in grouped.items() if key != name and core is not None]
     if loaded and len(loaded) == len(grouped) - 1:
         config_problems.extend(_calibration_columns(config, loaded, name))

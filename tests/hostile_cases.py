@@ -446,7 +446,7 @@ CASES += [
     Case("training file missing", config('[training.midges]\nfile = "training/none.csv"\ntarget = "july_c"'),
          "none.csv", None, None, "file not found"),
     Case("misspelt training key", config('[training.midges]\nfile = "x.csv"\ntarget = "t"\ncomponnets = 3'),
-         "run.toml", None, "training.midges.componnets", "unknown key"),
+         "run.toml", None, "componnets", "unknown key"),
     Case("instrumental file missing", config('[instrumental.station]\nfile = "none.csv"\nyear_column = "year"\n'
                                              'value_column = "t"'), "none.csv", None, None, "file not found"),
     Case("unknown run section", config("[chronolgy]\nmodel = 'accumulation'"), "run.toml", None, "chronolgy",
