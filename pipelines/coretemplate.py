@@ -61,6 +61,7 @@ def _core_toml(core_id: str, archive: str, depth_unit: str, latitude: float | No
         _line('samples = "samples.csv"', "required: proxy measurements (.csv, .tsv, .xlsx or .parquet)"),
         _line('dates = "dates.csv"', "required: radiocarbon and calendar dates"),
         _line('# counts = "counts.csv"', f"optional: assemblage counts, depth_{unit} + one column per taxon"),
+        _line('# lead210 = "lead210.csv"', f"optional: 210Pb activities by depth_{unit} (CRS/CIC dating of the top)"),
         "",
         _line("# [[sections]]", "optional, one block per core section; every table then needs"),
         _line('# name = "A"', "a 'section' column, and its depths are measured below the"),

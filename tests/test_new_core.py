@@ -78,7 +78,7 @@ def test_every_accepted_key_is_in_the_template_and_no_other():
     """The template explains exactly the keys proxies.cores.validation accepts (a key added
     there must be added to pipelines/coretemplate.py too)."""
     text = core_template("X-1")["core.toml"]
-    keys = set(re.findall(r"^(?:# )?([a-z_]+) = ", text, flags=re.M))
+    keys = set(re.findall(r"^(?:# )?([a-z][a-z0-9_]*) = ", text, flags=re.M))
     tables = set(re.findall(r"^(?:# )?\[\[?([a-z_]+)\]\]?", text, flags=re.M))
     nested = {"name", "top", "bottom", "kind", "depth"}
     assert keys - nested == set(CORE_KEYS) | set(FILE_KEYS)
