@@ -3,7 +3,7 @@
 :func:`run_time_checks` is called by :func:`pipelines.config.check_run_config_by_core` after
 every core folder was read. It uses the very functions the run uses, so that check = run:
 
-- every ``[curves]`` file is read with :func:`pipelines.curvefiles.read_curve_file`;
+- every ``[curves]`` file is read with :func:`pipelines.curvefiles.read_curve_file_once` (parsed once per process, shared with the run);
 - each core's dates are calibrated with
   :func:`proxies.chronology.stage.calibrate_core_dates` (the run's curve choice per date, each
   radiocarbon age against its curve's range after the reservoir offset, problems naming
@@ -35,12 +35,12 @@ def _settings_or_none(config, stage: str):
 
 
 def _read_curves(config, name: str) -> tuple[dict, list[Problem]]:
-    from pipelines.curvefiles import read_curve_file
+    from pipelines.curvefiles import read_curve_file_once
 
     curves, problems = {}, []
     for curve, path in config.curves.items():
         try:
-            curves[curve] = read_curve_file(path, curve)
+            curves[curve] = read_curve_file_once(path, curve)
         except InputError as error:
             problems.extend(Problem(p.file, f"curve {curve!r}: {p.message}", p.fix or "check the curve file",
                                     row=p.row, column=p.column or f"curves.{curve}") for p in error.problems)

@@ -113,3 +113,19 @@ def test_mixture_of_two_curves():
     np.testing.assert_allclose(blend_curves(first, second, 0.0).at(cal)[0], first.c14_age)
     with pytest.raises(ValueError, match=r"\[0, 1\]"):
         blend_curves(first, second, 1.5)
+
+
+def test_a_curve_file_is_parsed_once_per_process_until_it_changes(tmp_path):
+    """check and every core of a run share one parse; an edited file is read again."""
+    import os
+
+    from pipelines.curvefiles import read_curve_file_once
+
+    path = tmp_path / "flat.14c"
+    path.write_text("0,100,10,0,0\n1000,1100,10,0,0\n2000,2100,10,0,0\n", encoding="utf-8")
+    first = read_curve_file_once(path, "flat")
+    assert read_curve_file_once(path, "flat") is first
+    path.write_text("0,200,10,0,0\n1000,1200,10,0,0\n2000,2200,10,0,0\n", encoding="utf-8")
+    os.utime(path, ns=(1, 1))                      # a new modification time, whatever the clock
+    second = read_curve_file_once(path, "flat")
+    assert second is not first and second.at([1000.0])[0][0] == pytest.approx(1200.0)

@@ -187,23 +187,11 @@ def run_training(plan: RunPlan, store: WorkStore, key: str, recompute: bool, *, 
 
 # --- chronology ------------------------------------------------------------------------------
 
-_CURVE_CACHE: dict[tuple[str, str], Any] = {}
-_CURVE_LOCK = threading.Lock()
-
-
 def _load_curves(plan: RunPlan) -> dict[str, Any]:
-    from pipelines.curvefiles import read_curve_file
+    """The run's curves, each file parsed once per process (shared with the run's check)."""
+    from pipelines.curvefiles import read_curve_file_once
 
-    curves = {}
-    for name, path, digest in plan.curves:
-        with _CURVE_LOCK:
-            curve = _CURVE_CACHE.get((path, digest))
-        if curve is None:
-            curve = read_curve_file(path, name=name)
-            with _CURVE_LOCK:
-                _CURVE_CACHE[(path, digest)] = curve
-        curves[name] = curve
-    return curves
+    return {name: read_curve_file_once(path, name=name) for name, path, _ in plan.curves}
 
 
 def run_chronology(plan: RunPlan, store: WorkStore, key: str, recompute: bool, *, ingest: dict) -> dict:
