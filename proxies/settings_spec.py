@@ -20,11 +20,11 @@ from __future__ import annotations
 
 import difflib
 from dataclasses import MISSING, dataclass, field, fields
-from typing import Any, Callable, Mapping, TypeVar
+from typing import Any, Callable, ClassVar, Mapping, TypeVar
 
 from proxies.problems import InputError, Problem
 
-__all__ = ["Rule", "setting", "settings_from_mapping", "settings_rows", "did_you_mean"]
+__all__ = ["Rule", "DeclaredSection", "setting", "settings_from_mapping", "settings_rows", "did_you_mean"]
 
 T = TypeVar("T")
 
@@ -251,3 +251,30 @@ def settings_rows(cls) -> list[dict[str, str]]:
             ("(none)" if f.default is None else _example(f.default, rule.kind, None))
         rows.append({"key": f.name, "default": default, "allowed": allowed, "doc": rule.doc})
     return rows
+
+
+class DeclaredSection:
+    """Base of a run-config section's settings dataclass declared with :func:`setting`.
+
+    Subclasses name their ``SECTION`` and may override :meth:`cross_check` for rules that
+    involve several keys; :meth:`from_mapping` is the one validating constructor.
+    """
+
+    SECTION: ClassVar[str] = ""
+
+    @classmethod
+    def cross_check(cls, values: dict, where: str) -> list[Problem]:
+        """Problems that involve several keys (``values``: every key, defaults filled in)."""
+        return []
+
+    @classmethod
+    def from_mapping(cls, mapping: Mapping[str, Any] | None = None, where: str | None = None):
+        """Validate the TOML section and build the settings.
+
+        Raises
+        ------
+        proxies.problems.InputError
+            Naming every unknown key, wrong type or out-of-range value (``column`` = key).
+        """
+        where = where or f"[{cls.SECTION}]"
+        return settings_from_mapping(cls, mapping, where, lambda values: cls.cross_check(values, where))

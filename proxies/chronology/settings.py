@@ -7,8 +7,9 @@ Every key is declared once, with its type, bounds, default and meaning
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import ClassVar
 
-from proxies.settings_spec import setting, settings_from_mapping
+from proxies.settings_spec import DeclaredSection, setting
 
 __all__ = ["ChronologySettings", "MODELS", "JOINS"]
 
@@ -19,7 +20,7 @@ JOINS = ("linear", "smooth")
 
 
 @dataclass(frozen=True)
-class ChronologySettings:
+class ChronologySettings(DeclaredSection):
     """How dates are calibrated and age-depth models built (one attribute per key).
 
     ``model``: ``"memory"`` is the Bayesian accumulation model with a persistent rate,
@@ -33,6 +34,8 @@ class ChronologySettings:
     named ``atmosphere``. The Student-t likelihood is that of Christen & Perez (2009), whose
     gamma prior (shape a, rate b) on each date's precision multiplier is integrated out.
     """
+
+    SECTION: ClassVar[str] = "chronology"
 
     model: str = setting("memory", "age-depth model", choices=MODELS)
     join: str = setting("linear", "interpolation model only: curve joining the dates", choices=JOINS)
@@ -86,14 +89,3 @@ class ChronologySettings:
     lead210_draws: int = setting(1000, "Monte Carlo draws of the 210Pb activities", low=10, high=100000)
     output_step_cm: float = setting(1.0, "depth step of chronology.parquet and the ensemble table [cm]",
                                     low=0.0, low_open=True)
-
-    @classmethod
-    def from_mapping(cls, mapping: dict | None, where: str = "[chronology]") -> "ChronologySettings":
-        """Validate a ``[chronology]`` TOML section and build the settings.
-
-        Raises
-        ------
-        proxies.problems.InputError
-            Naming every unknown key, wrong type or out-of-range value (``column`` = key).
-        """
-        return settings_from_mapping(cls, mapping, where)

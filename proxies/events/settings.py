@@ -7,14 +7,15 @@ Every key is declared once, with its type, bounds, default and meaning
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import ClassVar
 
-from proxies.settings_spec import setting, settings_from_mapping
+from proxies.settings_spec import DeclaredSection, setting
 
 __all__ = ["EventSettings"]
 
 
 @dataclass(frozen=True)
-class EventSettings:
+class EventSettings(DeclaredSection):
     """How abrupt events are detected on every ensemble member (one attribute per key).
 
     ``background_yr``: width of the running median removed from each member before the
@@ -28,6 +29,8 @@ class EventSettings:
     (on the ensemble-median series) and of the local member tests behind an established
     event's probability.
     """
+
+    SECTION: ClassVar[str] = "events"
 
     enabled: bool = setting(True, "run detection at all")
     edge_support_points: int = setting(5, "grid points of record an event needs beyond it on each "
@@ -61,14 +64,3 @@ class EventSettings:
                                                      example='["air_temperature", "sst"]')
     variables: tuple[str, ...] | None = setting(None, "variables to analyse (unset: all)",
                                                 kind="list[str]", example='["temperature"]')
-
-    @classmethod
-    def from_mapping(cls, mapping: dict | None, where: str = "[events]") -> "EventSettings":
-        """Validate an ``[events]`` TOML section and build the settings.
-
-        Raises
-        ------
-        proxies.problems.InputError
-            Naming every unknown key, wrong type or out-of-range value (``column`` = key).
-        """
-        return settings_from_mapping(cls, mapping, where)

@@ -3,9 +3,10 @@
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import ClassVar
 
 from proxies.problems import Problem
-from proxies.settings_spec import setting, settings_from_mapping
+from proxies.settings_spec import DeclaredSection, setting
 
 __all__ = ["ReconstructionSettings", "WMO_NORMAL_PERIODS"]
 
@@ -18,7 +19,7 @@ _STACK_METHODS = ("anomaly", "zscore")
 
 
 @dataclass(frozen=True)
-class ReconstructionSettings:
+class ReconstructionSettings(DeclaredSection):
     """How calibrated ensembles are put on a time grid, referenced and stacked (one attribute
     per key).
 
@@ -40,6 +41,8 @@ class ReconstructionSettings:
     (``"anomaly"``) or z-scores over the stack window (``"zscore"``); the stack window is the
     overlap of all records unless given.
     """
+
+    SECTION: ClassVar[str] = "reconstruction"
 
     grid_step_yr: float | None = setting(None, "spacing of the regular time grid [yr]; auto: the "
                                          "median sample spacing rounded to 1, 2 or 5 x 10^k yr",
@@ -87,15 +90,8 @@ class ReconstructionSettings:
         return (float(self.stack_young_cal_bp), float(self.stack_old_cal_bp))
 
     @classmethod
-    def from_mapping(cls, mapping: dict | None, where: str = "[reconstruction]") -> "ReconstructionSettings":
-        """Validate a ``[reconstruction]`` TOML section and build the settings.
-
-        Raises
-        ------
-        proxies.problems.InputError
-            Naming every unknown key, wrong type or out-of-range value (``column`` = key).
-        """
-        return settings_from_mapping(cls, mapping, where, lambda values: _cross_check(values, where))
+    def cross_check(cls, values: dict, where: str) -> list[Problem]:
+        return _cross_check(values, where)
 
 
 def _cross_check(values: dict, where: str) -> list[Problem]:
