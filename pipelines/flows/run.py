@@ -119,8 +119,12 @@ def _write_report(run_dir: pathlib.Path, notes: list[str]) -> None:
 def _streams(result: dict) -> list[str]:
     """The random streams used (``stage/core_id``): every science stage a core reached."""
     streams = []
+    series = set(result.get("series", ()))
     for row in result["cores"]:
-        if row["stage_reached"] in CORE_STAGES:
+        if row["core_id"] in series:
+            reached = ("series", "events") if row["stage_reached"] == "events" else ("series",)
+            streams += [f"{stage}/{row['core_id']}" for stage in reached]
+        elif row["stage_reached"] in CORE_STAGES:
             last = CORE_STAGES.index(row["stage_reached"])
             streams += [f"{stage}/{row['core_id']}" for stage in SCIENCE_STAGES if CORE_STAGES.index(stage) <= last]
     if result.get("stack"):
