@@ -112,8 +112,9 @@ STAGES: dict[str, Stage] = {s.name: s for s in (
           ("[events] settings", "seed")),
     Stage("samples", run_dated_samples, ("ingest", "chronology", "calibration"), ("samples_dated",), (),
           at_publish=True),
-    Stage("stack", stages.run_stack, ("reconstructions",), ("stack",), ("[reconstruction] settings", "seed"),
-          per_core=False),
+    Stage("stack", stages.run_stack, ("reconstructions",),
+          ("stack", "stack_ensemble", "regional_events", "regional_onsets"),
+          ("[reconstruction] settings", "[events] settings", "seed"), per_core=False),
     Stage("archive_events", stages.run_archive_events, ("all_events",), ("archive_events", "lead_lag"),
           ("[events] settings",), per_core=False),
 )}
