@@ -23,7 +23,7 @@ import pandas as pd
 
 from pipelines.flows.plan import RunPlan
 from pipelines.flows.store import WorkStore, load_object, save_object
-from pipelines.outputs_schema import checked, member_names, table as output_table
+from pipelines.outputs_schema import checked, member_column_names, table as output_table
 from pipelines.runfolder import atomic_write_parquet
 from proxies.problems import InputError
 from proxies.seeding import rng_for
@@ -206,7 +206,7 @@ def run_chronology(plan: RunPlan, store: WorkStore, key: str, recompute: bool, *
             result = build_chronology(core, _load_curves(plan), plan.settings["chronology"],
                                       plan.ensemble, rng_for(plan.run_seed, "chronology", core_id))
         ensemble = np.asarray(result.ensemble, dtype=float)
-        members = pd.DataFrame(ensemble, columns=member_names(ensemble.shape[1]))
+        members = pd.DataFrame(ensemble, columns=member_column_names(ensemble.shape[1]))
         members.insert(0, "depth_cm", np.asarray(result.depth_cm, dtype=float))
         files = write_tables(staged, {"chronology": result.summary, "age_ensemble": members,
                                       "dates": result.dates, "date_ranges": result.date_ranges,
