@@ -366,7 +366,7 @@ def run_stack(plan: RunPlan, store: WorkStore, key: str, recompute: bool, *,
 
 def _stack_members(ensembles: dict) -> pd.DataFrame:
     frames = [pd.concat([pd.DataFrame({"age_cal_bp": s.age_cal_bp, "variable": variable}),
-                         pd.DataFrame(s.values, columns=member_names(s.values.shape[1]))], axis=1)
+                         pd.DataFrame(s.values, columns=member_column_names(s.values.shape[1]))], axis=1)
               for variable, s in ensembles.items()]
     return pd.concat(frames, ignore_index=True) if frames else pd.DataFrame(
         {"age_cal_bp": pd.Series(dtype=float), "variable": pd.Series(dtype=object)})
