@@ -13,8 +13,8 @@ from __future__ import annotations
 import pathlib
 
 from pipelines.flows.plan import RunPlan
-from pipelines.flows.stages import _cached_or_build, _collect_warnings, _unique, write_tables
-from pipelines.flows.store import WorkStore, save_object
+from pipelines.flows.stages import _cached_or_build, _collect_warnings, reconstruction_entry
+from pipelines.flows.store import WorkStore
 from proxies.seeding import rng_for
 
 __all__ = ["run_series", "SERIES_STREAM"]
@@ -37,10 +37,6 @@ def run_series(plan: RunPlan, store: WorkStore, key: str, recompute: bool, *, na
                                          rng_for(plan.run_seed, SERIES_STREAM, name), plan.settings["reconstruction"],
                                          plan.ensemble, spec.age_sd_yr, spec.age_sd_fraction, read.member_ages,
                                          spec.grid_step_yr, spec.variable, spec.units)
-        files = write_tables(staged, {"reconstruction": result.table,
-                                      "reconstruction_ensemble": result.ensemble})
-        return {"files": {"result": save_object(staged, result), **files}, "n_series": len(result.series),
-                "filled": dict(result.filled), "thin": list(result.thin), "notes": list(result.notes),
-                "warnings": _unique(caught + list(result.warnings))}
+        return reconstruction_entry(staged, result, caught)
 
     return _cached_or_build(store, "series", key, produce, {"core_id": name}, recompute)

@@ -281,13 +281,18 @@ def run_reconstruction(plan: RunPlan, store: WorkStore, key: str, recompute: boo
         with _collect_warnings() as caught:
             result = reconstruct_core(core, chron, cal, plan.settings["reconstruction"],
                                       rng_for(plan.run_seed, "reconstruction", core_id))
-        files = write_tables(staged, {"reconstruction": result.table,
-                                      "reconstruction_ensemble": result.ensemble})
-        return {"files": {"result": save_object(staged, result), **files}, "n_series": len(result.series),
-                "filled": dict(result.filled), "thin": list(result.thin), "notes": list(result.notes),
-                "warnings": _unique(caught + list(result.warnings))}
+        return reconstruction_entry(staged, result, caught)
 
     return _cached_or_build(store, "reconstruction", key, produce, {"core_id": core_id}, recompute)
+
+
+def reconstruction_entry(staged: pathlib.Path, result: Any, caught: list[str]) -> dict:
+    """Write a reconstruction result's tables and pickle; the work-store entry description
+    (shared by a core's reconstruction and a dated series, :mod:`pipelines.flows.series`)."""
+    files = write_tables(staged, {"reconstruction": result.table, "reconstruction_ensemble": result.ensemble})
+    return {"files": {"result": save_object(staged, result), **files}, "n_series": len(result.series),
+            "filled": dict(result.filled), "thin": list(result.thin), "notes": list(result.notes),
+            "warnings": _unique(caught + list(result.warnings))}
 
 
 # --- events ------------------------------------------------------------------------------------
