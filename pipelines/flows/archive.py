@@ -451,33 +451,27 @@ def collect_run(driver: _Driver, compute: Callable[[_Driver, str, dict], Any]) -
     store is taken from it; ``compute(driver, stage, entries)`` gives any other."""
     plan, store, recompute = driver.plan, driver.store, driver.recompute
 
-    def run_level(stage: str, entries: dict) -> Any:
+    notes: list[str] = []
+
+    def run_level(stage: str, entries: dict) -> dict | None:
+        """The stage's entry, or ``None`` with a note when it failed or was skipped."""
         found = None if recompute else probe_stage(stage, plan, entries, store)
-        return found if found is not None else compute(driver, stage, entries)
+        result = found if found is not None else compute(driver, stage, entries)
+        if isinstance(result, BaseException):
+            notes.append(f"{stage.replace('_', ' ')} failed: {result}")
+            return None
+        if "skipped" in result:
+            notes.append(result["skipped"])
+            return None
+        return result
 
     tracks = driver.run()
-    notes = [f"training set {n}: {m}" for n, m in sorted(driver.training_failed.items())]
+    notes += [f"training set {n}: {m}" for n, m in sorted(driver.training_failed.items())]
     reconstructions = {t.name: t.entries["reconstruction"] for t in tracks
                        if t.status in RECONSTRUCTED and "reconstruction" in t.entries}
-    stack = None
-    if reconstructions:
-        result = run_level("stack", {"reconstructions": reconstructions})
-        if isinstance(result, BaseException):
-            notes.append(f"stack failed: {result}")
-        elif "skipped" in result:
-            notes.append(result["skipped"])
-        else:
-            stack = result
-    archive_events = None
+    stack = run_level("stack", {"reconstructions": reconstructions}) if reconstructions else None
     events = {t.name: t.entries["events"] for t in tracks if "events" in t.entries}
-    if events:
-        result = run_level("archive_events", {"all_events": events})
-        if isinstance(result, BaseException):
-            notes.append(f"archive events failed: {result}")
-        elif "skipped" in result:
-            notes.append(result["skipped"])
-        else:
-            archive_events = result
+    archive_events = run_level("archive_events", {"all_events": events}) if events else None
     timings = [{"core_id": t.name, "stage": s, "seconds": t.seconds[s], "reused": t.cached.get(s, False)}
                for t in tracks for s in ("series", *CORE_STAGES, *PUBLISH_STAGES) if s in t.seconds]
     return {"cores": [t.row() for t in tracks], "timings": timings, "training": driver.training,

@@ -194,14 +194,37 @@ def execute_run(config_path: str | os.PathLike[str], out_dir: str | os.PathLike[
         release_run_folder(run_dir, finished=(run_dir / "manifest.json").is_file())
 
 
+class _DrawWhenPublished:
+    """A progress observer that also has the report helper draw each core's figures as soon
+    as the core's folder is published (the other cores' science still running)."""
+
+    def __init__(self, inner: Any, helper: Any, run_dir: pathlib.Path):
+        self.inner, self.helper, self.run_dir = inner, helper, run_dir
+
+    def started(self, total: int) -> None:
+        if self.inner is not None:
+            self.inner.started(total)
+
+    def stage(self, label: str, stage: str) -> None:
+        if self.inner is not None:
+            self.inner.stage(label, stage)
+
+    def finished(self, track: Any) -> None:
+        if self.inner is not None:
+            self.inner.finished(track)
+        if (self.run_dir / track.name).is_dir():
+            self.helper.draw_core(self.run_dir, track.name)  # never raises: a dead helper is skipped
+
+
 def _orchestrated(run_dir: pathlib.Path, plan: RunPlan, cache: pathlib.Path, choice: ExecutorChoice,
-                  recompute: bool, progress: Any, local_server: Any) -> dict:
+                  recompute: bool, progress: Any, local_server: Any, helper: Any = None) -> dict:
     """The archive flow's result: every stage of the run through Prefect."""
     from pipelines.flows.archive import (archive_flow, register_observer, register_plan, unregister_observer,
                                          unregister_plan)
 
     runner = task_runner_for(choice, cache / "dask-scratch")
-    observer_id = register_observer(progress) if progress is not None else None
+    observer = _DrawWhenPublished(progress, helper, run_dir) if helper is not None else progress
+    observer_id = register_observer(observer) if observer is not None else None
     plan_id = register_plan(plan)
     try:
         if local_server is not None and progress is not None:
@@ -244,7 +267,7 @@ def _report_and_manifest(run_dir: pathlib.Path, plan: RunPlan, inputs: list, cac
         if result is not None and local_server is not None:
             local_server.stop()  # spawned in the background, never waited for: nothing to orchestrate
         if result is None:
-            result = _orchestrated(run_dir, plan, cache, choice, recompute, progress, local_server)
+            result = _orchestrated(run_dir, plan, cache, choice, recompute, progress, local_server, helper)
     except BaseException:
         if progress is not None:
             progress.close()

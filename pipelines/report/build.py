@@ -25,7 +25,8 @@ from pipelines.report.figures_chronology import (NEGLIGIBLE_PROBABILITY, age_dep
                                                  outlier_figure)
 from pipelines.report.figures_events import event_figure, event_variables, lead_lag_figure
 from pipelines.report.figures_reconstruction import reconstruction_figure, stack_figure
-from pipelines.report.rundata import CoreData, RunData, downcore_version, read_run, reconstruction_series
+from pipelines.report.rundata import (CoreData, RunData, downcore_version, read_core, read_run,
+                                      reconstruction_series)
 from pipelines.runfolder import atomic_write_text
 
 __all__ = ["write_run_report", "write_report_and_exports", "draw_claimed", "REPORT_NAME"]
@@ -330,14 +331,28 @@ def draw_claimed(run_dir: pathlib.Path, png: bool, claims: FigureClaims) -> dict
     return drawer.figures.drawn
 
 
+def draw_core_claimed(run_dir: pathlib.Path, core_id: str, claims: FigureClaims) -> dict[str, style.SavedFigure | None]:
+    """Draw the figures of one published core of a run still in progress (those that need only
+    the core's own tables; the training sets' figures wait for the report), claiming each."""
+    core = read_core(run_dir, core_id)
+    if not core.tables:
+        return {}
+    run = RunData(folder=pathlib.Path(run_dir), manifest={}, summary=None, stack=None, cores=[core], training=[])
+    drawer = _Claiming(DrawnFigures(run.folder, False, claims))
+    with style.report_style():
+        _core_section(core, run, drawer)
+    return drawer.figures.drawn
+
+
 def _drawn_in_parallel(run: RunData, png: bool, helper: ReportHelper | None,
                        exports: bool) -> tuple[dict[str, style.SavedFigure | None], bool, str | None]:
     """The figures drawn by this process and ``helper`` (none: nothing drawn yet), whether the
     helper wrote the exports (asked with ``exports``) and the exports' failure, if any."""
     if helper is None:
         return {}, False, None
-    claims = FigureClaims.create()
-    drawn: dict[str, style.SavedFigure | None] = {}
+    early = not png and getattr(helper, "claims", None) is not None  # a run's helper (no PNG)
+    claims = helper.claims if early else FigureClaims.create()
+    drawn: dict[str, style.SavedFigure | None] = helper.early_figures() if early else {}
     try:
         future = helper.submit(run.folder, png, claims, exports)
         mine = DrawnFigures(run.folder, png, claims)
@@ -351,7 +366,8 @@ def _drawn_in_parallel(run: RunData, png: bool, helper: ReportHelper | None,
         drawn.update(delivered["drawn"])
         return drawn, exports, delivered["exports"]
     finally:
-        claims.remove()
+        if not early:
+            claims.remove()
 
 
 def write_report_and_exports(run_dir: str | pathlib.Path, helper: ReportHelper | None = None) -> list[str]:
