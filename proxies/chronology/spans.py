@@ -1,0 +1,135 @@
+"""Dates taken over a depth interval: a constraint on the interval's mean age.
+
+A date measured on a slice from depth ``top`` to ``bottom`` dates material spread over the
+slice, so it constrains the *mean* age of the slice, not the age at one depth. The
+accumulation models put a node at the slice's top (node k) and bottom (node k + 1) and none
+inside, and join nodes by straight lines, so the mean age of the slice is exactly
+``(a_k + a_{k+1}) / 2``. The date's likelihood is then a potential on the interval (k, k + 1)
+rather than on a node, and the chain stays a chain: the transition of that interval becomes
+
+    T(i -> j) = kernel(j - i) * E(i + j),
+
+with ``E(s)`` the product of the likelihoods of the dates on that interval evaluated at the
+mean age ``origin + s * step / 2`` (a half-cell grid; ``s = i + j``). This is exact on the
+discretised model (the same forward filtering, backward sampling and evidence), only the
+interval's transition is no longer a convolution and is summed lag by lag here. The
+half-cell likelihoods are held as mass per model cell (the width of a cell of the node
+grid), so a slice's date weighs like a point date.
+
+References
+----------
+Carter CK, Kohn R (1994). On Gibbs sampling for state space models. Biometrika 81(3),
+541-553. doi:10.1093/biomet/81.3.541
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+__all__ = ["half_cell_mass", "shift_with_potential", "pull_with_potential", "span_outlier_posterior"]
+
+
+def half_cell_mass(on_grid, origin: float, step: float, size: int) -> np.ndarray:
+    """Mass per model cell at the 2G - 1 half-cell ages ``origin + s step / 2``.
+
+    Parameters
+    ----------
+    on_grid : callable
+        ``on_grid(origin, step, size)`` -> (n, size) mass per cell of width ``step`` centred
+        on ``origin + c step`` (e.g. :meth:`CalibratedDates.on_grid`).
+    origin, step : float
+        Node grid: centre of cell 0 [cal BP] and step [yr].
+    size : int
+        Number G of node-grid cells.
+
+    Returns
+    -------
+    ndarray, shape (n, 2G - 1)
+        Even entries are the node-grid masses, odd entries the masses of cells of the same
+        width centred half-way between.
+    """
+    whole = on_grid(origin, step, size)
+    out = np.empty((whole.shape[0], 2 * size - 1))
+    out[:, 0::2] = whole
+    if size > 1:
+        out[:, 1::2] = on_grid(origin + step / 2, step, size - 1)
+    return out
+
+
+def shift_with_potential(alpha: np.ndarray, kernels: np.ndarray, potential: np.ndarray, lo: int,
+                         size: int) -> np.ndarray:
+    """``out[..., j] = sum_i alpha[..., i] kernels[..., j - i] potential[i + j]``.
+
+    Parameters
+    ----------
+    alpha : ndarray, shape (..., W)
+        Distribution over the cells ``lo .. lo + W - 1`` of the node grid.
+    kernels : ndarray, shape (..., J)
+        Increment kernels (broadcast against ``alpha``'s leading axes).
+    potential : ndarray, shape (2G - 1,)
+        Interval potential by half-cell index ``i + j`` (absolute cells).
+    lo : int
+        Absolute cell of ``alpha[..., 0]``.
+    size : int
+        Number G of node-grid cells (mass beyond the last cell is lost).
+
+    Returns
+    -------
+    ndarray, shape (..., min(W + J - 1, G - lo))
+        Over the cells ``lo ..``.
+    """
+    width_in, lags = alpha.shape[-1], kernels.shape[-1]
+    width = min(width_in + lags - 1, size - lo)
+    shape = np.broadcast_shapes(alpha.shape[:-1], kernels.shape[:-1]) + (width,)
+    out = np.zeros(shape, dtype=np.result_type(alpha, kernels))
+    offsets = 2 * np.arange(width_in)
+    for t in range(min(lags, width)):
+        n = min(width_in, width - t)
+        weight = potential[2 * lo + t + offsets[:n]].astype(out.dtype)
+        out[..., t: t + n] += alpha[..., :n] * kernels[..., t: t + 1] * weight
+    return out
+
+
+def pull_with_potential(values: np.ndarray, kernels: np.ndarray, potential: np.ndarray) -> np.ndarray:
+    """``out[..., i] = sum_t kernels[..., t] potential[2 i + t] values[..., i + t]`` (backward message).
+
+    ``values`` (..., G) on the whole node grid, ``kernels`` (..., J); returns (..., G).
+    """
+    size, lags = values.shape[-1], kernels.shape[-1]
+    out = np.zeros(np.broadcast_shapes(values.shape[:-1], kernels.shape[:-1]) + (size,))
+    offsets = 2 * np.arange(size)
+    for t in range(min(lags, size)):
+        n = size - t
+        out[..., :n] += kernels[..., t: t + 1] * potential[t + offsets[:n]] * values[..., t: t + n]
+    return out
+
+
+def span_outlier_posterior(filtered: np.ndarray, kernel: np.ndarray, potential: np.ndarray,
+                           share: np.ndarray, below: np.ndarray) -> float:
+    """Posterior outlier probability of one date on an interval (one hyper-parameter point).
+
+    The joint posterior of the interval's end cells is proportional to
+    ``filtered(i) kernel(j - i) potential(i + j) below(j)``; the date's outlier probability
+    is its average of ``share(i + j) = p o(m) / L(m)``.
+
+    Parameters
+    ----------
+    filtered : ndarray, shape (G,)
+        Filtered distribution of the top node (dates at nodes above included).
+    kernel : ndarray, shape (J,)
+    potential : ndarray, shape (2G - 1,)
+        Product of the likelihoods of every date on the interval.
+    share : ndarray, shape (2G - 1,)
+        The date's outlier share of its own likelihood at each half-cell.
+    below : ndarray, shape (G,)
+        Likelihood at the bottom node times its backward message.
+    """
+    size = filtered.size
+    offsets = 2 * np.arange(size)
+    numerator = denominator = 0.0
+    for t in range(min(kernel.size, size)):
+        n = size - t
+        joint = filtered[:n] * kernel[t] * potential[t + offsets[:n]] * below[t: t + n]
+        denominator += float(joint.sum())
+        numerator += float(np.dot(joint, share[t + offsets[:n]]))
+    return numerator / max(denominator, 1e-300)
