@@ -139,9 +139,12 @@ def run_accumulation(calibrated: CalibratedDates, use, z, priors, hiatuses, top,
     """
     z_used = z[use]
     slices = (np.full((z.size, 2), np.nan) if spans is None else np.asarray(spans, dtype=float))[use]
-    is_span = np.isfinite(slices[:, 0])
     spacing = settings.node_spacing_cm or auto_node_spacing(z_used, top, bottom)
     spacing = max(spacing, (bottom - top) / settings.max_nodes)
+    # a slice thinner than a third of the spacing (closer than that, ladder nodes give way to a
+    # date) stays a point at its centre node: the mean age of a slice of thickness h around a
+    # node where the deposition time changes by d [yr/cm] differs from the node's age by h d / 8
+    is_span = np.isfinite(slices[:, 0]) & (slices[:, 1] - slices[:, 0] >= spacing / 3)
     inside = tuple(h for h in hiatuses if top < h < bottom)
     nodes, gap_after = place_nodes(top, bottom, spacing, z_used[~is_span], inside, slices[is_span])
     date_node = np.searchsorted(nodes, z_used - 1e-6, side="left")

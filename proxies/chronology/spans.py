@@ -56,9 +56,25 @@ def half_cell_mass(on_grid, origin: float, step: float, size: int) -> np.ndarray
     return out
 
 
+#: kernel cells below this probability are skipped in the lagged sums (the mass dropped is
+#: below J x 1e-15 per interval: round-off level)
+_KERNEL_CUT = 1e-15
+
+
+def _rows_by_length(kernels: np.ndarray):
+    """Kernel rows (R, J) sorted longest first, with each row's length above the cut."""
+    above = kernels >= _KERNEL_CUT
+    length = np.where(above.any(axis=1), kernels.shape[1] - np.argmax(above[:, ::-1], axis=1), 0)
+    order = np.argsort(-length, kind="stable")
+    return order, length[order]
+
+
 def shift_with_potential(alpha: np.ndarray, kernels: np.ndarray, potential: np.ndarray, lo: int,
                          size: int) -> np.ndarray:
     """``out[..., j] = sum_i alpha[..., i] kernels[..., j - i] potential[i + j]``.
+
+    Summed lag by lag over the rows whose kernel still holds mass at that lag (rows sorted by
+    kernel length), so the cost is the sum of the kernels' lengths times the window.
 
     Parameters
     ----------
@@ -80,14 +96,26 @@ def shift_with_potential(alpha: np.ndarray, kernels: np.ndarray, potential: np.n
     """
     width_in, lags = alpha.shape[-1], kernels.shape[-1]
     width = min(width_in + lags - 1, size - lo)
-    shape = np.broadcast_shapes(alpha.shape[:-1], kernels.shape[:-1]) + (width,)
-    out = np.zeros(shape, dtype=np.result_type(alpha, kernels))
-    offsets = 2 * np.arange(width_in)
+    lead = np.broadcast_shapes(alpha.shape[:-1], kernels.shape[:-1])
+    dtype = np.result_type(alpha, kernels)
+    rows_alpha = np.broadcast_to(alpha, lead + (width_in,)).reshape(-1, width_in)
+    rows_kernel = np.broadcast_to(kernels, lead + (lags,)).reshape(-1, lags)
+    order, length = _rows_by_length(rows_kernel)
+    rows_alpha, rows_kernel = rows_alpha[order], rows_kernel[order]
+    potential = potential.astype(dtype)
+    out = np.zeros((order.size, width), dtype=dtype)
+    live = order.size
     for t in range(min(lags, width)):
+        while live and length[live - 1] <= t:
+            live -= 1
+        if not live:
+            break
         n = min(width_in, width - t)
-        weight = potential[2 * lo + t + offsets[:n]].astype(out.dtype)
-        out[..., t: t + n] += alpha[..., :n] * kernels[..., t: t + 1] * weight
-    return out
+        weight = potential[2 * lo + t: 2 * lo + t + 2 * n: 2]
+        out[:live, t: t + n] += rows_alpha[:live, :n] * rows_kernel[:live, t: t + 1] * weight
+    result = np.empty_like(out)
+    result[order] = out
+    return result.reshape(lead + (width,))
 
 
 def pull_with_potential(values: np.ndarray, kernels: np.ndarray, potential: np.ndarray) -> np.ndarray:
@@ -96,12 +124,23 @@ def pull_with_potential(values: np.ndarray, kernels: np.ndarray, potential: np.n
     ``values`` (..., G) on the whole node grid, ``kernels`` (..., J); returns (..., G).
     """
     size, lags = values.shape[-1], kernels.shape[-1]
-    out = np.zeros(np.broadcast_shapes(values.shape[:-1], kernels.shape[:-1]) + (size,))
-    offsets = 2 * np.arange(size)
+    lead = np.broadcast_shapes(values.shape[:-1], kernels.shape[:-1])
+    rows_values = np.broadcast_to(values, lead + (size,)).reshape(-1, size)
+    rows_kernel = np.broadcast_to(kernels, lead + (lags,)).reshape(-1, lags)
+    order, length = _rows_by_length(rows_kernel)
+    rows_values, rows_kernel = rows_values[order], rows_kernel[order]
+    out = np.zeros((order.size, size))
+    live = order.size
     for t in range(min(lags, size)):
+        while live and length[live - 1] <= t:
+            live -= 1
+        if not live:
+            break
         n = size - t
-        out[..., :n] += kernels[..., t: t + 1] * potential[t + offsets[:n]] * values[..., t: t + n]
-    return out
+        out[:live, :n] += rows_kernel[:live, t: t + 1] * potential[t: t + 2 * n: 2] * rows_values[:live, t: t + n]
+    result = np.empty_like(out)
+    result[order] = out
+    return result.reshape(lead + (size,))
 
 
 def span_outlier_posterior(filtered: np.ndarray, kernel: np.ndarray, potential: np.ndarray,
@@ -125,11 +164,10 @@ def span_outlier_posterior(filtered: np.ndarray, kernel: np.ndarray, potential: 
         Likelihood at the bottom node times its backward message.
     """
     size = filtered.size
-    offsets = 2 * np.arange(size)
     numerator = denominator = 0.0
-    for t in range(min(kernel.size, size)):
+    for t in np.flatnonzero(kernel[:size] >= _KERNEL_CUT):
         n = size - t
-        joint = filtered[:n] * kernel[t] * potential[t + offsets[:n]] * below[t: t + n]
+        joint = filtered[:n] * kernel[t] * potential[t: t + 2 * n: 2] * below[t: t + n]
         denominator += float(joint.sum())
-        numerator += float(np.dot(joint, share[t + offsets[:n]]))
+        numerator += float(np.dot(joint, share[t: t + 2 * n: 2]))
     return numerator / max(denominator, 1e-300)
