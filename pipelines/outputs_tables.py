@@ -10,17 +10,22 @@ from __future__ import annotations
 import re
 from dataclasses import dataclass
 
+from proxies.members import MEMBER_COLUMN_PATTERN
+
 __all__ = ["Column", "Family", "OutputTable", "TABLES", "CORE_TABLES"]
 
 
 @dataclass(frozen=True)
 class Column:
-    """One declared column: name, logical dtype, units ("" when dimensionless), meaning."""
+    """One declared column: name, logical dtype, units ("" when dimensionless), meaning, and
+    how the report draws it (``role``: ``"measure"`` a per-sample quantity drawn as a panel,
+    ``"limit"`` a level drawn as a line on the measures' panel, ``""`` not drawn as such)."""
 
     name: str
     dtype: str
     units: str
     doc: str
+    role: str = ""
 
 
 @dataclass(frozen=True)
@@ -72,8 +77,8 @@ class OutputTable:
         return re.compile(text)
 
 
-def _c(name: str, dtype: str, units: str, doc: str) -> Column:
-    return Column(name, dtype, units, doc)
+def _c(name: str, dtype: str, units: str, doc: str, role: str = "") -> Column:
+    return Column(name, dtype, units, doc, role)
 
 
 def _quantiles(prefix: str, units: str, what: str,
@@ -83,7 +88,7 @@ def _quantiles(prefix: str, units: str, what: str,
                  for level in levels)
 
 
-_MEMBERS = Family(r"m\d{4}", "m0000", "float", "as the row's quantity", "one column per ensemble member")
+_MEMBERS = Family(MEMBER_COLUMN_PATTERN, "m0000", "float", "as the row's quantity", "one column per ensemble member")
 _AGE = _c("age_cal_bp", "float", "cal BP", "grid age")
 _VARIABLE = _c("variable", "string", "", "reconstructed climate variable")
 _SUMMARY_STAT = ("median", "q025", "q975")
@@ -111,6 +116,32 @@ TABLES: dict[str, OutputTable] = {t.key: t for t in (
         _c("n_records", "int", "", "cores contributing at this age"),
         _c("stack_young_cal_bp", "float", "cal BP", "young end of the composite's window"),
         _c("stack_old_cal_bp", "float", "cal BP", "old end of the composite's window")), required=("age_cal_bp", "variable", "value_median", "value_q025", "value_q975")),
+    OutputTable("stack_ensemble", "stack_ensemble.parquet", "every member of the regional composite", (
+        _AGE, _VARIABLE), (_MEMBERS,), required=("age_cal_bp", "variable")),
+    OutputTable("regional_events", "regional_events.parquet",
+                "events found in the regional composite, with the regional onset", (
+        _VARIABLE, _c("event_id", "string", "", "event id (within the stack)"),
+        _c("kind", "string", "", "shift | excursion"),
+        _c("direction", "string", "", "positive | negative"),
+        *(_c(f"{q}_{s}", "float", "variable units" if q == "amplitude" else "cal BP" if q in ("onset", "midpoint") else "yr",
+             f"{s} of the regional {q} over the composite's members")
+          for q in ("onset", "midpoint", "duration", "amplitude") for s in _SUMMARY_STAT),
+        _c("probability", "float", "", "share of composite members showing the event"),
+        _c("p_value", "float", "", "red-noise p-value of the event in the composite"),
+        _c("significant", "bool", "", "p_value below alpha and amplitude 95 % range excluding zero"),
+        _c("n_members", "number", "", "composite members showing the event"),
+        _c("n_records", "int", "", "records in the composite at the onset median"),
+        _c("records", "string", "", "the composite's records (core/series), comma separated"),
+        _c("note", "string", "", "why an event below alpha is not called significant")),
+        required=("variable", "event_id", "onset_median", "onset_q025", "onset_q975", "significant")),
+    OutputTable("regional_onsets", "regional_onsets.parquet", "regional onset of each stack event in each member", (
+        _VARIABLE, _c("event_id", "string", "", "event id (within the stack)"),
+        _c("member", "int", "", "composite member index"),
+        _c("onset_cal_bp", "float", "cal BP", "onset age in that member"),
+        _c("end_cal_bp", "float", "cal BP", "end of the change in that member"),
+        _c("amplitude", "float", "variable units", "change in that member (ramp fit)"),
+        _c("detected", "bool", "", "the member detects the event (else: its fitted change at the event's place)")),
+        required=("variable", "event_id", "member", "onset_cal_bp")),
     OutputTable("training_cv", "training/<name>_cv.parquet",
                 "cross-validated observed vs predicted of a training set", (
         _c("id", "string", "", "modern sample id"),
@@ -236,12 +267,13 @@ TABLES: dict[str, OutputTable] = {t.key: t for t in (
         _c("training", "string", "", "training set"),
         _c("prediction", "float", "target units", "prediction of the fitted model"),
         _c("prediction_error", "float", "target units", "sample-specific error"),
-        _c("nearest_analogue_distance", "float", "", "squared-chord distance to the nearest modern sample"),
-        _c("good_analogue_limit", "float", "", "distance below which an analogue is good"),
-        _c("no_analogue_limit", "float", "", "distance above which there is no close analogue"),
+        _c("nearest_analogue_distance", "float", "", "squared-chord distance to the nearest modern sample",
+           "measure"),
+        _c("good_analogue_limit", "float", "", "distance below which an analogue is good", "limit"),
+        _c("no_analogue_limit", "float", "", "distance above which there is no close analogue", "limit"),
         _c("analogue_quality", "string", "", "good | fair | none"),
-        _c("missing_taxa_percent", "float", "%", "share of the sample's taxa absent from training"),
-        _c("n_missing_taxa", "int", "", "taxa absent from training"),
+        _c("missing_taxa_percent", "float", "%", "share of the sample's taxa absent from training", "measure"),
+        _c("n_missing_taxa", "int", "", "taxa absent from training", "measure"),
         _c("source_row", "int", "", "1-based row of counts")), required=("depth_cm", "proxy")),
     OutputTable("samples_dated", "<core>/samples_dated.parquet",
                 "every sample with its depth, age, raw proxies, calibrated values and flags "
@@ -308,6 +340,7 @@ TABLES: dict[str, OutputTable] = {t.key: t for t in (
         _c("event_id", "string", "", "event id"),
         _c("member", "int", "", "member index"),
         _c("onset_cal_bp", "float", "cal BP", "onset age in that member"),
+        _c("end_cal_bp", "float", "cal BP", "end of the change in that member (ramp fit)"),
         _c("amplitude", "float", "variable units", "change in that member (ramp fit)"),
         _c("detected", "bool", "", "the member detects the event (else: its fitted change at the event's place)")), required=("event_id", "member", "onset_cal_bp")),
     OutputTable("archive_events", "archive_events.parquet",

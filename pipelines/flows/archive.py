@@ -4,7 +4,9 @@ The flow drives each core through ingest -> chronology -> calibration -> reconst
 events -> outputs by submitting the next task of a core as soon as its previous task finishes
 (so workers stay busy across cores, and a failed core simply stops). Training sets are fitted
 once, before any calibration, and shared. When all cores are done the regional stack is
-built. The flow returns one summary row per core; it never fails because a core failed.
+built. Dated series (``[series.<name>]``) join as cores whose reconstruction is their
+``series`` stage: their events, folder, stack and lead/lag follow as for a core. The flow
+returns one summary row per core (and series); it never fails because a core failed.
 
 Concurrency is the task runner's: ``ThreadPoolTaskRunner(max_workers=N)`` by default or a
 ``DaskTaskRunner`` (see :mod:`pipelines.flows.runners`). Results do not depend on it: every
@@ -37,6 +39,7 @@ __all__ = ["archive_flow", "core_flow", "CoreTrack", "register_observer", "unreg
 CHAIN_BATCH_CORES = 4
 
 _OBSERVERS: dict[str, Any] = {}
+_PLANS: dict[str, RunPlan] = {}
 
 
 def register_observer(observer: Any) -> str:
@@ -49,6 +52,21 @@ def register_observer(observer: Any) -> str:
 
 def unregister_observer(key: str) -> None:
     _OBSERVERS.pop(key, None)
+
+
+def register_plan(plan: RunPlan) -> str:
+    """Make a plan reachable by id from inside the flow; returns its id.
+
+    Flow parameters are sent to the Prefect server, which refuses large ones (~512 KB, see
+    ../shared/PREFECT.md): a 1,000-core plan (every input file with its hash) is larger than
+    that, so the archive flow takes the plan's id, not the plan."""
+    key = f"plan-{plan.fingerprint[:12]}-{id(plan)}"
+    _PLANS[key] = plan
+    return key
+
+
+def unregister_plan(key: str) -> None:
+    _PLANS.pop(key, None)
 
 
 class _Silent:
@@ -108,7 +126,7 @@ class _Driver:
     finishes; a stage already in the work store is looked up instead of submitted."""
 
     def __init__(self, plan: RunPlan, run_dir: str, store: WorkStore, recompute: bool, observer: Any,
-                 inline_stages: tuple[str, ...] = (), chain: bool = False):
+                 inline_stages: tuple[str, ...] = (), chain: bool = False, with_series: bool = True):
         self.plan, self.run_dir, self.store, self.recompute = plan, run_dir, store, recompute
         self.inline_stages = frozenset(inline_stages)
         self.chain = chain
@@ -124,6 +142,7 @@ class _Driver:
         self.ids: dict[str, str] = {}
         self.tracks: list[CoreTrack] = []
         self.known_hashes: dict[str, tuple[int, int, str]] = {}
+        self.series = dict(plan.auxiliary.get("series", {})) if with_series else {}
 
     # -- submission ---------------------------------------------------------------------
     def _entries(self, track: CoreTrack) -> dict:
@@ -159,6 +178,11 @@ class _Driver:
             self.tracks.append(track)
             track.say(f"core folder {folder}")
             self._submit(track, "ingest", track.label, {"folder": folder})
+        for name, (path, _) in sorted(self.series.items()):
+            track = CoreTrack(folder=path, label=name)
+            self.tracks.append(track)
+            track.say(f"dated series {name}: {path}")
+            self._submit(track, "series", name, {"name": name})
 
     def _next(self, track: CoreTrack, finished: str) -> None:
         position = CORE_STAGES.index(finished)
@@ -289,6 +313,9 @@ class _Driver:
         if stage in PUBLISH_STAGES:
             self._on_publish_stage(track, stage, result)
             return
+        if stage == "series":
+            self._on_series(track, result)
+            return
         if stage == "outputs":
             if isinstance(result, BaseException):
                 track.status, track.error = "failed", f"writing outputs: {result}"
@@ -323,6 +350,16 @@ class _Driver:
         track.say(f"{stage} done in {result.get('seconds', 0.0):.2f} s"
                   + (" (reused from the cache)" if result.get("cached") else ""))
         return True
+
+    def _on_series(self, track: CoreTrack, result: Any) -> None:
+        """A dated series read and gridded: from here on it is a core whose reconstruction
+        is done (its events are detected next, then its folder is published)."""
+        if not isinstance(result, BaseException) and "skipped" not in result:
+            if not self._claim_id(track, track.label):
+                return
+            track.seconds["series"] = float(result.get("seconds", 0.0))
+        if self._record(track, "reconstruction", result):
+            self._next(track, "reconstruction")
 
     def _claim_id(self, track: CoreTrack, core_id: str) -> bool:
         """Give the core its id; a second core with the same id fails (and is published)."""
@@ -364,10 +401,11 @@ class _Driver:
 
 
 @flow(name="downcore-archive", validate_parameters=False, persist_result=False, log_prints=False)
-def archive_flow(plan: RunPlan, run_dir: str, cache_dir: str, recompute: bool = False,
+def archive_flow(plan_id: str, run_dir: str, cache_dir: str, recompute: bool = False,
                  observer_id: str | None = None, inline_stages: tuple[str, ...] = (),
                  chain: bool = False) -> dict:
-    """Run every core of ``plan`` into ``run_dir`` (see the module docstring).
+    """Run every core of the plan registered as ``plan_id`` (:func:`register_plan`) into
+    ``run_dir`` (see the module docstring).
 
     ``inline_stages`` run as task runs in the flow's own process instead of being submitted
     to the task runner. On Dask, where a submitted task costs ~60-80 ms (measured, see
@@ -383,6 +421,7 @@ def archive_flow(plan: RunPlan, run_dir: str, cache_dir: str, recompute: bool = 
         core and stage (seconds, reused from cache or not), ``training``: entry per training
         set, ``stack``: the stack entry or ``None``, ``notes``: run-level notes.
     """
+    plan = _PLANS[plan_id]
     observer = _OBSERVERS.get(observer_id or "", _Silent())
     store = WorkStore(cache_dir)
     driver = _Driver(plan, run_dir, store, recompute, observer, tuple(inline_stages), chain)
@@ -406,10 +445,10 @@ def archive_flow(plan: RunPlan, run_dir: str, cache_dir: str, recompute: bool = 
             stack = result
     archive_events = _archive_events(plan, tracks, store, recompute, notes)
     timings = [{"core_id": t.name, "stage": s, "seconds": t.seconds[s], "reused": t.cached.get(s, False)}
-               for t in tracks for s in (*CORE_STAGES, *PUBLISH_STAGES) if s in t.seconds]
+               for t in tracks for s in ("series", *CORE_STAGES, *PUBLISH_STAGES) if s in t.seconds]
     return {"cores": [t.row() for t in tracks], "timings": timings, "training": driver.training,
             "stack": stack, "archive_events": archive_events, "notes": notes,
-            "known_hashes": driver.known_hashes}
+            "known_hashes": driver.known_hashes, "series": sorted(driver.series)}
 
 
 def _archive_events(plan: RunPlan, tracks, store: WorkStore, recompute: bool, notes: list[str]) -> dict | None:
@@ -431,5 +470,5 @@ def core_flow(plan: RunPlan, folder: str, run_dir: str, cache_dir: str, recomput
     """One core through every stage (ingest -> ... -> outputs), sequentially; returns its
     summary row. The archive flow runs the same tasks for many cores at once."""
     single = RunPlan(**{**plan.__dict__, "core_folders": (str(pathlib.Path(folder).resolve()),)})
-    driver = _Driver(single, run_dir, WorkStore(cache_dir), recompute, _Silent())
+    driver = _Driver(single, run_dir, WorkStore(cache_dir), recompute, _Silent(), with_series=False)
     return driver.run()[0].row()

@@ -84,6 +84,7 @@ def resolved_config(plan: RunPlan) -> dict[str, Any]:
         "training": _plain(plan.config.sections["training"]),
         "instrumental": _plain(plan.config.sections["instrumental"]),
         "report": _plain(plan.config.sections["report"]),
+        "series": _plain(plan.config.sections.get("series", {})),
     }
 
 
@@ -98,8 +99,10 @@ def _write_run_tables(run_dir: pathlib.Path, result: dict) -> None:
         for part in ("cv", "skill"):
             target = TABLES[f"training_{part}"].path.replace("<name>", name)
             atomic_copy(entry["paths"][part], run_dir / target)
-    if result.get("stack"):
-        atomic_copy(result["stack"]["paths"]["stack.parquet"], run_dir / TABLES["stack"].path)
+    for key in ("stack", "stack_ensemble", "regional_events", "regional_onsets"):
+        name = TABLES[key].path
+        if result.get("stack") and name in result["stack"].get("paths", {}):
+            atomic_copy(result["stack"]["paths"][name], run_dir / name)
     for key in ("archive_events", "lead_lag"):
         name = TABLES[key].path
         if result.get("archive_events") and name in result["archive_events"].get("paths", {}):
@@ -119,12 +122,17 @@ def _write_report(run_dir: pathlib.Path, notes: list[str]) -> None:
 def _streams(result: dict) -> list[str]:
     """The random streams used (``stage/core_id``): every science stage a core reached."""
     streams = []
+    series = set(result.get("series", ()))
     for row in result["cores"]:
-        if row["stage_reached"] in CORE_STAGES:
+        if row["core_id"] in series:
+            reached = ("series", "events") if row["stage_reached"] == "events" else ("series",)
+            streams += [f"{stage}/{row['core_id']}" for stage in reached]
+        elif row["stage_reached"] in CORE_STAGES:
             last = CORE_STAGES.index(row["stage_reached"])
             streams += [f"{stage}/{row['core_id']}" for stage in SCIENCE_STAGES if CORE_STAGES.index(stage) <= last]
     if result.get("stack"):
         streams.append("stack/all-cores")
+        streams += [f"stack-events/{variable}" for variable in result["stack"].get("variables", [])]
     return streams
 
 
@@ -183,18 +191,20 @@ def _run_into(run_dir: pathlib.Path, plan: RunPlan, inputs: list, cache: pathlib
               recompute: bool, resume: bool, progress: Any, report: bool, local_server: Any,
               started: tuple[float, str]) -> RunOutcome:
     """The run itself, in a run folder whose lock this process holds."""
-    from pipelines.flows.archive import archive_flow, register_observer, unregister_observer
+    from pipelines.flows.archive import (archive_flow, register_observer, register_plan, unregister_observer,
+                                         unregister_plan)
 
     started, started_utc = started
     runner = task_runner_for(choice, cache / "dask-scratch")
     observer_id = register_observer(progress) if progress is not None else None
+    plan_id = register_plan(plan)
     try:
         if local_server is not None and progress is not None:
             progress.phase("starting the Prefect server")
         api_url = local_server.wait_ready() if local_server is not None else None
         with prefect_run_settings(choice, api_url=api_url):
             result = archive_flow.with_options(task_runner=runner)(
-                plan=plan, run_dir=str(run_dir), cache_dir=str(cache), recompute=recompute,
+                plan_id=plan_id, run_dir=str(run_dir), cache_dir=str(cache), recompute=recompute,
                 observer_id=observer_id, inline_stages=choice.inline_stages(),
                 chain=choice.chain_core_stages())
     except BaseException:
@@ -202,6 +212,7 @@ def _run_into(run_dir: pathlib.Path, plan: RunPlan, inputs: list, cache: pathlib
             progress.close()
         raise
     finally:
+        unregister_plan(plan_id)
         if observer_id:
             unregister_observer(observer_id)
     if progress is not None and not report:

@@ -22,8 +22,9 @@ import numpy as np
 import pandas as pd
 
 from pipelines.flows.plan import RunPlan
+from pipelines.flows.shared import shared_instrumental, shared_result
 from pipelines.flows.store import WorkStore, load_object, save_object
-from pipelines.outputs_schema import checked, member_names, table as output_table
+from pipelines.outputs_schema import checked, member_column_names, table as output_table
 from pipelines.runfolder import atomic_write_parquet
 from proxies.problems import InputError
 from proxies.seeding import rng_for
@@ -201,12 +202,12 @@ def run_chronology(plan: RunPlan, store: WorkStore, key: str, recompute: bool, *
     def produce(staged: pathlib.Path) -> dict:
         from proxies.chronology import build_chronology
 
-        core = load_object(ingest)
+        core = shared_result(ingest)
         with _collect_warnings() as caught:
             result = build_chronology(core, _load_curves(plan), plan.settings["chronology"],
                                       plan.ensemble, rng_for(plan.run_seed, "chronology", core_id))
         ensemble = np.asarray(result.ensemble, dtype=float)
-        members = pd.DataFrame(ensemble, columns=member_names(ensemble.shape[1]))
+        members = pd.DataFrame(ensemble, columns=member_column_names(ensemble.shape[1]))
         members.insert(0, "depth_cm", np.asarray(result.depth_cm, dtype=float))
         files = write_tables(staged, {"chronology": result.summary, "age_ensemble": members,
                                       "dates": result.dates, "date_ranges": result.date_ranges,
@@ -221,11 +222,8 @@ def run_chronology(plan: RunPlan, store: WorkStore, key: str, recompute: bool, *
 # --- calibration -----------------------------------------------------------------------------
 
 def _instrumental(plan: RunPlan) -> dict[str, Any]:
-    if not plan.auxiliary.get("instrumental"):
-        return {}
-    from pipelines.auxiliary import read_instrumental
-
-    return {name: read_instrumental(plan.config, name) for name in sorted(plan.auxiliary["instrumental"])}
+    """The run's instrumental series, each read once per process (shared: never modified)."""
+    return {name: shared_instrumental(plan, name) for name in sorted(plan.auxiliary.get("instrumental", {}))}
 
 
 def run_calibration(plan: RunPlan, store: WorkStore, key: str, recompute: bool, *, ingest: dict,
@@ -244,8 +242,8 @@ def run_calibration(plan: RunPlan, store: WorkStore, key: str, recompute: bool, 
     def produce(staged: pathlib.Path) -> dict:
         from proxies.calibration import calibrate_core
 
-        core, chron = load_object(ingest), load_object(chronology)
-        transfers = {name: load_object(entry) for name, entry in sorted(training.items())}
+        core, chron = shared_result(ingest), load_object(chronology)
+        transfers = {name: shared_result(entry) for name, entry in sorted(training.items())}
         with _collect_warnings() as caught:
             try:
                 result = calibrate_core(core, chron, plan.settings["calibration"], transfers,
@@ -277,17 +275,22 @@ def run_reconstruction(plan: RunPlan, store: WorkStore, key: str, recompute: boo
     def produce(staged: pathlib.Path) -> dict:
         from proxies.reconstruction import reconstruct_core
 
-        core, chron, cal = load_object(ingest), load_object(chronology), load_object(calibration)
+        core, chron, cal = shared_result(ingest), load_object(chronology), load_object(calibration)
         with _collect_warnings() as caught:
             result = reconstruct_core(core, chron, cal, plan.settings["reconstruction"],
                                       rng_for(plan.run_seed, "reconstruction", core_id))
-        files = write_tables(staged, {"reconstruction": result.table,
-                                      "reconstruction_ensemble": result.ensemble})
-        return {"files": {"result": save_object(staged, result), **files}, "n_series": len(result.series),
-                "filled": dict(result.filled), "thin": list(result.thin), "notes": list(result.notes),
-                "warnings": _unique(caught + list(result.warnings))}
+        return reconstruction_entry(staged, result, caught)
 
     return _cached_or_build(store, "reconstruction", key, produce, {"core_id": core_id}, recompute)
+
+
+def reconstruction_entry(staged: pathlib.Path, result: Any, caught: list[str]) -> dict:
+    """Write a reconstruction result's tables and pickle; the work-store entry description
+    (shared by a core's reconstruction and a dated series, :mod:`pipelines.flows.series`)."""
+    files = write_tables(staged, {"reconstruction": result.table, "reconstruction_ensemble": result.ensemble})
+    return {"files": {"result": save_object(staged, result), **files}, "n_series": len(result.series),
+            "filled": dict(result.filled), "thin": list(result.thin), "notes": list(result.notes),
+            "warnings": _unique(caught + list(result.warnings))}
 
 
 # --- events ------------------------------------------------------------------------------------
@@ -339,21 +342,37 @@ STACK_STREAM = "all-cores"
 
 def run_stack(plan: RunPlan, store: WorkStore, key: str, recompute: bool, *,
               reconstructions: dict[str, dict]) -> dict:
-    """Regional composite of the reconstructions of all cores (``stack.parquet``)."""
+    """Regional composite of the reconstructions of all cores (``stack.parquet``), every
+    member kept (``stack_ensemble.parquet``), and the events found in it with their regional
+    onset distributions (``regional_events.parquet``, ``regional_onsets.parquet``)."""
     usable = {cid: e for cid, e in sorted(reconstructions.items()) if e.get("n_series")}
     if not usable:
         raise StageSkipped("stack skipped: no core has a reconstruction")
 
     def produce(staged: pathlib.Path) -> dict:
-        from proxies.reconstruction import stack_records
+        from proxies.events.regional import regional_events
+        from proxies.reconstruction.stack import stack_ensembles, stack_records
 
         results = {cid: load_object(e) for cid, e in usable.items()}
         with _collect_warnings() as caught:
-            table = stack_records(results, plan.settings["reconstruction"],
-                                  rng_for(plan.run_seed, "stack", STACK_STREAM))
-        return {"files": write_tables(staged, {"stack": table}), "warnings": _unique(caught)}
+            ensembles = stack_ensembles(results, plan.settings["reconstruction"], seed=plan.run_seed)
+            del results
+            table = stack_records({}, plan.settings["reconstruction"], ensembles=ensembles)
+            events, onsets = regional_events(ensembles, plan.settings["events"],
+                                             lambda variable: rng_for(plan.run_seed, "stack-events", variable))
+        files = write_tables(staged, {"stack": table, "stack_ensemble": _stack_members(ensembles),
+                                      "regional_events": events, "regional_onsets": onsets})
+        return {"files": files, "warnings": _unique(caught), "variables": sorted(ensembles)}
 
     return _cached_or_build(store, "stack", key, produce, {"core_id": None}, recompute)
+
+
+def _stack_members(ensembles: dict) -> pd.DataFrame:
+    frames = [pd.concat([pd.DataFrame({"age_cal_bp": s.age_cal_bp, "variable": variable}),
+                         pd.DataFrame(s.values, columns=member_column_names(s.values.shape[1]))], axis=1)
+              for variable, s in ensembles.items()]
+    return pd.concat(frames, ignore_index=True) if frames else pd.DataFrame(
+        {"age_cal_bp": pd.Series(dtype=float), "variable": pd.Series(dtype=object)})
 
 
 def problem_text(error: BaseException) -> str:
