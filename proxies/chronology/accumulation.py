@@ -45,6 +45,8 @@ import numpy as np
 from scipy import fft as sp_fft
 from scipy import stats
 
+from proxies.chronology.evidence_weights import members_per_point
+
 __all__ = [
     "AccumulationProblem",
     "AccumulationFit",
@@ -407,15 +409,8 @@ def fit_accumulation(problem: AccumulationProblem, mean_rates, shapes, gap_mean:
     kernels = transition_kernels(problem, mean_rates, shapes, gap_mean)
     date_nodes = np.unique(problem.date_node)
     filtered, log_evidence, predicted = forward_filter(like, kernels, keep_predicted=date_nodes)
-    if not np.any(np.isfinite(log_evidence)):
-        raise ValueError("no age-depth path is compatible with the dates on the calendar grid; "
-                         "check the dates, hiatuses and grid range")
-    weights = np.exp(log_evidence - np.max(log_evidence))
-    weights /= weights.sum()
-    active = np.flatnonzero(weights >= min_weight)
+    weights, active, counts = members_per_point(log_evidence, members, min_weight, rng)
     weights_active = weights[active] / weights[active].sum()
-    counts = np.zeros(weights.size, dtype=int)
-    counts[active] = rng.multinomial(members, weights_active)
     paths = np.empty((problem.n_nodes, members))
     outlier = np.zeros(len(problem.date_node))
     sub_kernels = [block[active] for block in kernels]
