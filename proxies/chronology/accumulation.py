@@ -45,6 +45,10 @@ import numpy as np
 from scipy import fft as sp_fft
 from scipy import stats
 
+from proxies.chronology.evidence_weights import members_per_point
+from proxies.chronology.nodes import place_nodes  # kept importable from here
+from proxies.chronology.spans import pull_with_potential, shift_with_potential, span_outlier_posteriors
+
 __all__ = [
     "AccumulationProblem",
     "AccumulationFit",
@@ -57,12 +61,6 @@ __all__ = [
     "place_nodes",
 ]
 
-from proxies.chronology.nodes import place_nodes  # noqa: E402  (kept importable from here)
-from proxies.chronology.spans import (  # noqa: E402
-    pull_with_potential,
-    shift_with_potential,
-    span_outlier_posterior,
-)
 
 _TAIL = 1e-9
 
@@ -442,20 +440,6 @@ def _outlier_posterior(problem: AccumulationProblem, predicted, beta, per_date) 
     return out
 
 
-def _span_outlier_posterior(problem: AccumulationProblem, filtered, beta, like, kernels, edges) -> np.ndarray:
-    """Exact outlier probability of each span date (NaN for point dates), one point.
-
-    ``filtered`` (K, G), ``beta`` (K, G), ``kernels`` the point's (J_k,) rows.
-    """
-    out = np.full(len(problem.date_node), np.nan)
-    spans = np.flatnonzero(problem.spans())
-    shares = problem.span_outlier_shares() if spans.size else None
-    for d in spans:
-        k = int(problem.date_node[d])
-        out[d] = span_outlier_posterior(filtered[k], kernels[k], edges[k], shares[d], like[k + 1] * beta[k + 1])
-    return out
-
-
 def fit_accumulation(problem: AccumulationProblem, mean_rates, shapes, gap_mean: float,
                      members: int, rng: np.random.Generator, min_weight: float = 1e-9) -> AccumulationFit:
     """Posterior age paths of the accumulation model, hyper-parameters integrated.
@@ -489,15 +473,8 @@ def fit_accumulation(problem: AccumulationProblem, mean_rates, shapes, gap_mean:
     kernels = transition_kernels(problem, mean_rates, shapes, gap_mean)
     date_nodes = np.unique(problem.date_node)
     filtered, log_evidence, predicted = forward_filter(like, kernels, keep_predicted=date_nodes, edges=edges)
-    if not np.any(np.isfinite(log_evidence)):
-        raise ValueError("no age-depth path is compatible with the dates on the calendar grid; "
-                         "check the dates, hiatuses and grid range")
-    weights = np.exp(log_evidence - np.max(log_evidence))
-    weights /= weights.sum()
-    active = np.flatnonzero(weights >= min_weight)
+    weights, active, counts = members_per_point(log_evidence, members, min_weight, rng)
     weights_active = weights[active] / weights[active].sum()
-    counts = np.zeros(weights.size, dtype=int)
-    counts[active] = rng.multinomial(members, weights_active)
     paths = np.empty((problem.n_nodes, members))
     outlier = np.zeros(len(problem.date_node))
     sub_kernels = [block[active] for block in kernels]
@@ -507,7 +484,7 @@ def fit_accumulation(problem: AccumulationProblem, mean_rates, shapes, gap_mean:
             node_predicted = {k: predicted[k][h] for k in date_nodes}
             point = _outlier_posterior(problem, node_predicted, beta[j], per_date)
             if spans.any():
-                span = _span_outlier_posterior(problem, filtered[h], beta[j], like, [b[h] for b in kernels], edges)
+                span = span_outlier_posteriors(problem, filtered[h], beta[j], like, [b[h] for b in kernels], edges)
                 point = np.where(spans, span, point)
             outlier += weights_active[j] * point
     column = 0

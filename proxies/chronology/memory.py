@@ -47,6 +47,7 @@ from scipy import fft as sp_fft
 from scipy import stats
 
 from proxies.chronology.accumulation import AccumulationProblem
+from proxies.chronology.evidence_weights import members_per_point
 from proxies.chronology.spans import shift_with_potential
 
 __all__ = ["MemoryFit", "rate_classes", "class_kernels", "memory_forward", "fit_memory"]
@@ -334,14 +335,7 @@ def fit_memory(problem: AccumulationProblem, mean_rates, variabilities, memories
     rate_index = (mi * v_grid.size + vi).ravel()
     point_memory = w_grid[wi.ravel()]
     log_evidence, _, _ = memory_forward(problem, transitions, rate_index, point_memory, dtype=np.float32)
-    if not np.any(np.isfinite(log_evidence)):
-        raise ValueError("no age-depth path is compatible with the dates on the calendar grid; "
-                         "check the dates, hiatuses and grid range")
-    weights = np.exp(log_evidence - np.max(log_evidence))
-    weights /= weights.sum()
-    active = np.flatnonzero(weights >= min_weight)
-    counts = np.zeros(weights.size, dtype=int)
-    counts[active] = rng.multinomial(members, weights[active] / weights[active].sum())
+    weights, _, counts = members_per_point(log_evidence, members, min_weight, rng)
     edges = problem.edge_likelihoods()
     cells = np.empty((problem.n_nodes, members), dtype=np.int64)
     column = 0

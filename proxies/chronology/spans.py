@@ -26,7 +26,8 @@ from __future__ import annotations
 
 import numpy as np
 
-__all__ = ["half_cell_mass", "shift_with_potential", "pull_with_potential", "span_outlier_posterior"]
+__all__ = ["half_cell_mass", "shift_with_potential", "pull_with_potential", "span_outlier_posterior",
+           "span_outlier_posteriors"]
 
 
 def half_cell_mass(on_grid, origin: float, step: float, size: int) -> np.ndarray:
@@ -171,3 +172,19 @@ def span_outlier_posterior(filtered: np.ndarray, kernel: np.ndarray, potential: 
         denominator += float(joint.sum())
         numerator += float(np.dot(joint, share[t: t + 2 * n: 2]))
     return numerator / max(denominator, 1e-300)
+
+
+def span_outlier_posteriors(problem, filtered, beta, like, kernels, edges) -> np.ndarray:
+    """Exact outlier probability of each span date of an accumulation problem (NaN for points).
+
+    One hyper-parameter point: ``filtered`` and ``beta`` (K, G) its filtered distributions
+    and backward messages, ``like`` (K, G) the node likelihoods, ``kernels`` its (J_k,) rows,
+    ``edges`` the interval potentials.
+    """
+    out = np.full(len(problem.date_node), np.nan)
+    spans = np.flatnonzero(problem.spans())
+    shares = problem.span_outlier_shares() if spans.size else None
+    for d in spans:
+        k = int(problem.date_node[d])
+        out[d] = span_outlier_posterior(filtered[k], kernels[k], edges[k], shares[d], like[k + 1] * beta[k + 1])
+    return out
