@@ -112,3 +112,19 @@ def test_regional_onset_range_holds_the_shared_onset():
         members = onsets[onsets["event_id"] == row["event_id"]]
         assert len(members) == 24 and row["n_records"] == 3
     assert found >= 6 and held >= 6
+
+
+def test_report_lists_regional_events_with_their_midpoint(tmp_path):
+    import pandas as pd
+
+    from pipelines.report import write_run_report
+    from run_folder_factory import make_run_folder
+
+    run = tmp_path / "run"
+    make_run_folder(run)
+    row = {c: [0.0] for c in REGIONAL_COLUMNS}
+    row.update(variable=["temperature"], event_id=["temperature-E01"], kind=["shift"], direction=["positive"],
+               onset_median=[4150.0], midpoint_median=[4061.0], significant=[True], records=["A/t, B/t"], note=[""])
+    pd.DataFrame(row).to_parquet(run / "regional_events.parquet")
+    text = write_run_report(run).read_text(encoding="utf-8")
+    assert "regional onset and midpoint" in text and "4061" in text

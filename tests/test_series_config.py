@@ -115,3 +115,14 @@ def test_series_keys_are_validated_with_file_and_key(tmp_path):
     assert "series.S.value_colum" in columns and "value_column" in columns["series.S.value_colum"].fix
     assert {"series.S.age_sd_yr", "series.S.age_units", "series.S.file"} <= set(columns)
     assert all(p.file == str(config.path) for p in info.value.problems)
+
+
+def test_check_refuses_a_series_named_like_a_core(tmp_path):
+    from archive_factory import write_archive
+    from pipelines.config import check_run_config
+
+    (tmp_path / "s.csv").write_text("age,v\n100,1\n200,2\n300,3\n", encoding="utf-8")
+    config = write_archive(tmp_path, n_cores=1, ensemble=20, n_dates=4, n_samples=10,
+                           extra_config='[series.syn-000]\nfile = "s.csv"\n')
+    problems = [p for p in check_run_config(config) if p.column == "series.syn-000"]
+    assert problems and "also a core id" in problems[0].message and problems[0].fix
