@@ -27,9 +27,10 @@ from pathlib import Path
 import pandas as pd
 
 from pipelines.outputs_tables import CORE_TABLES, TABLES, Column, Family, OutputTable
+from proxies.members import member_column_names, member_columns_of
 
 __all__ = ["Column", "Family", "OutputTable", "TABLES", "SchemaError", "table", "columns_of",
-           "member_columns", "member_names", "checked", "frame_problems", "file_problems",
+           "member_columns", "member_column_names", "checked", "frame_problems", "file_problems",
            "table_for_path", "run_folder_problems", "markdown_table", "refresh_readme", "CORE_TABLES"]
 
 _ARROW_KINDS = {
@@ -58,14 +59,9 @@ def columns_of(key: str) -> tuple[str, ...]:
     return table(key).names
 
 
-def member_names(n_members: int) -> list[str]:
-    """Ensemble member column names ``m0000``, ``m0001``, ... (the member family)."""
-    return [f"m{m:04d}" for m in range(n_members)]
-
-
 def member_columns(frame: pd.DataFrame) -> list[str]:
     """The member columns of an ensemble table, in file order."""
-    return [str(c) for c in frame.columns if re.fullmatch(r"m\d{4}", str(c))]
+    return member_columns_of(frame.columns)
 
 
 def _dtype_fits(kind: str, arrow_type: str) -> bool:

@@ -10,17 +10,22 @@ from __future__ import annotations
 import re
 from dataclasses import dataclass
 
+from proxies.members import MEMBER_COLUMN_PATTERN
+
 __all__ = ["Column", "Family", "OutputTable", "TABLES", "CORE_TABLES"]
 
 
 @dataclass(frozen=True)
 class Column:
-    """One declared column: name, logical dtype, units ("" when dimensionless), meaning."""
+    """One declared column: name, logical dtype, units ("" when dimensionless), meaning, and
+    how the report draws it (``role``: ``"measure"`` a per-sample quantity drawn as a panel,
+    ``"limit"`` a level drawn as a line on the measures' panel, ``""`` not drawn as such)."""
 
     name: str
     dtype: str
     units: str
     doc: str
+    role: str = ""
 
 
 @dataclass(frozen=True)
@@ -72,8 +77,8 @@ class OutputTable:
         return re.compile(text)
 
 
-def _c(name: str, dtype: str, units: str, doc: str) -> Column:
-    return Column(name, dtype, units, doc)
+def _c(name: str, dtype: str, units: str, doc: str, role: str = "") -> Column:
+    return Column(name, dtype, units, doc, role)
 
 
 def _quantiles(prefix: str, units: str, what: str,
@@ -83,7 +88,7 @@ def _quantiles(prefix: str, units: str, what: str,
                  for level in levels)
 
 
-_MEMBERS = Family(r"m\d{4}", "m0000", "float", "as the row's quantity", "one column per ensemble member")
+_MEMBERS = Family(MEMBER_COLUMN_PATTERN, "m0000", "float", "as the row's quantity", "one column per ensemble member")
 _AGE = _c("age_cal_bp", "float", "cal BP", "grid age")
 _VARIABLE = _c("variable", "string", "", "reconstructed climate variable")
 _SUMMARY_STAT = ("median", "q025", "q975")
@@ -236,12 +241,13 @@ TABLES: dict[str, OutputTable] = {t.key: t for t in (
         _c("training", "string", "", "training set"),
         _c("prediction", "float", "target units", "prediction of the fitted model"),
         _c("prediction_error", "float", "target units", "sample-specific error"),
-        _c("nearest_analogue_distance", "float", "", "squared-chord distance to the nearest modern sample"),
-        _c("good_analogue_limit", "float", "", "distance below which an analogue is good"),
-        _c("no_analogue_limit", "float", "", "distance above which there is no close analogue"),
+        _c("nearest_analogue_distance", "float", "", "squared-chord distance to the nearest modern sample",
+           "measure"),
+        _c("good_analogue_limit", "float", "", "distance below which an analogue is good", "limit"),
+        _c("no_analogue_limit", "float", "", "distance above which there is no close analogue", "limit"),
         _c("analogue_quality", "string", "", "good | fair | none"),
-        _c("missing_taxa_percent", "float", "%", "share of the sample's taxa absent from training"),
-        _c("n_missing_taxa", "int", "", "taxa absent from training"),
+        _c("missing_taxa_percent", "float", "%", "share of the sample's taxa absent from training", "measure"),
+        _c("n_missing_taxa", "int", "", "taxa absent from training", "measure"),
         _c("source_row", "int", "", "1-based row of counts")), required=("depth_cm", "proxy")),
     OutputTable("samples_dated", "<core>/samples_dated.parquet",
                 "every sample with its depth, age, raw proxies, calibrated values and flags "

@@ -38,6 +38,8 @@ def truth(family: str, rng: np.random.Generator, length_cm: float = 300.0):
         levels = np.exp(rng.uniform(np.log(5), np.log(50), cuts.size + 1))
         rate = levels[np.searchsorted(cuts, np.arange(n), side="right")]
         rate = rate * np.exp(rng.normal(0, 0.1, n))
+        if family == "old":  # the same regimes, scaled to reach 25-45 kyr at the base
+            rate = rate * (rng.uniform(25000, 45000) - TOP_AGE) / rate.sum()
     elif family == "compacted_top":
         soft = rng.uniform(40, 80)
         mix = 1 / (1 + np.exp(-(np.arange(n) - soft) / 2.5))
@@ -45,8 +47,6 @@ def truth(family: str, rng: np.random.Generator, length_cm: float = 300.0):
     elif family in ("few_dates", "clustered"):
         knots = np.exp(rng.uniform(np.log(8), np.log(40), 5))
         rate = np.interp(np.arange(n), np.linspace(0, n, 5), knots) * np.exp(rng.normal(0, 0.1, n))
-        if family == "old":  # the same regimes, scaled to reach 25-45 kyr at the base
-            rate = rate * rng.uniform(25000, 45000) / rate.sum()
     elif family == "own":
         shape = rng.uniform(2, 8)
         rate = rng.gamma(shape, rng.uniform(8, 40) / shape, n)

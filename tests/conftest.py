@@ -1,8 +1,9 @@
 """Shared test set-up.
 
-The environment below keeps Prefect offline, quiet and out of the user's home (see
-../shared/PREFECT.md). Flow tests ask for the ``prefect_harness`` fixture, which starts one
-``prefect_test_harness`` per test session (per xdist worker).
+The environment below keeps Prefect offline, quiet and out of the user's home (the
+``downcore`` command's own defaults, see ../shared/PREFECT.md). Flow tests ask for the
+``prefect_harness`` fixture, which starts one ``prefect_test_harness`` per test session (per
+xdist worker).
 """
 
 from __future__ import annotations
@@ -11,17 +12,10 @@ import os
 import pathlib
 import tempfile
 
-_PREFECT_HOME = tempfile.mkdtemp(prefix="downcore-test-prefect-")
-for _key, _value in {
-    "PREFECT_HOME": _PREFECT_HOME,
-    "PREFECT_SERVER_ANALYTICS_ENABLED": "false",
-    "DO_NOT_TRACK": "1",
-    "PREFECT_LOGGING_LEVEL": "WARNING",
-    "PREFECT_SERVER_EPHEMERAL_STARTUP_TIMEOUT_SECONDS": "120",
-    "PREFECT_SERVER_UI_ENABLED": "false",
-    "DASK_LOGGING__DISTRIBUTED": "warning",
-}.items():
-    os.environ.setdefault(_key, _value)
+from pipelines.flows.runners import apply_environment_defaults  # imports no Prefect
+
+os.environ.setdefault("PREFECT_HOME", tempfile.mkdtemp(prefix="downcore-test-prefect-"))
+apply_environment_defaults()  # the quiet, offline defaults the downcore command sets
 
 import pytest  # noqa: E402
 

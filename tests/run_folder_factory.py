@@ -25,7 +25,7 @@ import pathlib
 import numpy as np
 import pandas as pd
 
-from pipelines.outputs_schema import checked, member_names, table
+from pipelines.outputs_schema import checked, member_column_names, table
 from pipelines.runfolder import atomic_write_json, atomic_write_parquet, atomic_write_text
 
 LEVELS = (0.025, 0.16, 0.5, 0.84, 0.975)
@@ -76,7 +76,7 @@ def _write_core(run: pathlib.Path, core_id: str, rng: np.random.Generator, membe
         "deposition_time_yr_cm": np.gradient(med, depth),
     })
     _put(run, "chronology", chron, core_id)
-    members_df = pd.DataFrame(ens, columns=member_names(members))
+    members_df = pd.DataFrame(ens, columns=member_column_names(members))
     _put(run, "age_ensemble", pd.concat([pd.DataFrame({"depth_cm": depth}), members_df], axis=1), core_id)
 
     date_depth = np.array([22.0, 71.0, 118.0, 163.0, 214.0, 262.0, 296.0])
@@ -166,7 +166,7 @@ def _write_core(run: pathlib.Path, core_id: str, rng: np.random.Generator, membe
     _put(run, "reconstruction", recon, core_id)
     ens_df = pd.concat([
         pd.concat([pd.DataFrame({"age_cal_bp": ages, "variable": "sst", "quantity": quantity}),
-                   pd.DataFrame(ens, columns=member_names(members))], axis=1)
+                   pd.DataFrame(ens, columns=member_column_names(members))], axis=1)
         for quantity, ens in (("value", values), ("anomaly", anomalies))], ignore_index=True)
     _put(run, "reconstruction_ensemble", ens_df, core_id)
 

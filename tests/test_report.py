@@ -225,6 +225,21 @@ def test_analogue_figure_plots_distances_against_median_age(run_dir):
     assert ax.xaxis_inverted()  # older ages to the left
 
 
+def test_analogue_panels_are_the_measures_the_schema_declares(run_dir):
+    """The panels are the declared ``measure`` columns of calibration_diagnostics, in the
+    declaration's order, and the lines its ``limit`` columns: no guessing from names."""
+    from pipelines.outputs_schema import table
+
+    declared = table("calibration_diagnostics").columns
+    measures = [c.name for c in declared if c.role == "measure"]
+    limits = [c.name for c in declared if c.role == "limit"]
+    assert measures == ["nearest_analogue_distance", "missing_taxa_percent", "n_missing_taxa"]
+    assert limits == ["good_analogue_limit", "no_analogue_limit"]
+    assert all(c.dtype in ("float", "int") for c in declared if c.role)
+    fig = analogue_figure(_core(run_dir, "TARN-2"))
+    assert [ax.get_ylabel() for ax in fig.axes] == [m.replace("_", " ") for m in measures]
+
+
 def test_reconstruction_figure_bands_and_warm_cold_split(run_dir):
     core = _core(run_dir, "TARN-2")
     series = reconstruction_series(core.table("reconstruction"))[0]

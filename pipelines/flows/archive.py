@@ -37,6 +37,7 @@ __all__ = ["archive_flow", "core_flow", "CoreTrack", "register_observer", "unreg
 CHAIN_BATCH_CORES = 4
 
 _OBSERVERS: dict[str, Any] = {}
+_PLANS: dict[str, RunPlan] = {}
 
 
 def register_observer(observer: Any) -> str:
@@ -49,6 +50,21 @@ def register_observer(observer: Any) -> str:
 
 def unregister_observer(key: str) -> None:
     _OBSERVERS.pop(key, None)
+
+
+def register_plan(plan: RunPlan) -> str:
+    """Make a plan reachable by id from inside the flow; returns its id.
+
+    Flow parameters are sent to the Prefect server, which refuses large ones (~512 KB, see
+    ../shared/PREFECT.md): a 1,000-core plan (every input file with its hash) is larger than
+    that, so the archive flow takes the plan's id, not the plan."""
+    key = f"plan-{plan.fingerprint[:12]}-{id(plan)}"
+    _PLANS[key] = plan
+    return key
+
+
+def unregister_plan(key: str) -> None:
+    _PLANS.pop(key, None)
 
 
 class _Silent:
@@ -364,10 +380,11 @@ class _Driver:
 
 
 @flow(name="downcore-archive", validate_parameters=False, persist_result=False, log_prints=False)
-def archive_flow(plan: RunPlan, run_dir: str, cache_dir: str, recompute: bool = False,
+def archive_flow(plan_id: str, run_dir: str, cache_dir: str, recompute: bool = False,
                  observer_id: str | None = None, inline_stages: tuple[str, ...] = (),
                  chain: bool = False) -> dict:
-    """Run every core of ``plan`` into ``run_dir`` (see the module docstring).
+    """Run every core of the plan registered as ``plan_id`` (:func:`register_plan`) into
+    ``run_dir`` (see the module docstring).
 
     ``inline_stages`` run as task runs in the flow's own process instead of being submitted
     to the task runner. On Dask, where a submitted task costs ~60-80 ms (measured, see
@@ -383,6 +400,7 @@ def archive_flow(plan: RunPlan, run_dir: str, cache_dir: str, recompute: bool = 
         core and stage (seconds, reused from cache or not), ``training``: entry per training
         set, ``stack``: the stack entry or ``None``, ``notes``: run-level notes.
     """
+    plan = _PLANS[plan_id]
     observer = _OBSERVERS.get(observer_id or "", _Silent())
     store = WorkStore(cache_dir)
     driver = _Driver(plan, run_dir, store, recompute, observer, tuple(inline_stages), chain)

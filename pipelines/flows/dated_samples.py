@@ -13,6 +13,7 @@ from __future__ import annotations
 import pathlib
 
 from pipelines.flows.plan import RunPlan
+from pipelines.flows.shared import shared_result
 from pipelines.flows.stages import _cached_or_build, _collect_warnings, _unique, write_tables
 from pipelines.flows.store import WorkStore, load_object
 
@@ -29,7 +30,7 @@ def run_dated_samples(plan: RunPlan, store: WorkStore, key: str, recompute: bool
     def produce(staged: pathlib.Path) -> dict:
         from proxies.reconstruction.dated_samples import dated_sample_table
 
-        core, chron = load_object(ingest), load_object(chronology)
+        core, chron = shared_result(ingest), load_object(chronology)
         cal = load_object(calibration) if calibration else None
         with _collect_warnings() as caught:
             result = dated_sample_table(core, chron, cal)

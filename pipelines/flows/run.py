@@ -183,18 +183,20 @@ def _run_into(run_dir: pathlib.Path, plan: RunPlan, inputs: list, cache: pathlib
               recompute: bool, resume: bool, progress: Any, report: bool, local_server: Any,
               started: tuple[float, str]) -> RunOutcome:
     """The run itself, in a run folder whose lock this process holds."""
-    from pipelines.flows.archive import archive_flow, register_observer, unregister_observer
+    from pipelines.flows.archive import (archive_flow, register_observer, register_plan, unregister_observer,
+                                         unregister_plan)
 
     started, started_utc = started
     runner = task_runner_for(choice, cache / "dask-scratch")
     observer_id = register_observer(progress) if progress is not None else None
+    plan_id = register_plan(plan)
     try:
         if local_server is not None and progress is not None:
             progress.phase("starting the Prefect server")
         api_url = local_server.wait_ready() if local_server is not None else None
         with prefect_run_settings(choice, api_url=api_url):
             result = archive_flow.with_options(task_runner=runner)(
-                plan=plan, run_dir=str(run_dir), cache_dir=str(cache), recompute=recompute,
+                plan_id=plan_id, run_dir=str(run_dir), cache_dir=str(cache), recompute=recompute,
                 observer_id=observer_id, inline_stages=choice.inline_stages(),
                 chain=choice.chain_core_stages())
     except BaseException:
@@ -202,6 +204,7 @@ def _run_into(run_dir: pathlib.Path, plan: RunPlan, inputs: list, cache: pathlib
             progress.close()
         raise
     finally:
+        unregister_plan(plan_id)
         if observer_id:
             unregister_observer(observer_id)
     if progress is not None and not report:

@@ -22,8 +22,9 @@ import numpy as np
 import pandas as pd
 
 from pipelines.flows.plan import RunPlan
+from pipelines.flows.shared import shared_instrumental, shared_result
 from pipelines.flows.store import WorkStore, load_object, save_object
-from pipelines.outputs_schema import checked, member_names, table as output_table
+from pipelines.outputs_schema import checked, member_column_names, table as output_table
 from pipelines.runfolder import atomic_write_parquet
 from proxies.problems import InputError
 from proxies.seeding import rng_for
@@ -201,12 +202,12 @@ def run_chronology(plan: RunPlan, store: WorkStore, key: str, recompute: bool, *
     def produce(staged: pathlib.Path) -> dict:
         from proxies.chronology import build_chronology
 
-        core = load_object(ingest)
+        core = shared_result(ingest)
         with _collect_warnings() as caught:
             result = build_chronology(core, _load_curves(plan), plan.settings["chronology"],
                                       plan.ensemble, rng_for(plan.run_seed, "chronology", core_id))
         ensemble = np.asarray(result.ensemble, dtype=float)
-        members = pd.DataFrame(ensemble, columns=member_names(ensemble.shape[1]))
+        members = pd.DataFrame(ensemble, columns=member_column_names(ensemble.shape[1]))
         members.insert(0, "depth_cm", np.asarray(result.depth_cm, dtype=float))
         files = write_tables(staged, {"chronology": result.summary, "age_ensemble": members,
                                       "dates": result.dates, "date_ranges": result.date_ranges,
@@ -221,11 +222,8 @@ def run_chronology(plan: RunPlan, store: WorkStore, key: str, recompute: bool, *
 # --- calibration -----------------------------------------------------------------------------
 
 def _instrumental(plan: RunPlan) -> dict[str, Any]:
-    if not plan.auxiliary.get("instrumental"):
-        return {}
-    from pipelines.auxiliary import read_instrumental
-
-    return {name: read_instrumental(plan.config, name) for name in sorted(plan.auxiliary["instrumental"])}
+    """The run's instrumental series, each read once per process (shared: never modified)."""
+    return {name: shared_instrumental(plan, name) for name in sorted(plan.auxiliary.get("instrumental", {}))}
 
 
 def run_calibration(plan: RunPlan, store: WorkStore, key: str, recompute: bool, *, ingest: dict,
@@ -244,8 +242,8 @@ def run_calibration(plan: RunPlan, store: WorkStore, key: str, recompute: bool, 
     def produce(staged: pathlib.Path) -> dict:
         from proxies.calibration import calibrate_core
 
-        core, chron = load_object(ingest), load_object(chronology)
-        transfers = {name: load_object(entry) for name, entry in sorted(training.items())}
+        core, chron = shared_result(ingest), load_object(chronology)
+        transfers = {name: shared_result(entry) for name, entry in sorted(training.items())}
         with _collect_warnings() as caught:
             try:
                 result = calibrate_core(core, chron, plan.settings["calibration"], transfers,
@@ -277,7 +275,7 @@ def run_reconstruction(plan: RunPlan, store: WorkStore, key: str, recompute: boo
     def produce(staged: pathlib.Path) -> dict:
         from proxies.reconstruction import reconstruct_core
 
-        core, chron, cal = load_object(ingest), load_object(chronology), load_object(calibration)
+        core, chron, cal = shared_result(ingest), load_object(chronology), load_object(calibration)
         with _collect_warnings() as caught:
             result = reconstruct_core(core, chron, cal, plan.settings["reconstruction"],
                                       rng_for(plan.run_seed, "reconstruction", core_id))

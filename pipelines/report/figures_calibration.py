@@ -6,14 +6,13 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
+from pipelines.outputs_schema import table as output_table
 from pipelines.report import style
 from pipelines.report.rundata import CoreData, TrainingData
 
 __all__ = ["cv_scatter_figure", "cv_statistics", "analogue_figure", "diagnostic_columns",
            "training_sets_of", "sample_ages"]
 
-_NOT_METRICS = {"depth_cm", "age_cal_bp", "source_row", "thickness_cm", "n_taxa"}
-_THRESHOLD_WORDS = ("threshold", "cutoff", "limit")
 
 
 def _is_text(column: pd.Series) -> bool:
@@ -107,22 +106,11 @@ def sample_ages(core: CoreData, depth_cm: np.ndarray) -> np.ndarray | None:
 
 
 def diagnostic_columns(diag: pd.DataFrame) -> tuple[list[str], list[str]]:
-    """(metric columns, threshold columns) of ``calibration_diagnostics.parquet``."""
-    metrics, thresholds = [], []
-    for column in diag.columns:
-        name = str(column)
-        if name in _NOT_METRICS or not pd.api.types.is_numeric_dtype(diag[column]):
-            continue
-        if pd.api.types.is_bool_dtype(diag[column]):
-            continue
-        (thresholds if any(w in name.lower() for w in _THRESHOLD_WORDS) else metrics).append(name)
-    return metrics, thresholds
-
-
-def _metric_rank(name: str) -> tuple[int, str]:
-    """Distances first, then missing taxa, then anything else (alphabetical within)."""
-    lowered = name.lower()
-    return (0 if "dist" in lowered else 1 if "missing" in lowered else 2, name)
+    """(measure columns, limit columns) of ``calibration_diagnostics.parquet`` present in
+    ``diag``, as the run-folder schema declares them (``role``), in declaration order."""
+    declared = output_table("calibration_diagnostics").columns
+    present = [c for c in declared if c.name in diag.columns]
+    return ([c.name for c in present if c.role == "measure"], [c.name for c in present if c.role == "limit"])
 
 
 def _pretty(name: str) -> str:
@@ -132,7 +120,8 @@ def _pretty(name: str) -> str:
 def analogue_figure(core: CoreData, max_panels: int = 3):
     """Fossil-sample diagnostics (e.g. distance to the nearest modern analogue, share of
     taxa missing from the training set) against age, one panel per measure, with the
-    thresholds the calibration stage wrote as horizontal lines."""
+    limits the calibration stage wrote as horizontal lines (measures and limits as the
+    run-folder schema declares them)."""
     diag = core.table("calibration_diagnostics")
     if diag is None or not len(diag):
         return None
@@ -141,7 +130,7 @@ def analogue_figure(core: CoreData, max_panels: int = 3):
         return None
     varying = [m for m in metrics
                if pd.to_numeric(diag[m], errors="coerce").dropna().nunique() > 1]
-    metrics = sorted(varying or metrics[:1], key=_metric_rank)[:max_panels]
+    metrics = (varying or metrics[:1])[:max_panels]
     if "age_cal_bp" in diag.columns:
         ages = pd.to_numeric(diag["age_cal_bp"], errors="coerce").to_numpy(float)
         xlabel = "age [cal BP]"

@@ -3,10 +3,9 @@
 from __future__ import annotations
 
 import numpy as np
-from sklearn.base import BaseEstimator, RegressorMixin
-from sklearn.utils.validation import check_is_fitted, validate_data
+from sklearn.utils.validation import check_is_fitted
 
-from .wa import row_profiles
+from .wa import AbundanceRegressor, row_profiles
 
 __all__ = ["MAT", "squared_chord_distances", "nearest_analogues", "distance_roots"]
 
@@ -90,7 +89,7 @@ def distance_roots(X, transform="none"):
     raise ValueError(f"unknown transform {transform!r}; use 'none', 'sqrt' or 'log'")
 
 
-class MAT(RegressorMixin, BaseEstimator):
+class MAT(AbundanceRegressor):
     """Modern analogue technique: the mean target of the k nearest training samples.
 
     Distances are squared-chord distances between sample proportions (rows divided by
@@ -124,18 +123,11 @@ class MAT(RegressorMixin, BaseEstimator):
         self.weighted = weighted
         self.input_transform = input_transform
 
-    def __sklearn_tags__(self):
-        tags = super().__sklearn_tags__()
-        tags.input_tags.positive_only = True
-        return tags
-
     def fit(self, X, y):
         """Store the training proportions (as square roots) and targets."""
         if not isinstance(self.n_analogues, (int, np.integer)) or self.n_analogues < 1:
             raise ValueError(f"n_analogues must be a positive integer, got {self.n_analogues!r}")
-        X, y = validate_data(self, X, y, y_numeric=True, dtype=np.float64)
-        if np.any(X < 0):
-            raise ValueError("Negative values in data: abundances must be non-negative")
+        X, y = self._training_data(X, y)
         if not np.any(X.sum(axis=1) > 0):
             raise ValueError("no training sample has a positive total abundance")
         self.training_roots_ = distance_roots(X, self.input_transform)
@@ -143,8 +135,7 @@ class MAT(RegressorMixin, BaseEstimator):
         return self
 
     def _roots(self, X):
-        check_is_fitted(self)
-        X = validate_data(self, X, reset=False, dtype=np.float64)
+        X = self._fitted_input(X)
         return distance_roots(X, self.input_transform)
 
     def kneighbors(self, X, n_analogues=None):

@@ -6,7 +6,7 @@ import numpy as np
 from sklearn.base import BaseEstimator, RegressorMixin
 from sklearn.utils.validation import check_is_fitted, validate_data
 
-__all__ = ["WA", "wa_optima", "wa_tolerances", "row_profiles", "hill_n2",
+__all__ = ["AbundanceRegressor", "WA", "wa_optima", "wa_tolerances", "row_profiles", "hill_n2",
            "n2_corrected_tolerances"]
 
 
@@ -90,7 +90,29 @@ def _linear_fit(x, y):
     return float(intercept), float(slope)
 
 
-class WA(RegressorMixin, BaseEstimator):
+class AbundanceRegressor(RegressorMixin, BaseEstimator):
+    """Shared contract of the assemblage estimators (WA, WA-PLS, MAT): non-negative
+    abundances in, one target value per sample out (scikit-learn regressor)."""
+
+    def __sklearn_tags__(self):
+        tags = super().__sklearn_tags__()
+        tags.input_tags.positive_only = True
+        return tags
+
+    def _training_data(self, X, y):
+        """``(X, y)`` of ``fit`` as float arrays; abundances must be non-negative."""
+        X, y = validate_data(self, X, y, y_numeric=True, dtype=np.float64)
+        if np.any(X < 0):
+            raise ValueError("Negative values in data: abundances must be non-negative")
+        return X, y
+
+    def _fitted_input(self, X):
+        """``X`` of ``predict`` as a float array, checked against the fitted estimator."""
+        check_is_fitted(self)
+        return validate_data(self, X, reset=False, dtype=np.float64)
+
+
+class WA(AbundanceRegressor):
     """Weighted-averaging regression and calibration with deshrinking.
 
     The initial estimate for a sample is the abundance-weighted mean of the taxon optima,
@@ -139,19 +161,12 @@ class WA(RegressorMixin, BaseEstimator):
         self.tolerance_weighting = tolerance_weighting
         self.min_tolerance = min_tolerance
 
-    def __sklearn_tags__(self):
-        tags = super().__sklearn_tags__()
-        tags.input_tags.positive_only = True
-        return tags
-
     def fit(self, X, y):
         """Estimate optima, tolerances and the deshrinking line from a training set."""
         if self.deshrinking not in ("inverse", "classical"):
             raise ValueError("deshrinking must be 'inverse' or 'classical', "
                              f"got {self.deshrinking!r}")
-        X, y = validate_data(self, X, y, y_numeric=True, dtype=np.float64)
-        if np.any(X < 0):
-            raise ValueError("Negative values in data: abundances must be non-negative")
+        X, y = self._training_data(X, y)
         if X.shape[0] < 3:
             raise ValueError(f"WA needs at least 3 training samples, got n_samples={X.shape[0]}")
         self.optima_ = wa_optima(X, y)
@@ -190,8 +205,7 @@ class WA(RegressorMixin, BaseEstimator):
 
     def initial_estimates(self, X):
         """Weighted averages of the optima before deshrinking, shape (n_samples,)."""
-        check_is_fitted(self)
-        X = validate_data(self, X, reset=False, dtype=np.float64)
+        X = self._fitted_input(X)
         return self._initial_estimates(X)
 
     def predict(self, X):

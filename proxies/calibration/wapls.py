@@ -3,10 +3,8 @@
 from __future__ import annotations
 
 import numpy as np
-from sklearn.base import BaseEstimator, RegressorMixin
-from sklearn.utils.validation import check_is_fitted, validate_data
 
-from .wa import row_profiles
+from .wa import AbundanceRegressor, row_profiles
 
 __all__ = ["WAPLS", "wapls_coefficients"]
 
@@ -82,7 +80,7 @@ def wapls_coefficients(X, y, n_components):
     return ybar, coef
 
 
-class WAPLS(RegressorMixin, BaseEstimator):
+class WAPLS(AbundanceRegressor):
     """WA-PLS regression (ter Braak & Juggins 1993).
 
     With one component WA-PLS is WA with inverse deshrinking when all samples have the same
@@ -114,18 +112,11 @@ class WAPLS(RegressorMixin, BaseEstimator):
     def __init__(self, n_components=3):
         self.n_components = n_components
 
-    def __sklearn_tags__(self):
-        tags = super().__sklearn_tags__()
-        tags.input_tags.positive_only = True
-        return tags
-
     def fit(self, X, y):
         """Fit the taxon coefficients of 1..n_components components."""
         if not isinstance(self.n_components, (int, np.integer)) or self.n_components < 1:
             raise ValueError(f"n_components must be a positive integer, got {self.n_components!r}")
-        X, y = validate_data(self, X, y, y_numeric=True, dtype=np.float64)
-        if np.any(X < 0):
-            raise ValueError("Negative values in data: abundances must be non-negative")
+        X, y = self._training_data(X, y)
         if np.sum(X.sum(axis=1) > 0) < 3:
             raise ValueError("WA-PLS needs at least 3 training samples with a positive total, "
                              f"got n_samples={int(np.sum(X.sum(axis=1) > 0))}")
@@ -135,8 +126,7 @@ class WAPLS(RegressorMixin, BaseEstimator):
 
     def predict_components(self, X):
         """Predictions with 1..n_components components, shape (n_samples, n_components)."""
-        check_is_fitted(self)
-        X = validate_data(self, X, reset=False, dtype=np.float64)
+        X = self._fitted_input(X)
         return self.intercept_ + row_profiles(X) @ self.component_coef_.T
 
     def predict(self, X):

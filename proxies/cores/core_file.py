@@ -20,7 +20,7 @@ from dataclasses import dataclass, field
 from datetime import date
 from typing import Any
 
-from proxies.cores.model import EventLayer, Section
+from proxies.cores.model import BP_ZERO_CE, EventLayer, Section
 from proxies.problems import Problem
 from proxies.settings_spec import did_you_mean
 
@@ -79,7 +79,7 @@ class CoreSpec:
 
     @property
     def top_age_cal_bp(self) -> float:
-        return 1950.0 - self.collected_ce
+        return float(BP_ZERO_CE) - self.collected_ce
 
 
 # ---------------------------------------------------------------------------------------------

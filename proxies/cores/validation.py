@@ -280,31 +280,32 @@ def check_samples(table: pd.DataFrame, file: str, spec: CoreSpec) -> tuple[pd.Da
     [[sections]]. Text columns are only those in :data:`TEXT_COLUMNS`. (A core needs proxy
     columns or a counts table: :func:`check_measurements`.)
     """
-    checker = _TableChecker(table, file, spec.depth_factor, spec.depth_unit)
-    if not checker.require([f"depth_{spec.depth_unit}"]):
-        return None, checker.problems
-    depth_cm, section_depth, _ = checker.depths(spec.sections, "sample")
-    checker.unique_depths(depth_cm, f"depth_{spec.depth_unit}")
-    columns, proxies = _numeric_columns_with_layout(
-        checker, spec, depth_cm, section_depth, value_name="proxy value", errors_allowed=True
-    )
-    if checker.problems:
-        return None, checker.problems
-    return _table_frame(columns, checker.rows), []
+    return _checked_depth_table(table, file, spec, "sample", "proxy value", errors_allowed=True)
 
 
 def check_counts(table: pd.DataFrame, file: str, spec: CoreSpec) -> tuple[pd.DataFrame | None, list[Problem]]:
     """Validate and convert the counts table: depth as for samples, taxa counts >= 0."""
+    return _checked_depth_table(table, file, spec, "count", "count", errors_allowed=False,
+                                needs_values="the counts table has no taxon column",
+                                fix="add one column of counts per taxon")
+
+
+def _checked_depth_table(table: pd.DataFrame, file: str, spec: CoreSpec, noun: str, value_name: str, *,
+                         errors_allowed: bool, needs_values: str = "",
+                         fix: str = "") -> tuple[pd.DataFrame | None, list[Problem]]:
+    """A depth-indexed table of numeric columns checked and converted (samples, counts):
+    ``depth_<unit>`` required, depths to composite cm and unique, every other column numeric;
+    ``needs_values``: the problem when it has no value column (with its ``fix``)."""
     checker = _TableChecker(table, file, spec.depth_factor, spec.depth_unit)
     if not checker.require([f"depth_{spec.depth_unit}"]):
         return None, checker.problems
-    depth_cm, section_depth, _ = checker.depths(spec.sections, "count")
+    depth_cm, section_depth, _ = checker.depths(spec.sections, noun)
     checker.unique_depths(depth_cm, f"depth_{spec.depth_unit}")
-    columns, taxa = _numeric_columns_with_layout(
-        checker, spec, depth_cm, section_depth, value_name="count", errors_allowed=False
+    columns, values = _numeric_columns_with_layout(
+        checker, spec, depth_cm, section_depth, value_name=value_name, errors_allowed=errors_allowed
     )
-    if not taxa:
-        checker.add("the counts table has no taxon column", "add one column of counts per taxon", row=1)
+    if needs_values and not values:
+        checker.add(needs_values, fix, row=1)
     if checker.problems:
         return None, checker.problems
     return _table_frame(columns, checker.rows), []

@@ -14,7 +14,6 @@ _EXPORTS = {
     "GridSeries": ".stage",
     "ReconstructionResult": ".stage",
     "ReconstructionSettings": ".settings",
-    "member_column_names": ".stage",
     "reconstruct_core": ".stage",
     "stack_records": ".stack",
 }

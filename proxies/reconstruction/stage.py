@@ -13,6 +13,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
+from proxies.members import member_column_names
 from proxies.problems import InputError, Problem
 from proxies.reconstruction.anomalies import (anomalies_from_reference, normal_window_cal_bp,
                                               window_coverage, window_mean_per_member)
@@ -21,13 +22,8 @@ from proxies.reconstruction.grid import (auto_grid_step_yr, bin_means, bin_means
 from proxies.reconstruction.quantiles import BAND_LEVELS, band_name, ensemble_bands
 from proxies.reconstruction.settings import ReconstructionSettings
 
-__all__ = ["GridSeries", "ReconstructionResult", "TimeGrid", "reconstruct_core", "member_column_names",
-           "time_grid_for", "filled_share"]
-
-
-def member_column_names(n_members: int) -> list[str]:
-    """Column names of ensemble members: ``m0000, m0001, ...``."""
-    return [f"m{m:04d}" for m in range(n_members)]
+__all__ = ["GridSeries", "ReconstructionResult", "TimeGrid", "reconstruct_core", "time_grid_for",
+           "filled_share"]
 
 
 @dataclass(frozen=True)
