@@ -61,7 +61,8 @@ def test_fdr_keeps_the_share_of_false_discoveries_of_an_archive_low():
     Benjamini-Hochberg q-value at 0.05, the share of false discoveries among the events that
     survive is at most 10 %, and true events can survive: beyond the surrogates' range the
     p-value comes from a Gumbel tail (validated in tests/test_event_significance.py), so it
-    is no longer stuck at about 3 / (n_surrogates + 1)."""
+    is no longer stuck at about 3 / (n_surrogates + 1). An event within 300 yr of a planted
+    excursion counts as real whatever kind it is reported as."""
     frames, truth = {}, {}
     for i in range(100):
         kind = "excursion" if i < 20 else "none"
