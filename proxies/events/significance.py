@@ -293,17 +293,19 @@ def monte_carlo_p_values(cands: Candidates, null: dict[int, np.ndarray]) -> np.n
         raw[pick] = _raw_p(cands.statistic[pick], ordered[kind])
     at_most = np.searchsorted(min_p_null, raw, side="right")
     adjusted = (1 + at_most) / (1 + n_surrogates)
-    # Beyond the surrogates' range the Monte Carlo value stops at about 3 / (n + 1): there the
-    # tail of each kind's maxima is approximated by a Gumbel law, Bonferroni over the kinds.
+    # Beyond every surrogate the Monte Carlo value stops at about 3 / (n + 1): there the tail
+    # of each kind's maxima is approximated by a Gumbel law, Bonferroni over the two kinds
+    # (never above the Monte Carlo value).
     for kind in kinds:
-        pick = (cands.kind == kind) & (raw * (1 + n_surrogates) <= TAIL_EXCEEDANCES)
+        pick = (cands.kind == kind) & (raw * (1 + n_surrogates) <= 1 + TAIL_EXCEEDANCES)
         if pick.any():
-            adjusted[pick] = np.minimum(1.0, 2.0 * gumbel_tail(cands.statistic[pick], ordered[kind]))
+            tail = np.minimum(1.0, 2.0 * gumbel_tail(cands.statistic[pick], ordered[kind]))
+            adjusted[pick] = np.minimum(adjusted[pick], tail)
     return adjusted
 
 
-#: Candidates exceeded by at most this many surrogate maxima get the Gumbel tail p-value.
-TAIL_EXCEEDANCES = 5
+#: Candidates exceeded by at most this many surrogate maxima may get the Gumbel tail p-value.
+TAIL_EXCEEDANCES = 0
 
 
 def gumbel_tail(statistic: np.ndarray, null: np.ndarray) -> np.ndarray:
