@@ -24,7 +24,7 @@ Whether an event exists (``p_value``, ``significant``) is decided once, on the e
 whole. Excursions: the ensemble-median series (cells where at least half of the members have
 a value) is searched by the same detector against its own red-noise null (persistence
 estimated from it, surrogates treated alike). Shifts: the members' standardised mean is
-searched against the members' null (:func:`_mean_search`: the median series, smoothed by the
+searched against the members' null (:func:`proxies.events.search.mean_search`: the median series, smoothed by the
 age errors, looked far more persistent than its climate, which hid lasting steps). The
 event's ``p_value`` is that series' whole-record,
 kind-adjusted p-value of its best candidate of the event's kind and direction inside the
@@ -55,20 +55,19 @@ and end of) a reported event.
 
 from __future__ import annotations
 
-import warnings
 from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
 
-from proxies.events.candidates import (EXCURSION, KIND_NAMES, Candidates, concat_candidates, detect_candidates,
-                                       shift_candidates)
-from proxies.events.mosum import mosum_bandwidth
+from proxies.events.candidates import EXCURSION, KIND_NAMES, Candidates
 from proxies.events.ramp import fit_ramps
-from proxies.events.scan import ScanProfile, robust_scale
+from proxies.events.scan import ScanProfile
+from proxies.events.search import Search as _Search
+from proxies.events.search import central_search as _central_search
+from proxies.events.search import search_members as _search
 from proxies.events.settings import EventSettings
-from proxies.events.significance import (adjusted_p_values, local_null, local_p_values, matched_null_tau,
-                                         monte_carlo_p_values, null_maxima, prepare_series)
+from proxies.events.significance import adjusted_p_values, local_null, local_p_values
 from proxies.reconstruction.grid import fill_gaps
 
 __all__ = ["EventResult", "detect_core_events", "detect_series_events", "EVENT_COLUMNS", "ONSET_COLUMNS"]
@@ -195,100 +194,6 @@ def _member_event_p(kind: int, sign: float, young: float, old: float, cands: Can
     member_p = np.ones(n_members)
     np.minimum.at(member_p, cands.member[match], p[match])
     return member_p
-
-
-@dataclass(frozen=True)
-class _Search:
-    """One searched ensemble (members, or the ensemble's standardised mean): its candidates,
-    kind-adjusted p-values, scan profile and red-noise null; ``scale`` the noise scale of
-    each member and ``h`` the MOSUM half-width [points]."""
-
-    cands: Candidates
-    p: np.ndarray
-    profile: ScanProfile
-    null: dict
-    null_profile: ScanProfile
-    tau_steps: float
-    scale: np.ndarray | None = None
-    work: np.ndarray | None = None
-    h: int = 0
-
-
-def _search(x: np.ndarray, observed: np.ndarray, background: int, max_exc: int, settings: EventSettings,
-            rng: np.random.Generator) -> _Search:
-    """Prepare the members, estimate the null, detect candidates and calibrate them."""
-    filled = fill_gaps(np.where(observed, x, np.nan))
-    work = prepare_series(x, observed, background)
-    # Persistence from each series' own (unevenly spaced) non-empty cells about its running
-    # median (which follows steps), its most prominent excursion left out (Mudelsee 2002),
-    # bias-corrected by simulation so that the null matches the data's treatment.
-    tau_steps, _ = matched_null_tau(work, observed, background, rng, mask_points=max_exc)
-    persistence = float(np.exp(-1.0 / tau_steps)) if tau_steps > 0 else 0.0
-    support = settings.edge_support_points
-    h = mosum_bandwidth(x.shape[0], background, support)
-    scale = robust_scale(work, observed)
-    cands, profile = detect_candidates(work, max_exc, support, observed, persistence, return_profile=True,
-                                       series=filled, shift_window_points=h, scale=scale)
-    null, null_profile = null_maxima(x.shape[0], tau_steps, settings.n_surrogates, max_exc, support, rng,
-                                     observed=observed, background_points=background, return_profile=True,
-                                     shift_window_points=h)
-    return _Search(cands, monte_carlo_p_values(cands, null), profile, null, null_profile, tau_steps,
-                   scale, work, h)
-
-
-def _standardised_mean(values: np.ndarray, observed: np.ndarray, scale: np.ndarray,
-                       cells: np.ndarray) -> np.ndarray:
-    """Mean over members of ``values / scale`` at ``cells`` (others gap-filled), shape (T, 1)."""
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", RuntimeWarning)  # all-NaN cells stay NaN
-        mean = np.nanmean(np.where(observed, values / scale[None, :], np.nan), axis=1)
-    return fill_gaps(np.where(cells[:, None], mean[:, None], np.nan))
-
-
-def _mean_search(x: np.ndarray, observed: np.ndarray, members: _Search, max_exc: int,
-                 settings: EventSettings, cells: np.ndarray) -> tuple[Candidates, np.ndarray]:
-    """Shift candidates of the members' standardised mean and their p-values against the
-    *members'* null (one red-noise series).
-
-    The MOSUM statistic is linear in the series, so that of the mean (each member divided by
-    its own noise scale, the mean searched with scale 1) is at any place the mean of the
-    members' statistics there: identical members give exactly a member's test, and members
-    whose ages or errors differ give a convex combination, whose variance under the null is
-    never larger. The test keeps its level whatever the age errors do to the ensemble (they
-    smooth it), without a model of that smoothing; the ensemble-median series with a red
-    noise fitted to it was far too conservative for lasting shifts (the smoothing made its
-    lag-one persistence 10-30 grid steps where the climate had 1.5).
-    """
-    filled = fill_gaps(np.where(observed, x, np.nan))
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", RuntimeWarning)  # all-NaN cells stay NaN
-        mean = np.nanmean(np.where(observed, filled / members.scale[None, :], np.nan), axis=1)
-    series = fill_gaps(np.where(cells[:, None], mean[:, None], np.nan))
-    persistence = float(np.exp(-1.0 / members.tau_steps)) if members.tau_steps > 0 else 0.0
-    shifts = shift_candidates(series, cells[:, None], members.h, persistence, np.ones(1),
-                              settings.edge_support_points)
-    return shifts, monte_carlo_p_values(shifts, members.null)
-
-
-def _central_search(x: np.ndarray, observed: np.ndarray, members: _Search, background: int, max_exc: int,
-                    settings: EventSettings, rng: np.random.Generator) -> _Search | None:
-    """The ensemble-level search: excursions on the ensemble-median series against its own
-    red-noise null (:func:`_search`), shifts on the members' standardised mean against the
-    members' null (:func:`_mean_search`). Cells where fewer than half of the members have a
-    value are gaps."""
-    cells = observed.mean(axis=1) >= 0.5
-    if cells.sum() < 3:
-        return None
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", RuntimeWarning)  # all-NaN cells stay NaN
-        med = np.nanmedian(np.where(observed, x, np.nan), axis=1)
-    median = _search(fill_gaps(np.where(cells[:, None], med[:, None], np.nan)), cells[:, None], background,
-                     max_exc, settings, rng)
-    shifts, p_shifts = _mean_search(x, observed, members, max_exc, settings, cells)
-    excursions = median.cands.kind == EXCURSION
-    cands = concat_candidates([shifts, median.cands.subset(excursions)])
-    return _Search(cands, np.concatenate([p_shifts, median.p[excursions]]), median.profile, median.null,
-                   median.null_profile, median.tau_steps)
 
 
 def _local_detections(sign: float, young: float, old: float, x: np.ndarray, ages_fwd: np.ndarray,
