@@ -9,7 +9,6 @@ reaches today (measured on this simulation, 2 shared cores) and the docstring sa
 
 from __future__ import annotations
 
-import dataclasses
 
 import numpy as np
 import pytest
