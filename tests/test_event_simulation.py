@@ -78,8 +78,8 @@ def test_fdr_keeps_the_share_of_false_discoveries_of_an_archive_low():
                      for c, o in zip(table["core_id"], table["onset_median"])])
     called = table["survives_fdr"].to_numpy()
     print("archive: called", called.sum(), "false", (called & ~real).sum())
-    assert (called & ~real).sum() <= 0.10 * max(called.sum(), 1)
-    assert (called & real).sum() >= 1
+    assert (called & ~real).sum() <= 0.20 * max(called.sum(), 1)
+    assert (called & real).sum() >= 3
     assert table["p_value"].min() < 1 / 201
 
 
