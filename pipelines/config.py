@@ -35,7 +35,8 @@ __all__ = [
 ]
 
 #: sections kept raw for the stages and the report
-RAW_SECTIONS = ("chronology", "training", "instrumental", "calibration", "reconstruction", "events", "report")
+RAW_SECTIONS = ("chronology", "training", "instrumental", "calibration", "reconstruction", "events", "report",
+                "series")
 TOP_LEVEL = ("run", "curves") + RAW_SECTIONS
 #: stage -> "module:SettingsClass", imported only when needed
 STAGE_SETTINGS: dict[str, str] = {
@@ -103,7 +104,7 @@ class RunConfig:
         Calibration-curve name -> existing file.
     sections : dict of str to dict
         Raw ``[chronology]``, ``[training]``, ``[instrumental]``, ``[calibration]``,
-        ``[reconstruction]``, ``[events]``, ``[report]`` tables (absent ones are ``{}``).
+        ``[reconstruction]``, ``[events]``, ``[report]`` and ``[series]`` tables (absent ones are ``{}``).
     """
 
     path: Path
@@ -281,7 +282,9 @@ def check_run_config_by_core(
             ids[key] = shown
         grouped[shown] = (core, core_problems)
     from pipelines.run_checks import run_time_checks
+    from pipelines.series_inputs import series_problems
 
+    problems.extend(series_problems(config, {core.id for core, _ in grouped.values() if core is not None}))
     run_time_checks(config, grouped, name)
     return grouped
 

@@ -22,8 +22,9 @@ def _sections() -> dict:
     from proxies.calibration.training_settings import InstrumentalSpec, TrainingSpec
     from proxies.chronology.settings import ChronologySettings
     from proxies.events.settings import EventSettings
+    from proxies.reconstruction.series_settings import SeriesSettings
     from proxies.reconstruction.settings import ReconstructionSettings
-    return {"run": RunSettings, "chronology": ChronologySettings,
+    return {"series": SeriesSettings, "run": RunSettings, "chronology": ChronologySettings,
             "reconstruction": ReconstructionSettings, "events": EventSettings,
             "training": TrainingSpec, "instrumental": InstrumentalSpec,
             "calibration": ProxyCalibration,
@@ -35,9 +36,9 @@ def _sections() -> dict:
 SECTIONS = ("run", "chronology", "reconstruction", "events", "training", "instrumental",
             "calibration", "calibration.equation", "calibration.linear",
             "calibration.exponential", "calibration.overlap", "calibration.transfer",
-            "calibration.stated")
+            "calibration.stated", "series")
 #: how a section is named in its table's header
-_TITLES = {"training": "[training.<name>]", "instrumental": "[instrumental.<name>]",
+_TITLES = {"series": "[series.<name>]", "training": "[training.<name>]", "instrumental": "[instrumental.<name>]",
            "calibration": "[calibration.<proxy column>]"}
 
 _BLOCK = re.compile(r"(<!-- keys:(?P<name>[\w.]+) -->\n)(?P<body>.*?)(<!-- /keys -->)", re.S)

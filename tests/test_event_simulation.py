@@ -85,14 +85,17 @@ def test_fdr_keeps_the_share_of_false_discoveries_of_an_archive_low():
 
 @pytest.mark.parametrize("lag_yr", [0.0, 200.0])
 def test_lead_lag_range_holds_the_true_lag(lag_yr):
-    """Two cores sharing one lasting 5-SD step, the second ``lag_yr`` later. Target: the 95 %
-    lag range holds the true lag in >= 90 % of 50 trials. Measured (small ensembles,
-    ``background_keeps_changes = 1``): about 75 % of the trials where both cores find the
-    step; guarded at >= 55 %."""
+    """Two cores sharing one lasting 5-SD step, the second ``lag_yr`` later, through the whole
+    detection (significance, all-member onsets, lead/lag table). Target: the 95 % lag range
+    holds the true lag in >= 90 % of the trials. Measured (small ensembles,
+    ``background_keeps_changes = 1``, 50 trials per lag): 45 of 45 and 45 of 46 trials where
+    both cores find the step (before lag quantiles were snapped to attained differences,
+    about 89 %: a range ending at an attained lag of exactly 0 came out as -2e-13).
+    25 trials here (the detection is the slow part); guarded at >= 85 %."""
     rows = [lag_trial(26, i, lag_yr, KEEP, **SMALL) for i in range(25)]
     rows = [r for r in rows if r is not None]
-    assert len(rows) >= 10
+    assert len(rows) >= 20
     held = np.mean([r["lag_q025_yr"] <= lag_yr <= r["lag_q975_yr"] for r in rows])
-    assert held >= 0.55
+    assert held >= 0.85
     if lag_yr > 0:
         assert np.median([r["probability_a_leads"] for r in rows]) > 0.8

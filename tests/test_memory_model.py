@@ -87,3 +87,17 @@ def test_rate_classes_are_equal_probability_slices_with_mean_one():
     assert np.all(np.diff(q) > 0)
     # v = 1 is an exponential: the slices span more than a factor of 20 (regime changes)
     assert q[-1] / q[0] > 20
+
+
+def test_members_are_shared_among_points_by_their_evidence():
+    """Weights proportional to exp(log evidence) (uniform prior over the points); points below
+    min_weight draw no member; the members add up; no finite evidence is an error."""
+    from proxies.chronology.evidence_weights import members_per_point
+
+    log_z = np.log(np.array([0.6, 0.3, 0.0999, 0.0001])) + 1234.5  # offsets cancel
+    weights, active, counts = members_per_point(log_z, 10_000, 1e-3, np.random.default_rng(3))
+    np.testing.assert_allclose(weights, [0.6, 0.3, 0.0999, 0.0001], rtol=1e-12)
+    assert list(active) == [0, 1, 2] and counts[3] == 0 and counts.sum() == 10_000
+    np.testing.assert_allclose(counts[:3] / 10_000, np.array([0.6, 0.3, 0.0999]) / 0.9999, atol=0.02)
+    with pytest.raises(ValueError, match="no age-depth path"):
+        members_per_point(np.full(3, -np.inf), 10, 1e-3, np.random.default_rng(3))

@@ -4,7 +4,9 @@ The flow drives each core through ingest -> chronology -> calibration -> reconst
 events -> outputs by submitting the next task of a core as soon as its previous task finishes
 (so workers stay busy across cores, and a failed core simply stops). Training sets are fitted
 once, before any calibration, and shared. When all cores are done the regional stack is
-built. The flow returns one summary row per core; it never fails because a core failed.
+built. Dated series (``[series.<name>]``) join as cores whose reconstruction is their
+``series`` stage: their events, folder, stack and lead/lag follow as for a core. The flow
+returns one summary row per core (and series); it never fails because a core failed.
 
 Concurrency is the task runner's: ``ThreadPoolTaskRunner(max_workers=N)`` by default or a
 ``DaskTaskRunner`` (see :mod:`pipelines.flows.runners`). Results do not depend on it: every
@@ -124,7 +126,7 @@ class _Driver:
     finishes; a stage already in the work store is looked up instead of submitted."""
 
     def __init__(self, plan: RunPlan, run_dir: str, store: WorkStore, recompute: bool, observer: Any,
-                 inline_stages: tuple[str, ...] = (), chain: bool = False):
+                 inline_stages: tuple[str, ...] = (), chain: bool = False, with_series: bool = True):
         self.plan, self.run_dir, self.store, self.recompute = plan, run_dir, store, recompute
         self.inline_stages = frozenset(inline_stages)
         self.chain = chain
@@ -140,6 +142,7 @@ class _Driver:
         self.ids: dict[str, str] = {}
         self.tracks: list[CoreTrack] = []
         self.known_hashes: dict[str, tuple[int, int, str]] = {}
+        self.series = dict(plan.auxiliary.get("series", {})) if with_series else {}
 
     # -- submission ---------------------------------------------------------------------
     def _entries(self, track: CoreTrack) -> dict:
@@ -175,6 +178,11 @@ class _Driver:
             self.tracks.append(track)
             track.say(f"core folder {folder}")
             self._submit(track, "ingest", track.label, {"folder": folder})
+        for name, (path, _) in sorted(self.series.items()):
+            track = CoreTrack(folder=path, label=name)
+            self.tracks.append(track)
+            track.say(f"dated series {name}: {path}")
+            self._submit(track, "series", name, {"name": name})
 
     def _next(self, track: CoreTrack, finished: str) -> None:
         position = CORE_STAGES.index(finished)
@@ -305,6 +313,9 @@ class _Driver:
         if stage in PUBLISH_STAGES:
             self._on_publish_stage(track, stage, result)
             return
+        if stage == "series":
+            self._on_series(track, result)
+            return
         if stage == "outputs":
             if isinstance(result, BaseException):
                 track.status, track.error = "failed", f"writing outputs: {result}"
@@ -339,6 +350,16 @@ class _Driver:
         track.say(f"{stage} done in {result.get('seconds', 0.0):.2f} s"
                   + (" (reused from the cache)" if result.get("cached") else ""))
         return True
+
+    def _on_series(self, track: CoreTrack, result: Any) -> None:
+        """A dated series read and gridded: from here on it is a core whose reconstruction
+        is done (its events are detected next, then its folder is published)."""
+        if not isinstance(result, BaseException) and "skipped" not in result:
+            if not self._claim_id(track, track.label):
+                return
+            track.seconds["series"] = float(result.get("seconds", 0.0))
+        if self._record(track, "reconstruction", result):
+            self._next(track, "reconstruction")
 
     def _claim_id(self, track: CoreTrack, core_id: str) -> bool:
         """Give the core its id; a second core with the same id fails (and is published)."""
@@ -424,10 +445,10 @@ def archive_flow(plan_id: str, run_dir: str, cache_dir: str, recompute: bool = F
             stack = result
     archive_events = _archive_events(plan, tracks, store, recompute, notes)
     timings = [{"core_id": t.name, "stage": s, "seconds": t.seconds[s], "reused": t.cached.get(s, False)}
-               for t in tracks for s in (*CORE_STAGES, *PUBLISH_STAGES) if s in t.seconds]
+               for t in tracks for s in ("series", *CORE_STAGES, *PUBLISH_STAGES) if s in t.seconds]
     return {"cores": [t.row() for t in tracks], "timings": timings, "training": driver.training,
             "stack": stack, "archive_events": archive_events, "notes": notes,
-            "known_hashes": driver.known_hashes}
+            "known_hashes": driver.known_hashes, "series": sorted(driver.series)}
 
 
 def _archive_events(plan: RunPlan, tracks, store: WorkStore, recompute: bool, notes: list[str]) -> dict | None:
@@ -449,5 +470,5 @@ def core_flow(plan: RunPlan, folder: str, run_dir: str, cache_dir: str, recomput
     """One core through every stage (ingest -> ... -> outputs), sequentially; returns its
     summary row. The archive flow runs the same tasks for many cores at once."""
     single = RunPlan(**{**plan.__dict__, "core_folders": (str(pathlib.Path(folder).resolve()),)})
-    driver = _Driver(single, run_dir, WorkStore(cache_dir), recompute, _Silent())
+    driver = _Driver(single, run_dir, WorkStore(cache_dir), recompute, _Silent(), with_series=False)
     return driver.run()[0].row()

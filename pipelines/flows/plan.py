@@ -37,7 +37,7 @@ class RunPlan:
     curves : tuple of (name, path, sha256)
         ``[curves]`` entries.
     auxiliary : dict
-        ``{"training": {name: (path, sha256)}, "instrumental": {...}}``.
+        ``{"training": {name: (path, sha256)}, "instrumental": {...}, "series": {...}}``.
     settings : dict
         Stage name -> settings object from :func:`pipelines.config.stage_settings`.
     inputs : tuple of dict
@@ -74,6 +74,11 @@ class RunPlan:
     def settings_key(self, stage: str) -> str:
         """Content hash of one stage's settings and of its raw config section."""
         return content_key(stage, self.settings.get(stage), self.config.sections.get(stage))
+
+    def file_digest(self, path: str | os.PathLike[str]) -> str | None:
+        """The SHA-256 of an input file (``None`` when it is not an input of the run)."""
+        wanted = str(pathlib.Path(path).resolve())
+        return next((item["sha256"] for item in self.inputs if item["path"] == wanted), None)
 
     @property
     def curve_hashes(self) -> dict[str, str]:
@@ -125,6 +130,11 @@ def build_plan(config_path: str | os.PathLike[str]) -> RunPlan:
         name: str(path) for name, path in config.curves.items()}}, folders)))
     digests = {item["path"]: item["sha256"] for item in inputs}
     curves = tuple((name, str(path), digests[str(path)]) for name, path in sorted(config.curves.items()))
-    auxiliary = {section: _file_entries(config, section, digests) for section in ("training", "instrumental")}
+    auxiliary = {section: _file_entries(config, section, digests) for section in ("training", "instrumental",
+                                                                                  "series")}
+    if config.sections.get("series"):
+        from pipelines.series_inputs import series_specs
+
+        series_specs(config)  # every [series.<name>] table valid before any stage runs
     return RunPlan(config=config, config_text=text, core_folders=folders, curves=curves,
                    auxiliary=auxiliary, settings=settings, inputs=inputs, fingerprint=code_fingerprint())

@@ -84,6 +84,7 @@ def resolved_config(plan: RunPlan) -> dict[str, Any]:
         "training": _plain(plan.config.sections["training"]),
         "instrumental": _plain(plan.config.sections["instrumental"]),
         "report": _plain(plan.config.sections["report"]),
+        "series": _plain(plan.config.sections.get("series", {})),
     }
 
 
@@ -98,8 +99,10 @@ def _write_run_tables(run_dir: pathlib.Path, result: dict) -> None:
         for part in ("cv", "skill"):
             target = TABLES[f"training_{part}"].path.replace("<name>", name)
             atomic_copy(entry["paths"][part], run_dir / target)
-    if result.get("stack"):
-        atomic_copy(result["stack"]["paths"]["stack.parquet"], run_dir / TABLES["stack"].path)
+    for key in ("stack", "stack_ensemble", "regional_events", "regional_onsets"):
+        name = TABLES[key].path
+        if result.get("stack") and name in result["stack"].get("paths", {}):
+            atomic_copy(result["stack"]["paths"][name], run_dir / name)
     for key in ("archive_events", "lead_lag"):
         name = TABLES[key].path
         if result.get("archive_events") and name in result["archive_events"].get("paths", {}):
@@ -119,12 +122,17 @@ def _write_report(run_dir: pathlib.Path, notes: list[str]) -> None:
 def _streams(result: dict) -> list[str]:
     """The random streams used (``stage/core_id``): every science stage a core reached."""
     streams = []
+    series = set(result.get("series", ()))
     for row in result["cores"]:
-        if row["stage_reached"] in CORE_STAGES:
+        if row["core_id"] in series:
+            reached = ("series", "events") if row["stage_reached"] == "events" else ("series",)
+            streams += [f"{stage}/{row['core_id']}" for stage in reached]
+        elif row["stage_reached"] in CORE_STAGES:
             last = CORE_STAGES.index(row["stage_reached"])
             streams += [f"{stage}/{row['core_id']}" for stage in SCIENCE_STAGES if CORE_STAGES.index(stage) <= last]
     if result.get("stack"):
         streams.append("stack/all-cores")
+        streams += [f"stack-events/{variable}" for variable in result["stack"].get("variables", [])]
     return streams
 
 

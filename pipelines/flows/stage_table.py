@@ -20,6 +20,7 @@ from typing import Any, Callable
 from pipelines.flows import stages
 from pipelines.flows.dated_samples import run_dated_samples
 from pipelines.flows.keys import content_key
+from pipelines.flows.series import run_series
 from pipelines.flows.plan import RunPlan
 from pipelines.flows.store import WorkStore
 
@@ -36,10 +37,19 @@ def _training_file(plan: RunPlan, entries: dict) -> tuple[str, Any]:
     return plan.auxiliary["training"][name][1], plan.config.sections["training"].get(name)
 
 
+def _series_file(plan: RunPlan, entries: dict) -> tuple:
+    name = entries["name"]
+    spec = plan.config.sections["series"][name]
+    ensemble = spec.get("ensemble_file")
+    return (plan.auxiliary["series"][name][1], plan.file_digest(plan.config.resolve(ensemble)) if ensemble else None,
+            spec, plan.settings_key("reconstruction"))
+
+
 #: key part name -> what it hashes (a function of the plan and the stage's entries)
 KEY_PARTS: dict[str, Callable[[RunPlan, dict], Any]] = {
     "core files": lambda plan, entries: plan.folder_digest(entries["folder"]),
     "training file and spec": _training_file,
+    "series files and spec": _series_file,
     "curves": lambda plan, entries: plan.curve_hashes,
     "instrumental files": _instrumental_digests,
     "seed": lambda plan, entries: plan.run_seed,
@@ -87,6 +97,8 @@ class Stage:
 STAGES: dict[str, Stage] = {s.name: s for s in (
     Stage("training", stages.run_training, ("name",), ("training_cv", "training_skill"),
           ("training file and spec", "seed"), per_core=False),
+    Stage("series", run_series, ("name",), ("reconstruction", "reconstruction_ensemble"),
+          ("series files and spec", "seed", "ensemble"), per_core=False),
     Stage("ingest", stages.run_ingest, ("folder",), (), ("core files",)),
     Stage("chronology", stages.run_chronology, ("ingest",),
           ("chronology", "age_ensemble", "dates", "date_ranges", "date_densities"),
@@ -100,8 +112,9 @@ STAGES: dict[str, Stage] = {s.name: s for s in (
           ("[events] settings", "seed")),
     Stage("samples", run_dated_samples, ("ingest", "chronology", "calibration"), ("samples_dated",), (),
           at_publish=True),
-    Stage("stack", stages.run_stack, ("reconstructions",), ("stack",), ("[reconstruction] settings", "seed"),
-          per_core=False),
+    Stage("stack", stages.run_stack, ("reconstructions",),
+          ("stack", "stack_ensemble", "regional_events", "regional_onsets"),
+          ("[reconstruction] settings", "[events] settings", "seed"), per_core=False),
     Stage("archive_events", stages.run_archive_events, ("all_events",), ("archive_events", "lead_lag"),
           ("[events] settings",), per_core=False),
 )}

@@ -279,13 +279,18 @@ def run_reconstruction(plan: RunPlan, store: WorkStore, key: str, recompute: boo
         with _collect_warnings() as caught:
             result = reconstruct_core(core, chron, cal, plan.settings["reconstruction"],
                                       rng_for(plan.run_seed, "reconstruction", core_id))
-        files = write_tables(staged, {"reconstruction": result.table,
-                                      "reconstruction_ensemble": result.ensemble})
-        return {"files": {"result": save_object(staged, result), **files}, "n_series": len(result.series),
-                "filled": dict(result.filled), "thin": list(result.thin), "notes": list(result.notes),
-                "warnings": _unique(caught + list(result.warnings))}
+        return reconstruction_entry(staged, result, caught)
 
     return _cached_or_build(store, "reconstruction", key, produce, {"core_id": core_id}, recompute)
+
+
+def reconstruction_entry(staged: pathlib.Path, result: Any, caught: list[str]) -> dict:
+    """Write a reconstruction result's tables and pickle; the work-store entry description
+    (shared by a core's reconstruction and a dated series, :mod:`pipelines.flows.series`)."""
+    files = write_tables(staged, {"reconstruction": result.table, "reconstruction_ensemble": result.ensemble})
+    return {"files": {"result": save_object(staged, result), **files}, "n_series": len(result.series),
+            "filled": dict(result.filled), "thin": list(result.thin), "notes": list(result.notes),
+            "warnings": _unique(caught + list(result.warnings))}
 
 
 # --- events ------------------------------------------------------------------------------------
@@ -337,21 +342,37 @@ STACK_STREAM = "all-cores"
 
 def run_stack(plan: RunPlan, store: WorkStore, key: str, recompute: bool, *,
               reconstructions: dict[str, dict]) -> dict:
-    """Regional composite of the reconstructions of all cores (``stack.parquet``)."""
+    """Regional composite of the reconstructions of all cores (``stack.parquet``), every
+    member kept (``stack_ensemble.parquet``), and the events found in it with their regional
+    onset distributions (``regional_events.parquet``, ``regional_onsets.parquet``)."""
     usable = {cid: e for cid, e in sorted(reconstructions.items()) if e.get("n_series")}
     if not usable:
         raise StageSkipped("stack skipped: no core has a reconstruction")
 
     def produce(staged: pathlib.Path) -> dict:
-        from proxies.reconstruction import stack_records
+        from proxies.events.regional import regional_events
+        from proxies.reconstruction.stack import stack_ensembles, stack_records
 
         results = {cid: load_object(e) for cid, e in usable.items()}
         with _collect_warnings() as caught:
-            table = stack_records(results, plan.settings["reconstruction"],
-                                  rng_for(plan.run_seed, "stack", STACK_STREAM))
-        return {"files": write_tables(staged, {"stack": table}), "warnings": _unique(caught)}
+            ensembles = stack_ensembles(results, plan.settings["reconstruction"], seed=plan.run_seed)
+            del results
+            table = stack_records({}, plan.settings["reconstruction"], ensembles=ensembles)
+            events, onsets = regional_events(ensembles, plan.settings["events"],
+                                             lambda variable: rng_for(plan.run_seed, "stack-events", variable))
+        files = write_tables(staged, {"stack": table, "stack_ensemble": _stack_members(ensembles),
+                                      "regional_events": events, "regional_onsets": onsets})
+        return {"files": files, "warnings": _unique(caught), "variables": sorted(ensembles)}
 
     return _cached_or_build(store, "stack", key, produce, {"core_id": None}, recompute)
+
+
+def _stack_members(ensembles: dict) -> pd.DataFrame:
+    frames = [pd.concat([pd.DataFrame({"age_cal_bp": s.age_cal_bp, "variable": variable}),
+                         pd.DataFrame(s.values, columns=member_column_names(s.values.shape[1]))], axis=1)
+              for variable, s in ensembles.items()]
+    return pd.concat(frames, ignore_index=True) if frames else pd.DataFrame(
+        {"age_cal_bp": pd.Series(dtype=float), "variable": pd.Series(dtype=object)})
 
 
 def problem_text(error: BaseException) -> str:

@@ -269,7 +269,23 @@ def _stack_section(run: RunData, figs: _Figures) -> str:
                          f"stack_{variable}", f"Regional composite: {variable}",
                          "Median and ranges over the ensemble of the composite of all cores "
                          "that reconstruct this variable; lower panel: records contributing.")
-    return H.section("composite", "Regional composite", body) if body else ""
+    return H.section("composite", "Regional composite", body + _regional_events_part(run)) if body else ""
+
+
+def _regional_events_part(run: RunData) -> str:
+    """Events found in the composite with the regional onset and midpoint (95 % ranges)."""
+    from pipelines.outputs_schema import table as output_table
+
+    path = run.folder / output_table("regional_events").path
+    events = pd.read_parquet(path) if path.is_file() else None
+    if events is None or not len(events):
+        return ""
+    note = H.note_html("Events found in the composite, with the regional onset and midpoint over the "
+                       "composite's members (95 % ranges). The composite's onset is biased old when the "
+                       "records' age errors spread their changes; compare the midpoint with one record.")
+    return note + H.table_html(events, ["variable", "event_id", "kind", "direction", "onset_median", "onset_q025",
+                                        "onset_q975", "midpoint_median", "midpoint_q025", "midpoint_q975",
+                                        "p_value", "significant", "n_records"])
 
 
 def _archive_events_section(run: RunData, figs: _Figures) -> str:

@@ -45,6 +45,10 @@ import numpy as np
 from scipy import fft as sp_fft
 from scipy import stats
 
+from proxies.chronology.evidence_weights import members_per_point
+from proxies.chronology.nodes import place_nodes  # kept importable from here
+from proxies.chronology.spans import pull_with_potential, shift_with_potential, span_outlier_posteriors
+
 __all__ = [
     "AccumulationProblem",
     "AccumulationFit",
@@ -56,6 +60,7 @@ __all__ = [
     "fit_accumulation",
     "place_nodes",
 ]
+
 
 _TAIL = 1e-9
 
@@ -87,6 +92,12 @@ class AccumulationProblem:
     reference_cm : float
         Depth interval over which the gamma shape of the rate prior is stated [cm] (the
         nominal node spacing).
+    date_span : ndarray of bool, shape (n,), optional
+        True for a date taken over a slice: it constrains the mean age of the interval from
+        node ``date_node[d]`` to the next node (see :mod:`proxies.chronology.spans`).
+    span_mass, span_outlier_mass : ndarray, shape (n, 2G - 1), optional
+        The calibrated and outlier masses of each date at the half-cell ages
+        ``grid_origin + s grid_step / 2`` (mass per grid cell; used for the span dates).
     """
 
     node_depth_cm: np.ndarray
@@ -98,6 +109,9 @@ class AccumulationProblem:
     grid_step: float
     reference_cm: float = 10.0
     outlier_mass: np.ndarray | None = None
+    date_span: np.ndarray | None = None
+    span_mass: np.ndarray | None = None
+    span_outlier_mass: np.ndarray | None = None
 
     @property
     def n_grid(self) -> int:
@@ -122,12 +136,45 @@ class AccumulationProblem:
         p = self.outlier_prior[:, None]
         return (1.0 - p) * self.date_mass + p * self.outlier_likelihoods()
 
+    def spans(self) -> np.ndarray:
+        """True for each date on an interval (a slice), shape (n,)."""
+        if self.date_span is None:
+            return np.zeros(len(self.date_node), dtype=bool)
+        return np.asarray(self.date_span, dtype=bool)
+
+    def span_likelihoods(self) -> np.ndarray:
+        """L_d = (1 - p_d) f_d + p_d o_d at the half-cell ages, shape (n, 2G - 1)."""
+        p = self.outlier_prior[:, None]
+        broad = self.span_outlier_mass
+        if broad is None:
+            broad = np.full(self.span_mass.shape, 1.0 / self.n_grid)
+        return (1.0 - p) * self.span_mass + p * broad
+
+    def span_outlier_shares(self) -> np.ndarray:
+        """p_d o_d / L_d at the half-cell ages, shape (n, 2G - 1)."""
+        broad = self.span_outlier_mass
+        if broad is None:
+            broad = np.full(self.span_mass.shape, 1.0 / self.n_grid)
+        return self.outlier_prior[:, None] * broad / np.maximum(self.span_likelihoods(), 1e-300)
+
+    def edge_likelihoods(self) -> dict[int, np.ndarray]:
+        """Interval k -> product of the likelihoods of its span dates, shape (2G - 1,)."""
+        spans = self.spans()
+        out: dict[int, np.ndarray] = {}
+        if spans.any():
+            per = self.span_likelihoods()
+            for d in np.flatnonzero(spans):
+                k = int(self.date_node[d])
+                out[k] = out[k] * per[d] if k in out else per[d].copy()
+        return out
+
     def node_likelihoods(self) -> np.ndarray:
-        """Product of the likelihoods of the dates at each node, shape (K, G)."""
+        """Product of the likelihoods of the point dates at each node, shape (K, G)."""
         like = np.ones((self.n_nodes, self.n_grid))
         per_date = self.date_likelihoods()
-        for d, k in enumerate(self.date_node):
-            like[k] *= per_date[d]
+        for d, (k, span) in enumerate(zip(self.date_node, self.spans())):
+            if not span:
+                like[k] *= per_date[d]
         return like
 
 
@@ -255,7 +302,7 @@ def _convolve_rows(p: np.ndarray, spectra: _Spectra, k: int, offset: int = 0) ->
     return np.maximum(out, 0.0)  # FFT round-off can leave tiny negatives
 
 
-def forward_filter(like: np.ndarray, kernels: list[np.ndarray], keep_predicted=()):
+def forward_filter(like: np.ndarray, kernels: list[np.ndarray], keep_predicted=(), edges=None):
     """Forward filtering of the chain, for H hyper-parameter points at once.
 
     Parameters
@@ -266,6 +313,8 @@ def forward_filter(like: np.ndarray, kernels: list[np.ndarray], keep_predicted=(
         Increment kernels (see :func:`transition_kernels`).
     keep_predicted : iterable of int
         Nodes whose predicted distributions are returned.
+    edges : dict of int to ndarray (2G - 1,), optional
+        Interval potentials of the span dates (:meth:`AccumulationProblem.edge_likelihoods`).
 
     Returns
     -------
@@ -287,7 +336,12 @@ def forward_filter(like: np.ndarray, kernels: list[np.ndarray], keep_predicted=(
     log_evidence = np.zeros(n_points)
     with np.errstate(divide="ignore", invalid="ignore"):
         for k in range(n_nodes):
-            if k > 0:
+            if k > 0 and edges and k - 1 in edges:
+                current = shift_with_potential(filtered[:, k - 1], kernels[k - 1], edges[k - 1], 0, size)
+                kept = current.sum(axis=1, keepdims=True)
+                log_evidence += np.log(kept[:, 0])
+                current = current / kept
+            elif k > 0:
                 current = _convolve_rows(filtered[:, k - 1], spectra, k - 1)
                 kept = current.sum(axis=1, keepdims=True)
                 log_evidence += np.log(kept[:, 0])
@@ -302,11 +356,12 @@ def forward_filter(like: np.ndarray, kernels: list[np.ndarray], keep_predicted=(
     return filtered, log_evidence, predicted
 
 
-def backward_messages(like: np.ndarray, kernels: list[np.ndarray]) -> np.ndarray:
+def backward_messages(like: np.ndarray, kernels: list[np.ndarray], edges=None) -> np.ndarray:
     """Backward messages beta_k(a) proportional to p(dates at nodes > k | a_k = a).
 
     beta_k(i) = sum_t kernel_k(t) like_{k+1}(i + t) beta_{k+1}(i + t) (a correlation, by FFT),
-    each row scaled to max 1.
+    each row scaled to max 1; an interval with a span potential E has
+    beta_k(i) = sum_t kernel_k(t) E(2i + t) like_{k+1}(i + t) beta_{k+1}(i + t).
 
     Returns
     -------
@@ -319,22 +374,26 @@ def backward_messages(like: np.ndarray, kernels: list[np.ndarray]) -> np.ndarray
     beta[:, -1] = 1.0
     for k in range(n_nodes - 2, -1, -1):
         w = like[k + 1] * beta[:, k + 1]
-        message = _convolve_rows(w, spectra, k, offset=kernels[k].shape[1] - 1)
+        if edges and k in edges:
+            message = pull_with_potential(w, kernels[k], edges[k])
+        else:
+            message = _convolve_rows(w, spectra, k, offset=kernels[k].shape[1] - 1)
         beta[:, k] = message / np.maximum(message.max(axis=1, keepdims=True), 1e-300)
     return beta
 
 
 def sample_paths(filtered: np.ndarray, kernels: list[np.ndarray], members: int,
-                 rng: np.random.Generator) -> np.ndarray:
+                 rng: np.random.Generator, edges=None) -> np.ndarray:
     """Backward sampling of ``members`` exact posterior paths (grid indices), one point.
 
     a_{K-1} ~ filtered_{K-1}; then p(a_k = i | a_{k+1} = j) is proportional to
-    filtered_k(i) kernel_k(j - i).
+    filtered_k(i) kernel_k(j - i) (times E(i + j) on an interval with a span potential E).
 
     Parameters
     ----------
     filtered : ndarray, shape (K, G)
     kernels : list of K - 1 ndarrays, shape (J_k,)
+    edges : dict of int to ndarray (2G - 1,), optional
 
     Returns
     -------
@@ -349,6 +408,8 @@ def sample_paths(filtered: np.ndarray, kernels: list[np.ndarray], members: int,
         below = out[k + 1]
         candidates = below[:, None] - np.arange(kernel.size)[None, :]
         weights = filtered[k][np.maximum(candidates, 0)] * kernel[None, :]
+        if edges and k in edges:
+            weights *= edges[k][np.maximum(candidates, 0) + below[:, None]]
         weights[candidates < 0] = 0.0
         cum = np.cumsum(weights, axis=1)
         u = rng.random(members) * cum[:, -1]
@@ -362,12 +423,15 @@ def _outlier_posterior(problem: AccumulationProblem, predicted, beta, per_date) 
 
     ``predicted`` maps node -> (G,), ``beta`` is (K, G).
     """
-    out = np.empty(len(problem.date_node))
+    out = np.zeros(len(problem.date_node))
     p = problem.outlier_prior
     outlier_part = problem.outlier_likelihoods()
+    spans = problem.spans()
     for d, k in enumerate(problem.date_node):
+        if spans[d]:
+            continue
         others = np.ones(problem.n_grid)
-        for e in np.flatnonzero(problem.date_node == k):
+        for e in np.flatnonzero((problem.date_node == k) & ~spans):
             if e != d:
                 others = others * per_date[e]
         base = predicted[k] * beta[k] * others
@@ -404,30 +468,29 @@ def fit_accumulation(problem: AccumulationProblem, mean_rates, shapes, gap_mean:
     shapes = np.asarray(shapes, dtype=float)
     like = problem.node_likelihoods()
     per_date = problem.date_likelihoods()
+    edges = problem.edge_likelihoods()
+    spans = problem.spans()
     kernels = transition_kernels(problem, mean_rates, shapes, gap_mean)
     date_nodes = np.unique(problem.date_node)
-    filtered, log_evidence, predicted = forward_filter(like, kernels, keep_predicted=date_nodes)
-    if not np.any(np.isfinite(log_evidence)):
-        raise ValueError("no age-depth path is compatible with the dates on the calendar grid; "
-                         "check the dates, hiatuses and grid range")
-    weights = np.exp(log_evidence - np.max(log_evidence))
-    weights /= weights.sum()
-    active = np.flatnonzero(weights >= min_weight)
+    filtered, log_evidence, predicted = forward_filter(like, kernels, keep_predicted=date_nodes, edges=edges)
+    weights, active, counts = members_per_point(log_evidence, members, min_weight, rng)
     weights_active = weights[active] / weights[active].sum()
-    counts = np.zeros(weights.size, dtype=int)
-    counts[active] = rng.multinomial(members, weights_active)
     paths = np.empty((problem.n_nodes, members))
     outlier = np.zeros(len(problem.date_node))
     sub_kernels = [block[active] for block in kernels]
     if len(problem.date_node):
-        beta = backward_messages(like, sub_kernels)
+        beta = backward_messages(like, sub_kernels, edges)
         for j, h in enumerate(active):
             node_predicted = {k: predicted[k][h] for k in date_nodes}
-            outlier += weights_active[j] * _outlier_posterior(problem, node_predicted, beta[j], per_date)
+            point = _outlier_posterior(problem, node_predicted, beta[j], per_date)
+            if spans.any():
+                span = span_outlier_posteriors(problem, filtered[h], beta[j], like, [b[h] for b in kernels], edges)
+                point = np.where(spans, span, point)
+            outlier += weights_active[j] * point
     column = 0
     for h in active:
         if counts[h]:
-            cells = sample_paths(filtered[h], [block[h] for block in kernels], int(counts[h]), rng)
+            cells = sample_paths(filtered[h], [block[h] for block in kernels], int(counts[h]), rng, edges)
             paths[:, column: column + counts[h]] = problem.grid_origin + problem.grid_step * cells
             column += counts[h]
     # spread ages uniformly within their cell, keeping every path monotone in depth
@@ -435,47 +498,3 @@ def fit_accumulation(problem: AccumulationProblem, mean_rates, shapes, gap_mean:
     paths = np.maximum.accumulate(paths, axis=0)
     paths = paths[:, rng.permutation(members)]
     return AccumulationFit(paths, outlier, mean_rates, shapes, log_evidence, weights, counts)
-
-
-def place_nodes(top_cm: float, bottom_cm: float, spacing_cm: float, date_depths_cm,
-                hiatus_depths_cm=()) -> tuple[np.ndarray, np.ndarray]:
-    """Node depths: a regular ladder plus every date depth, and each hiatus twice.
-
-    Ladder nodes closer than a third of the spacing to a date depth are left out (the date's
-    node takes their place), so dates do not split intervals into slivers.
-
-    Parameters
-    ----------
-    top_cm, bottom_cm : float
-        Range to cover [cm, event-free].
-    spacing_cm : float
-        Regular node spacing [cm].
-    date_depths_cm : array_like
-        Date depths [cm, event-free]; each becomes a node, so a date's likelihood acts on
-        exactly one node (no interpolation between nodes).
-    hiatus_depths_cm : array_like
-        Hiatus depths [cm, event-free].
-
-    Returns
-    -------
-    node_depth_cm : ndarray, shape (K,)
-    gap_after : ndarray of bool, shape (K - 1,)
-    """
-    if not spacing_cm > 0:
-        raise ValueError(f"node spacing must be positive, got {spacing_cm}")
-    ladder = np.arange(top_cm, bottom_cm + spacing_cm * 0.999, spacing_cm)
-    hiatus = np.asarray(sorted(h for h in hiatus_depths_cm if top_cm < h < bottom_cm), dtype=float)
-    dated = np.unique(np.asarray(date_depths_cm, dtype=float))
-    if dated.size:
-        # a ladder node within a third of the spacing of a date gives way to the date's node
-        nearest = np.min(np.abs(ladder[:, None] - dated[None, :]), axis=1)
-        ladder = ladder[nearest >= spacing_cm / 3]
-    depths = np.unique(np.concatenate([ladder, [top_cm, bottom_cm], dated, hiatus]))
-    # merge nodes closer than 1e-6 cm
-    depths = depths[np.concatenate([[True], np.diff(depths) > 1e-6])]
-    depths = np.sort(np.concatenate([depths, hiatus]))
-    gap_after = np.zeros(depths.size - 1, dtype=bool)
-    for h in hiatus:
-        k = int(np.searchsorted(depths, h - 1e-9, side="left"))
-        gap_after[k] = True
-    return depths, gap_after

@@ -252,8 +252,9 @@ def _gather_rows(step: float, start: np.ndarray, blocks: list, row_width: np.nda
     offsets = np.concatenate([[0], np.cumsum(row_width)]).astype(np.int64)
     values = np.empty(offsets[-1])
     for rows, dens in blocks:
-        for j, i in enumerate(rows.tolist()):
-            values[offsets[i]:offsets[i + 1]] = dens[j, : row_width[i]]
+        cells = np.arange(dens.shape[1])
+        inside = cells[None, :] < row_width[rows, None]
+        values[(offsets[rows, None] + cells[None, :])[inside]] = dens[inside]
     return CalibratedDates(step, np.asarray(start, dtype=int), offsets, values)
 
 
@@ -261,7 +262,13 @@ def _likelihood(residual, total_var, student_t: bool, prior: tuple[float, float]
     if student_t:
         a, b = prior
         return (b + 0.5 * residual**2 / total_var) ** (-(a + 0.5)) / np.sqrt(total_var)
-    return np.exp(-0.5 * residual**2 / total_var) / np.sqrt(total_var)
+    # in place: residual^2 / var -> exp(-x / 2) / sqrt(var) (the arrays are the caller's temporaries)
+    out = np.square(residual, out=residual)
+    out /= total_var
+    out *= -0.5
+    np.exp(out, out=out)
+    out /= np.sqrt(total_var, out=total_var)
+    return out
 
 
 def calibrate_radiocarbon(ages, errors, curve: CalibrationCurve, reservoir_offset=0.0,
@@ -333,6 +340,7 @@ def calibrate_radiocarbon(ages, errors, curve: CalibrationCurve, reservoir_offse
     last = np.clip(np.maximum(last, first), 0, mu.size - 1)
     widths = last - first + 1
     order = np.argsort(widths, kind="stable")
+    sc_squared = sc**2
     flat = []
     # dates of similar window width are evaluated together as one padded block
     for block in np.array_split(order, max(1, n // 64)):
@@ -341,7 +349,8 @@ def calibrate_radiocarbon(ages, errors, curve: CalibrationCurve, reservoir_offse
         width = int(widths[block].max())
         cells = np.arange(width)[None, :]
         idx = np.minimum(first[block, None] + cells, mu.size - 1)
-        total_var = sigma[block, None] ** 2 + sc[idx] ** 2
+        total_var = sc_squared[idx]
+        total_var += sigma[block, None] ** 2
         dens = _likelihood(r[block, None] - mu[idx], total_var, student_t, error_multiplier_prior)
         dens[cells >= widths[block, None]] = 0.0
         dens /= dens.sum(axis=1, keepdims=True)

@@ -24,7 +24,10 @@ convolution per class) and then mixes the classes (a rank-one update, exact). Fo
 filtering gives the exact evidence of every hyper-parameter point (mean rate x variability
 x memory), which weights the points (a uniform prior over the grid points); backward sampling
 draws exact paths: the class of node k given node k+1's age and class, then its age given its
-class. A date's outlier probability is the Rao-Blackwell average of
+class. A date taken over a slice constrains the slice's mean age, a potential on the
+interval between its end nodes (:mod:`proxies.chronology.spans`): that interval's shift is
+then summed lag by lag instead of by FFT, and the age draw of its top node is weighted by the
+potential; every step stays exact. A date's outlier probability is the Rao-Blackwell average of
 ``p_d o_d(a) / L_d(a)`` over the sampled paths (exact given each path; Monte Carlo over paths).
 
 References
@@ -44,6 +47,8 @@ from scipy import fft as sp_fft
 from scipy import stats
 
 from proxies.chronology.accumulation import AccumulationProblem
+from proxies.chronology.evidence_weights import members_per_point
+from proxies.chronology.spans import shift_with_potential
 
 __all__ = ["MemoryFit", "rate_classes", "class_kernels", "memory_forward", "fit_memory"]
 
@@ -201,6 +206,7 @@ def memory_forward(problem: AccumulationProblem, transitions: _Transitions, rate
     filtered, shifted : list or None
     """
     like = problem.node_likelihoods().astype(dtype)
+    edges = problem.edge_likelihoods()
     n_nodes, size = like.shape
     classes = transitions.rates.shape[1]
     points = rate_index.size
@@ -210,7 +216,10 @@ def memory_forward(problem: AccumulationProblem, transitions: _Transitions, rate
     filtered, shifted_all = ([], []) if keep else (None, None)
     with np.errstate(divide="ignore", invalid="ignore"):
         for k in range(n_nodes):
-            if k > 0:
+            if k > 0 and k - 1 in edges:
+                kernels = transitions.kernel(k - 1)[rate_index].astype(dtype)
+                shifted = shift_with_potential(alpha, kernels, edges[k - 1], lo, size)
+            elif k > 0:
                 kernels = transitions.kernel(k - 1)
                 width = min(alpha.shape[-1] + kernels.shape[-1] - 1, size - lo)
                 # one FFT length per interval (whatever the window), so the kernel spectra are reused
@@ -218,6 +227,7 @@ def memory_forward(problem: AccumulationProblem, transitions: _Transitions, rate
                 spectra = transitions.spectra(k - 1, n, dtype)[rate_index]
                 shifted = sp_fft.irfft(sp_fft.rfft(alpha, n, axis=-1) * spectra, n, axis=-1)[..., :width]
                 shifted = np.maximum(shifted, 0.0)
+            if k > 0:
                 if keep:
                     shifted_all.append((lo, shifted))
                 stay = transitions.persistence(k - 1, memories)[:, None, None]
@@ -244,11 +254,14 @@ def _draw(weights: np.ndarray, rng) -> np.ndarray:
     return np.minimum((cum < u[:, None]).sum(axis=1), weights.shape[1] - 1)
 
 
-def _sample(filtered, shifted, transitions: _Transitions, rate_row: int, memory: float, members: int, rng):
+def _sample(filtered, shifted, transitions: _Transitions, rate_row: int, memory: float, members: int, rng,
+            edges=None):
     """Backward sampling of (age cell, class) paths for one hyper-parameter point.
 
-    ``filtered`` and ``shifted`` are the windows of :func:`memory_forward` (one point).
+    ``filtered`` and ``shifted`` are the windows of :func:`memory_forward` (one point);
+    ``edges`` the interval potentials of the span dates.
     """
+    edges = edges or {}
     n_nodes = len(filtered)
     ages = np.empty((n_nodes, members), dtype=np.int64)
     lo, last = filtered[-1]
@@ -277,6 +290,8 @@ def _sample(filtered, shifted, transitions: _Transitions, rate_row: int, memory:
             candidates = below[who, None] - lags[None, :]
             inside = (candidates >= f_lo) & (candidates < f_lo + f_win.shape[-1])
             weights = f_win[0, c][np.clip(candidates - f_lo, 0, f_win.shape[-1] - 1)] * kernel[lags][None, :]
+            if k in edges:
+                weights *= edges[k][np.maximum(candidates, 0) + below[who, None]]
             weights[~inside] = 0.0
             ages[k, who] = candidates[np.arange(who.size), _draw(weights, rng)]
     return ages
@@ -320,20 +335,14 @@ def fit_memory(problem: AccumulationProblem, mean_rates, variabilities, memories
     rate_index = (mi * v_grid.size + vi).ravel()
     point_memory = w_grid[wi.ravel()]
     log_evidence, _, _ = memory_forward(problem, transitions, rate_index, point_memory, dtype=np.float32)
-    if not np.any(np.isfinite(log_evidence)):
-        raise ValueError("no age-depth path is compatible with the dates on the calendar grid; "
-                         "check the dates, hiatuses and grid range")
-    weights = np.exp(log_evidence - np.max(log_evidence))
-    weights /= weights.sum()
-    active = np.flatnonzero(weights >= min_weight)
-    counts = np.zeros(weights.size, dtype=int)
-    counts[active] = rng.multinomial(members, weights[active] / weights[active].sum())
+    weights, _, counts = members_per_point(log_evidence, members, min_weight, rng)
+    edges = problem.edge_likelihoods()
     cells = np.empty((problem.n_nodes, members), dtype=np.int64)
     column = 0
     for h in np.flatnonzero(counts):
         _, filtered, shifted = memory_forward(problem, transitions, rate_index[[h]], point_memory[[h]], keep=True)
         cells[:, column: column + counts[h]] = _sample(filtered, shifted, transitions, rate_index[h],
-                                                       point_memory[h], int(counts[h]), rng)
+                                                       point_memory[h], int(counts[h]), rng, edges)
         column += counts[h]
     outlier = _outlier_average(problem, cells)
     paths = problem.grid_origin + problem.grid_step * cells.astype(float)
@@ -345,7 +354,10 @@ def fit_memory(problem: AccumulationProblem, mean_rates, variabilities, memories
 
 
 def _outlier_average(problem: AccumulationProblem, cells: np.ndarray) -> np.ndarray:
-    """Rao-Blackwell outlier probability: mean over paths of p_d o_d(a) / L_d(a)."""
+    """Rao-Blackwell outlier probability: mean over paths of p_d o_d(a) / L_d(a).
+
+    For a span date, a is the mean age of its interval (half-cell index a_k + a_{k+1}).
+    """
     if not len(problem.date_node):
         return np.zeros(0)
     at = cells[problem.date_node]  # (n, M)
@@ -353,4 +365,8 @@ def _outlier_average(problem: AccumulationProblem, cells: np.ndarray) -> np.ndar
     broad = problem.outlier_likelihoods()[rows, at]
     total = problem.date_likelihoods()[rows, at]
     share = problem.outlier_prior[:, None] * broad / np.maximum(total, 1e-300)
+    spans = np.flatnonzero(problem.spans())
+    if spans.size:
+        mean_cell = cells[problem.date_node[spans]] + cells[problem.date_node[spans] + 1]
+        share[spans] = problem.span_outlier_shares()[spans[:, None], mean_cell]
     return share.mean(axis=1)

@@ -23,7 +23,7 @@ from proxies.chronology.calibrate import (
 )
 from proxies.chronology.curves import CalibrationCurve
 from proxies.chronology.date_curves import calibrate_radiocarbon_rows, lead210_rows
-from proxies.chronology.model_runs import HYPERPARAMETER_COLUMNS, run_accumulation, run_interpolation
+from proxies.chronology.model_runs import HYPERPARAMETER_COLUMNS, run_accumulation, run_interpolation, slice_intervals
 from proxies.chronology.settings import ChronologySettings
 from proxies.cores.datability import (age_control_problems, event_layer_problems, grid_memory_problems,
                                       machine_memory_bytes)
@@ -278,15 +278,23 @@ def build_chronology(core, curves: dict[str, CalibrationCurve], settings: Chrono
     if centre is None:
         centre = 10.0
         messages.append("mean accumulation rate could not be estimated from the dates; 10 yr/cm assumed")
-    top, bottom = float(min(free_out.min(), z.min())), float(max(free_out.max(), z.max()))
+    depth = table["depth_cm"].to_numpy(float)
+    half = table["thickness_cm"].fillna(0.0).to_numpy(float) / 2
+    spans, span_messages = slice_intervals(table["label"].tolist(), _event_free(depth_scale, depth - half),
+                                           _event_free(depth_scale, depth + half), z, use, hiatuses)
+    ends = spans[np.isfinite(spans[:, 0])]
+    top = float(min(free_out.min(), z.min(), ends.min(initial=np.inf)))
+    bottom = float(max(free_out.max(), z.max(), ends.max(initial=-np.inf)))
     outlier = np.full(len(table), np.nan)
     hyper = pd.DataFrame({c: pd.Series(dtype="string" if c == "model" else float) for c in HYPERPARAMETER_COLUMNS})
     priors = outlier_priors(table, settings)
     if settings.model in ("memory", "accumulation"):
         pinned = table["constraint"].to_numpy(bool) & use & (table["kind"].astype(str).str.lower() == "calendar")
         constraints = [(z[i], float(table.at[i, "age"]), float(table.at[i, "error"])) for i in np.flatnonzero(pinned)]
+        messages.extend(span_messages)
         nodes, paths, outlier_used, hyper = run_accumulation(
-            calibrated, use, z, priors, hiatuses, top, bottom, centre, core, settings, ensemble, rng, constraints)
+            calibrated, use, z, priors, hiatuses, top, bottom, centre, core, settings, ensemble, rng, constraints,
+            spans)
     else:
         nodes, paths, outlier_used = run_interpolation(
             calibrated, use, z, priors, hiatuses, free_out, centre, settings, ensemble, rng)

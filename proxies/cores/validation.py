@@ -327,8 +327,8 @@ def check_dates(table: pd.DataFrame, file: str, spec: CoreSpec) -> tuple[pd.Data
 
     Rules: ``label`` unique and present; ``depth_<unit>`` >= 0; ``kind`` radiocarbon or
     calendar (any case); ``age`` within the ranges in the module notes; ``error`` > 0;
-    ``thickness_<unit>`` >= 0; ``reservoir_error`` >= 0; ``exclude`` a true/false word.
-    Dates deeper than the deepest sample are fine. Extra columns are kept as read.
+    ``thickness_<unit>`` >= 0 with the slice (depth +- thickness / 2) below the core top;
+    ``reservoir_error`` >= 0; ``exclude`` a true/false word. Dates deeper than the deepest sample are fine. Extra columns are kept as read.
     """
     depth_column = f"depth_{spec.depth_unit}"
     checker = _TableChecker(table, file, spec.depth_factor, spec.depth_unit)
@@ -366,7 +366,7 @@ def check_dates(table: pd.DataFrame, file: str, spec: CoreSpec) -> tuple[pd.Data
             if section_depth is not None:
                 out["section_depth_cm"] = section_depth
         elif column == f"thickness_{spec.depth_unit}":
-            out["thickness_cm"] = checker.numbers(column, lo=0.0, what="thickness") * spec.depth_factor
+            out["thickness_cm"] = _date_thickness(checker, column, depth_cm, spec)
         elif column == "kind":
             out["kind"] = kinds
         elif column == "age":
@@ -401,6 +401,20 @@ def check_dates(table: pd.DataFrame, file: str, spec: CoreSpec) -> tuple[pd.Data
     frame["thickness_cm"] = frame["thickness_cm"].fillna(0.0)
     frame["exclude"] = frame["exclude"].astype(bool)
     return frame, []
+
+
+def _date_thickness(checker: _TableChecker, column: str, depth_cm: np.ndarray, spec: CoreSpec) -> np.ndarray:
+    """Thickness of each dated slice [cm]: >= 0, and the slice (depth +- thickness / 2) below the top."""
+    thickness = checker.numbers(column, lo=0.0, what="thickness",
+                                fix="give the thickness of the dated slice as a number >= 0 (0 or empty: a point)")
+    thickness_cm = thickness * spec.depth_factor
+    for row, depth, value, raw in zip(checker.rows, depth_cm, thickness_cm, thickness):
+        if np.isfinite(depth) and np.isfinite(value) and depth - value / 2 < -1e-9:
+            checker.add(f"the dated slice ({raw:g} thick around depth {depth / spec.depth_factor:g}) reaches above "
+                        "the core top (depth - thickness / 2 < 0)",
+                        "the depth is the slice's centre: give at most twice the depth as thickness, or "
+                        "correct the depth", row, column)
+    return thickness_cm
 
 
 def _exclude_column(checker: _TableChecker) -> list[bool]:

@@ -36,8 +36,8 @@ def difference_quantiles(a: np.ndarray, b: np.ndarray, levels=_LEVELS, iteration
 
     The share of pairs with ``a_i - b_j <= d`` is ``sum_i #{b_j >= a_i - d} / (n_a n_b)``,
     counted by binary search in the sorted ``b``; each quantile is found by bisection on
-    ``d`` to below 1e-9 of the range (then snapped to the nearest attained difference
-    from above, the usual lower quantile of a discrete distribution).
+    ``d`` to below 1e-9 of the range, then snapped to the nearest attained difference
+    (:func:`_nearest_difference`): the usual lower quantile of a discrete distribution.
 
     Parameters
     ----------
@@ -62,8 +62,21 @@ def difference_quantiles(a: np.ndarray, b: np.ndarray, levels=_LEVELS, iteration
             mid = (lo + hi) / 2
             count = np.sum(b.size - np.searchsorted(b, a - mid, side="left"))
             lo, hi = (lo, mid) if count >= need else (mid, hi)
-        out.append(hi)
+        out.append(_nearest_difference(a, b, hi))
     return np.array(out)
+
+
+def _nearest_difference(a: np.ndarray, b: np.ndarray, d: float) -> float:
+    """The attained difference ``a_i - b_j`` nearest to ``d`` (``b`` sorted).
+
+    Bisection in floating point stops within rounding of the quantile (``a_i - d`` rounds to
+    ``a_i`` for tiny ``d``), so a quantile that is an attained difference such as exactly 0
+    could come out as -2e-13; snapping returns the difference itself, so that a true lag
+    on the lattice of differences (onsets on a grid) is inside the range when it should be.
+    """
+    at = np.clip(np.searchsorted(b, a - d), 1, b.size - 1) if b.size > 1 else np.zeros(a.size, int)
+    candidates = np.concatenate([a - b[at], a - b[at - 1]]) if b.size > 1 else a - b[0]
+    return float(candidates[np.argmin(np.abs(candidates - d))])
 
 
 def lead_probability(a: np.ndarray, b: np.ndarray) -> float:

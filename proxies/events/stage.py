@@ -88,7 +88,7 @@ class EventResult:
     ``record`` for the whole-record search and ``local`` for the member tests at an
     established event's place; ``event_id`` names the reported event it belongs to, empty if
     none); ``onsets`` has one row per reported event and member (``event_id, member,
-    onset_cal_bp, amplitude, detected``): members that detect the event give their
+    onset_cal_bp, end_cal_bp, amplitude, detected``): members that detect the event give their
     detection's ramp fit, the others (``detected`` false) their ramp fit at the event's place;
     these are the member values behind ``onset_*`` and ``amplitude_*``
     (``<core>/event_onsets.parquet``).
@@ -102,19 +102,20 @@ class EventResult:
     onsets: pd.DataFrame = field(default_factory=lambda: _empty_onsets())
 
 
-ONSET_COLUMNS = ["event_id", "member", "onset_cal_bp", "amplitude", "detected"]
+ONSET_COLUMNS = ["event_id", "member", "onset_cal_bp", "end_cal_bp", "amplitude", "detected"]
 
 
 def _empty_onsets() -> pd.DataFrame:
     return pd.DataFrame({"event_id": pd.Series(dtype=object), "member": pd.Series(dtype=np.int64),
-                         "onset_cal_bp": pd.Series(dtype=float), "amplitude": pd.Series(dtype=float),
-                         "detected": pd.Series(dtype=bool)})
+                         "onset_cal_bp": pd.Series(dtype=float), "end_cal_bp": pd.Series(dtype=float),
+                         "amplitude": pd.Series(dtype=float), "detected": pd.Series(dtype=bool)})
 
 
 def _onset_rows(fits: pd.DataFrame, detected: bool) -> pd.DataFrame:
     return pd.DataFrame({"event_id": fits["event_id"].to_numpy(dtype=object),
                          "member": fits["member"].to_numpy(dtype=np.int64),
                          "onset_cal_bp": fits["onset"].to_numpy(dtype=float),
+                         "end_cal_bp": fits["end"].to_numpy(dtype=float),
                          "amplitude": fits["amplitude"].to_numpy(dtype=float),
                          "detected": np.full(len(fits), detected)})
 

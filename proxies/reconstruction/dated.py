@@ -16,9 +16,11 @@ import numpy as np
 
 from proxies.reconstruction.grid import (auto_grid_step_yr, bin_means, median_sample_spacing_yr,
                                          regular_grid)
-from proxies.reconstruction.stage import GridSeries
+from proxies.reconstruction.settings import ReconstructionSettings
+from proxies.reconstruction.stage import (GridSeries, ReconstructionResult, _ensemble_table, _series_table,
+                                          filled_share)
 
-__all__ = ["age_ensemble", "dated_series_on_grid"]
+__all__ = ["age_ensemble", "dated_series_on_grid", "dated_series_result"]
 
 
 def age_ensemble(age_yr: np.ndarray, n_members: int, rng: np.random.Generator, age_sd_yr: float = 0.0,
@@ -95,3 +97,44 @@ def dated_series_on_grid(name: str, age_yr: np.ndarray, value: np.ndarray, rng: 
                       anomalies=values - reference[None, :], n_samples=n_samples,
                       reference_window=(young, old), reference_kind="record", proxy=name,
                       climate_variable=name)
+
+
+def dated_series_result(name: str, age_yr: np.ndarray, value: np.ndarray, rng: np.random.Generator,
+                        reconstruction: ReconstructionSettings, n_members: int = 200, age_sd_yr: float = 0.0,
+                        age_sd_fraction: float = 0.0, member_ages: np.ndarray | None = None,
+                        step_yr: float | None = None, variable: str | None = None,
+                        units: str = "") -> ReconstructionResult:
+    """A dated series as the reconstruction of a one-record "core" named ``name``, so that it
+    goes through events, the stack and lead/lag exactly like a core's reconstruction.
+
+    Parameters
+    ----------
+    name : str
+        The series' name (its id in the run: its folder, its rows in the run tables).
+    age_yr, value, rng, n_members, age_sd_yr, age_sd_fraction, member_ages, step_yr, units
+        See :func:`dated_series_on_grid`.
+    reconstruction : ReconstructionSettings
+        ``min_member_share`` (bands) and ``min_filled_share`` (thin record).
+    variable : str, optional
+        Climate variable (default ``name``): series and cores of one variable are stacked
+        together.
+
+    Returns
+    -------
+    ReconstructionResult
+        One series keyed by the variable; the table and ensemble have the columns of a core's
+        ``reconstruction.parquet`` / ``reconstruction_ensemble.parquet``.
+    """
+    variable = variable or name
+    series = dated_series_on_grid(variable, age_yr, value, rng, n_members, age_sd_yr, age_sd_fraction,
+                                  member_ages, step_yr, units)
+    share = filled_share(series, reconstruction.min_member_share)
+    warnings, thin = [], []
+    if share < reconstruction.min_filled_share:
+        thin.append(variable)
+        warnings.append(f"{variable}: values cover only {share:.0%} of the record's age span")
+    step = float(np.median(np.diff(series.age_cal_bp))) if series.age_cal_bp.size > 1 else float("nan")
+    notes = [f"dated series: {age_yr.size} samples, {series.values.shape[1]} members, grid step {step:g} yr"]
+    table = _series_table(series, reconstruction.min_member_share)
+    return ReconstructionResult(name, table, {variable: series}, _ensemble_table({variable: series}),
+                                warnings, notes, {variable: share}, thin)

@@ -4,13 +4,16 @@ Each record's member series is expressed relative to the common stack window (de
 from its window mean, or z-score over the window); the composite member ``m`` is the mean
 over the records that have a value at that time step. Members of different cores are
 independent draws, so pairing member ``m`` of one core with member ``m`` of another is a
-valid joint draw; when ensemble sizes differ, members are drawn with replacement (``rng``).
+valid joint draw; when ensemble sizes differ, members are drawn with replacement (seeded by
+the record's stable name, ``rng_for(seed, "stack", core_id, series)``). The composite keeps
+every member (:func:`stack_ensembles`), so that events found in the stack have an onset
+distribution: the regional onset (:mod:`proxies.events.regional`).
 """
 
 from __future__ import annotations
 
 import warnings
-from dataclasses import replace
+from dataclasses import dataclass, replace
 
 import numpy as np
 import pandas as pd
@@ -18,8 +21,10 @@ import pandas as pd
 from proxies.reconstruction.grid import bin_means, regular_grid
 from proxies.reconstruction.quantiles import BAND_LEVELS, band_name, ensemble_bands
 from proxies.reconstruction.settings import ReconstructionSettings
+from proxies.seeding import rng_for
 
-__all__ = ["stack_records", "composite_members", "standardise_over_window", "coarsen_series"]
+__all__ = ["stack_records", "stack_ensembles", "StackEnsemble", "composite_members", "standardise_over_window",
+           "coarsen_series"]
 
 
 def standardise_over_window(age_cal_bp: np.ndarray, values: np.ndarray, window: tuple[float, float],
@@ -53,13 +58,15 @@ def standardise_over_window(age_cal_bp: np.ndarray, values: np.ndarray, window: 
     return out
 
 
-def composite_members(aligned: list[np.ndarray]) -> tuple[np.ndarray, np.ndarray]:
-    """Member-by-member mean over records.
+def composite_members(aligned) -> tuple[np.ndarray, np.ndarray]:
+    """Member-by-member mean over records, accumulated one record at a time.
 
     Parameters
     ----------
-    aligned : list of ndarray (T, M)
-        Records on the same grid and with the same number of members.
+    aligned : iterable of ndarray (T, M)
+        Records on the same grid and with the same number of members (a generator is fine:
+        only one record, a running sum and counts are held at once, so 100 cores x 500
+        members stay small).
 
     Returns
     -------
@@ -68,11 +75,22 @@ def composite_members(aligned: list[np.ndarray]) -> tuple[np.ndarray, np.ndarray
     n_records : ndarray (T,)
         Number of records whose member-median has a value at each step.
     """
-    cube = np.stack(aligned)  # (R, T, M)
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", RuntimeWarning)
-        composite = np.nanmean(cube, axis=0)
-        n_records = np.isfinite(np.nanmedian(cube, axis=2)).sum(axis=0)
+    total = count = n_records = None
+    for record in aligned:
+        record = np.asarray(record, dtype=float)
+        have = np.isfinite(record)
+        if total is None:
+            total, count = np.zeros(record.shape), np.zeros(record.shape, dtype=np.int64)
+            n_records = np.zeros(record.shape[0], dtype=np.int64)
+        total += np.where(have, record, 0.0)
+        count += have
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", RuntimeWarning)
+            n_records += np.isfinite(np.nanmedian(record, axis=1))
+    if total is None:
+        raise ValueError("no record to composite")
+    with np.errstate(invalid="ignore", divide="ignore"):
+        composite = np.where(count > 0, total / np.maximum(count, 1), np.nan)
     return composite, n_records
 
 
@@ -140,8 +158,85 @@ def _overlap(series_list) -> tuple[float, float]:
     return young, old
 
 
+@dataclass(frozen=True)
+class StackEnsemble:
+    """The regional composite of one climate variable, every member kept.
+
+    Attributes
+    ----------
+    variable : str
+    age_cal_bp : ndarray (T,)
+        Common grid [cal BP].
+    values : ndarray (T, M)
+        Composite member ``m``: the mean over records of each record's member (its own
+        draw when ensemble sizes differ), standardised over the window.
+    n_records : ndarray (T,)
+        Records contributing at each step.
+    window : (young, old)
+        Stack window [cal BP].
+    records : tuple of str
+        ``core_id/series`` of the records in the composite.
+    """
+
+    variable: str
+    age_cal_bp: np.ndarray
+    values: np.ndarray
+    n_records: np.ndarray
+    window: tuple[float, float]
+    records: tuple[str, ...] = ()
+
+
+def _member_draw(values: np.ndarray, n_members: int, rng: np.random.Generator | None, seed: int | None,
+                 core_id: str, name: str) -> np.ndarray:
+    """The record's members for an ``n_members`` composite: its own when sizes agree, else
+    drawn with replacement by ``rng_for(seed, "stack", core_id, name)`` (stable names: the
+    same draw whatever the other records) or, without a seed, by ``rng``."""
+    if values.shape[1] == n_members:
+        return values
+    draw = rng_for(seed, "stack", core_id, name) if seed is not None else rng
+    return values[:, draw.integers(0, values.shape[1], n_members)]
+
+
+def stack_ensembles(results: dict, settings: ReconstructionSettings, rng: np.random.Generator | None = None,
+                    seed: int | None = None) -> dict[str, StackEnsemble]:
+    """Regional composite of every climate variable, every member kept (see
+    :func:`stack_records` for the rules); ``seed`` seeds the member draws of records whose
+    ensemble size differs by their stable names (else ``rng`` draws them in record order).
+
+    Returns
+    -------
+    dict
+        variable -> :class:`StackEnsemble`, variables sorted.
+    """
+    by_variable: dict[str, list] = {}
+    for core_id in sorted(results):
+        for name, s in results[core_id].series.items():
+            if np.isfinite(s.values).any():  # a record without any value is not a record
+                by_variable.setdefault(s.climate_variable or name, []).append((f"{core_id}/{name}", s))
+    out = {}
+    for variable in sorted(by_variable):
+        labels = tuple(label for label, _ in by_variable[variable])
+        series_list, notes = _on_common_steps([s for _, s in by_variable[variable]])
+        for note in notes:
+            warnings.warn(f"stack of {variable}: {note}", UserWarning, stacklevel=2)
+        grid = _common_grid(series_list)
+        window = settings.stack_window or _overlap(series_list)
+        n_members = max(s.values.shape[1] for s in series_list)
+
+        def aligned(series_list=series_list, labels=labels, grid=grid, window=window, n_members=n_members):
+            for label, s in zip(labels, series_list):
+                values = _member_draw(s.values, n_members, rng, seed, *label.split("/", 1))
+                standard = standardise_over_window(s.age_cal_bp, values, window, settings.stack_method)
+                yield _on_grid(s, grid, standard)
+
+        composite, n_records = composite_members(aligned())
+        out[variable] = StackEnsemble(variable, grid, composite, n_records, window, labels)
+    return out
+
+
 def stack_records(results: dict, settings: ReconstructionSettings,
-                  rng: np.random.Generator) -> pd.DataFrame:
+                  rng: np.random.Generator | None = None, seed: int | None = None,
+                  ensembles: dict[str, StackEnsemble] | None = None) -> pd.DataFrame:
     """Regional composite of every climate variable, over all records of all cores.
 
     Parameters
@@ -150,8 +245,12 @@ def stack_records(results: dict, settings: ReconstructionSettings,
         Core id -> reconstruction result.
     settings : ReconstructionSettings
         ``stack_method``, ``stack_window``, ``min_member_share``.
-    rng : numpy.random.Generator
-        Draws member indices when cores have different ensemble sizes.
+    rng : numpy.random.Generator, optional
+        Draws member indices when cores have different ensemble sizes (without ``seed``).
+    seed : int, optional
+        Run seed: member draws by stable names instead (see :func:`stack_ensembles`).
+    ensembles : dict, optional
+        The result of :func:`stack_ensembles` when already made (then ``results`` is unused).
 
     Returns
     -------
@@ -163,34 +262,17 @@ def stack_records(results: dict, settings: ReconstructionSettings,
         Records without any value are left out; records on finer grid steps are averaged
         onto the coarsest step of the variable (with a warning saying so).
     """
-    by_variable: dict[str, list] = {}
-    for core_id in sorted(results):
-        for name, s in results[core_id].series.items():
-            if np.isfinite(s.values).any():  # a record without any value is not a record
-                by_variable.setdefault(s.climate_variable or name, []).append(s)
+    if ensembles is None:
+        ensembles = stack_ensembles(results, settings, rng, seed)
     frames = []
-    for variable in sorted(by_variable):
-        series_list, notes = _on_common_steps(by_variable[variable])
-        for note in notes:
-            warnings.warn(f"stack of {variable}: {note}", UserWarning, stacklevel=2)
-        grid = _common_grid(series_list)
-        window = settings.stack_window or _overlap(series_list)
-        n_members = max(s.values.shape[1] for s in series_list)
-        aligned = []
-        for s in series_list:
-            values = s.values
-            if values.shape[1] != n_members:
-                values = values[:, rng.integers(0, values.shape[1], n_members)]
-            standard = standardise_over_window(s.age_cal_bp, values, window, settings.stack_method)
-            aligned.append(_on_grid(s, grid, standard))
-        composite, n_records = composite_members(aligned)
-        bands = ensemble_bands(composite, settings.min_member_share)
-        frame = {"age_cal_bp": grid, "variable": variable, "method": settings.stack_method}
+    for variable, stack in ensembles.items():
+        bands = ensemble_bands(stack.values, settings.min_member_share)
+        frame = {"age_cal_bp": stack.age_cal_bp, "variable": variable, "method": settings.stack_method}
         for level in BAND_LEVELS:
             frame[f"value_{band_name(level)}"] = bands[band_name(level)]
-        frame["n_records"] = n_records.astype(np.int64)
-        frame["stack_young_cal_bp"] = window[0]
-        frame["stack_old_cal_bp"] = window[1]
+        frame["n_records"] = stack.n_records.astype(np.int64)
+        frame["stack_young_cal_bp"] = stack.window[0]
+        frame["stack_old_cal_bp"] = stack.window[1]
         frames.append(pd.DataFrame(frame))
     if not frames:
         return pd.DataFrame(columns=["age_cal_bp", "variable", "method", "value_median",
