@@ -212,7 +212,11 @@ def settings_from_mapping(cls: type[T], mapping: Mapping[str, Any] | None, where
     rules = {f.name: f.metadata["rule"] for f in fields(cls) if "rule" in f.metadata}
     problems: list[Problem] = []
     values: dict[str, Any] = {}
+    retired = getattr(cls, "RETIRED_KEYS", {})
     for key, value in dict(mapping or {}).items():
+        if key in retired and key not in rules:
+            problems.append(Problem(where, f"unknown key '{key}': it was removed", retired[key], column=key))
+            continue
         if key not in rules:
             near = did_you_mean(key, rules)
             problems.append(Problem(where, f"unknown key '{key}'",
@@ -261,6 +265,9 @@ class DeclaredSection:
     """
 
     SECTION: ClassVar[str] = ""
+    #: Keys of earlier versions that were removed -> what to do instead (the message a
+    #: config still using one gets).
+    RETIRED_KEYS: ClassVar[dict[str, str]] = {}
 
     @classmethod
     def cross_check(cls, values: dict, where: str) -> list[Problem]:

@@ -106,7 +106,8 @@ def robust_scale(work: np.ndarray, observed: np.ndarray) -> np.ndarray:
 
 
 def excursion_scan(work: np.ndarray, observed: np.ndarray, max_points: int, a: float = 0.0,
-                   min_points: int = MIN_BLOCK_POINTS, support: int = 0) -> ScanProfile:
+                   min_points: int = MIN_BLOCK_POINTS, support: int = 0,
+                   scale: np.ndarray | None = None) -> ScanProfile:
     """Scan every block (start, length) of every column for a departure from zero.
 
     Parameters
@@ -124,6 +125,8 @@ def excursion_scan(work: np.ndarray, observed: np.ndarray, max_points: int, a: f
     support : int
         Points of record a block needs before and after it (a departure at the record's end
         has no return to show, nor a level before it): blocks closer to an end score -inf.
+    scale : ndarray (M,), optional
+        Noise scale of each column; default :func:`robust_scale` of the column.
 
     Returns
     -------
@@ -131,7 +134,7 @@ def excursion_scan(work: np.ndarray, observed: np.ndarray, max_points: int, a: f
     """
     work = np.asarray(work, dtype=float)
     n_t, n_m = work.shape
-    scale = robust_scale(work, observed)
+    scale = robust_scale(work, observed) if scale is None else np.asarray(scale, dtype=float)
     values = np.where(observed, work, 0.0) / scale
     c_x = np.concatenate([np.zeros((1, n_m)), np.cumsum(values, axis=0)])
     c_n = np.concatenate([np.zeros((1, n_m), dtype=np.int64),

@@ -19,9 +19,11 @@ class EventSettings(DeclaredSection):
     """How abrupt events are detected on every ensemble member (one attribute per key).
 
     ``background_yr``: width of the running median removed from each member before the
-    change-point search, so that slow climate change is not cut into steps; 0 removes a
-    straight line instead; the red-noise surrogates get the same treatment, and changes slower
-    than about half this width are not sought. ``max_excursion_yr``: a departure followed by a
+    excursion search, so that slow climate change is not taken for an excursion; 0 removes a
+    straight line instead; the red-noise surrogates get the same treatment. Shifts are sought
+    on the series itself, comparing the ``background_yr / 2`` before each point with the
+    ``background_yr / 2`` after it (:mod:`proxies.events.mosum`); changes slower than that are
+    not sought. ``max_excursion_yr``: a departure followed by a
     return whose middle segment lasts at most this long is one event of kind ``excursion``
     (sought by a scan over every block of two points up to this length,
     :mod:`proxies.events.scan`); other change points are events of kind ``shift``. ``alpha``
@@ -31,6 +33,10 @@ class EventSettings(DeclaredSection):
     """
 
     SECTION: ClassVar[str] = "events"
+    RETIRED_KEYS: ClassVar[dict[str, str]] = {
+        "background_keeps_changes": "delete it: lasting shifts are now sought on the series itself "
+                                    "(moving-sum two-sample statistic over background_yr / 2 on "
+                                    "each side), so the background no longer swallows them"}
 
     enabled: bool = setting(True, "run detection at all")
     edge_support_points: int = setting(5, "grid points of record an event needs beyond it on each "
@@ -38,11 +44,9 @@ class EventSettings(DeclaredSection):
                                        "before and after it); nearer a record's end nothing is sought",
                                        low=1)
     background_yr: float = setting(2000.0, "width of the running-median background removed before "
-                                   "the search [yr]; 0 removes a straight line", low=0.0)
-    background_keeps_changes: int = setting(0, "most prominent lasting changes (steps fitted jointly "
-                                            "with a line) kept out of the running-median background "
-                                            "and out of the null's persistence estimate, so that a "
-                                            "step is not absorbed; 0 keeps none", low=0)
+                                   "the excursion search, and twice the window on each side of "
+                                   "a shift [yr]; 0 removes a straight line (shift windows: a "
+                                   "quarter of the record)", low=0.0)
     max_excursion_yr: float = setting(600.0, "longest departure-and-return counted as one "
                                       "excursion [yr]", low=0.0, low_open=True)
     alpha: float = setting(0.05, "significance level against AR(1) red noise", low=0.0, high=0.5,

@@ -4,10 +4,11 @@ Per variable of a reconstruction, oldest first:
 
 1. each member's empty grid cells are filled by linear interpolation and its slow background
    (running median over ``background_yr``) is removed;
-2. shift candidates come from change points in mean found in every member by exact optimal
-   partitioning with a BIC-type penalty (Killick, Fearnhead & Eckley 2012), fitted to
-   observed cells only; excursion candidates from the scan statistic of every block of at
-   most ``max_excursion_yr`` (:mod:`proxies.events.scan`, :mod:`proxies.events.candidates`);
+2. shift candidates come from the moving-sum two-sample statistic on each member's series
+   itself (windows of ``background_yr / 2`` on each side, :mod:`proxies.events.mosum`), so
+   that the background cannot absorb a lasting step; excursion candidates from the scan
+   statistic of every block of at most ``max_excursion_yr`` on the background-removed series
+   (:mod:`proxies.events.scan`, :mod:`proxies.events.candidates`);
 3. both are tested against AR(1) red noise whose persistence is estimated from the members
    with their most prominent excursion left out (Mudelsee 2002) and matched by simulation
    (:mod:`proxies.events.significance`): a member's p-value is that of the largest statistic
@@ -20,9 +21,12 @@ Per variable of a reconstruction, oldest first:
    members is not reported.
 
 Whether an event exists (``p_value``, ``significant``) is decided once, on the ensemble as a
-whole: the ensemble-median series (cells where at least half of the members have a value) is
-searched by the same detector against its own red-noise null (persistence estimated from it,
-surrogates treated alike), and the event's ``p_value`` is that series' whole-record,
+whole. Excursions: the ensemble-median series (cells where at least half of the members have
+a value) is searched by the same detector against its own red-noise null (persistence
+estimated from it, surrogates treated alike). Shifts: the members' standardised mean is
+searched against the members' null (:func:`proxies.events.search.mean_search`: the median series, smoothed by the
+age errors, looked far more persistent than its climate, which hid lasting steps). The
+event's ``p_value`` is that series' whole-record,
 kind-adjusted p-value of its best candidate of the event's kind and direction inside the
 event's age range (change times of its members +- ``cluster_gap_yr / 2``); it is
 ``significant`` when below ``alpha``. This is the standard single-series test applied to the
@@ -51,18 +55,19 @@ and end of) a reported event.
 
 from __future__ import annotations
 
-import warnings
 from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
 
-from proxies.events.candidates import EXCURSION, KIND_NAMES, Candidates, detect_candidates
+from proxies.events.candidates import EXCURSION, KIND_NAMES, Candidates
 from proxies.events.ramp import fit_ramps
 from proxies.events.scan import ScanProfile
+from proxies.events.search import Search as _Search
+from proxies.events.search import central_search as _central_search
+from proxies.events.search import search_members as _search
 from proxies.events.settings import EventSettings
-from proxies.events.significance import (adjusted_p_values, local_null, local_p_values, matched_null_tau,
-                                         monte_carlo_p_values, null_maxima, prepare_series)
+from proxies.events.significance import adjusted_p_values, local_null, local_p_values
 from proxies.reconstruction.grid import fill_gaps
 
 __all__ = ["EventResult", "detect_core_events", "detect_series_events", "EVENT_COLUMNS", "ONSET_COLUMNS"]
@@ -190,37 +195,6 @@ def _member_event_p(kind: int, sign: float, young: float, old: float, cands: Can
     member_p = np.ones(n_members)
     np.minimum.at(member_p, cands.member[match], p[match])
     return member_p
-
-
-@dataclass(frozen=True)
-class _Search:
-    """One searched ensemble (members, or the ensemble-median series): its candidates,
-    kind-adjusted p-values, scan profile and red-noise null."""
-
-    cands: Candidates
-    p: np.ndarray
-    profile: ScanProfile
-    null: dict
-    null_profile: ScanProfile
-    tau_steps: float
-
-
-def _search(x: np.ndarray, observed: np.ndarray, background: int, max_exc: int, settings: EventSettings,
-            rng: np.random.Generator) -> _Search:
-    """Prepare, estimate the null persistence, detect candidates and calibrate them."""
-    keep = settings.background_keeps_changes
-    work = prepare_series(x, observed, background, keep)
-    # Persistence from each series' own (unevenly spaced) non-empty cells, its most prominent
-    # excursion left out (Mudelsee 2002), bias-corrected by simulation so that the null
-    # matches the data's treatment.
-    tau_steps, _ = matched_null_tau(work, observed, background, rng, mask_points=max_exc, keep_steps=keep)
-    persistence = float(np.exp(-1.0 / tau_steps)) if tau_steps > 0 else 0.0
-    support = settings.edge_support_points
-    cands, profile = detect_candidates(work, max_exc, support, observed, persistence, return_profile=True)
-    null, null_profile = null_maxima(x.shape[0], tau_steps, settings.n_surrogates, max_exc, support, rng,
-                                     observed=observed, background_points=background, return_profile=True,
-                                     keep_steps=keep)
-    return _Search(cands, monte_carlo_p_values(cands, null), profile, null, null_profile, tau_steps)
 
 
 def _local_detections(sign: float, young: float, old: float, x: np.ndarray, ages_fwd: np.ndarray,
@@ -403,16 +377,7 @@ def detect_series_events(age_cal_bp: np.ndarray, values: np.ndarray, settings: E
     max_exc = max(int(np.floor(settings.max_excursion_yr / step)), 2)
     members = _search(x, observed, background, max_exc, settings, rng)
     tau_yr = members.tau_steps * step
-    # The ensemble-median series: cells where at least half of the members have a value.
-    share = observed.mean(axis=1)
-    central = None
-    if np.sum(share >= 0.5) >= 3:
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore", RuntimeWarning)  # all-NaN cells stay NaN
-            med = np.nanmedian(np.where(observed, x, np.nan), axis=1)
-        med_observed = (share >= 0.5)[:, None]
-        central = _search(fill_gaps(np.where(med_observed, med[:, None], np.nan)), med_observed,
-                          background, max_exc, settings, rng)
+    central = _central_search(x, observed, members, background, max_exc, settings, rng)
     det = _member_detections(x, ages_fwd, members.cands, members.p, settings)
     rows, spans, det, elsewhere = _events_from_detections(det, x, ages_fwd, members, central, max_exc, settings)
     events = pd.DataFrame(rows)
