@@ -20,7 +20,7 @@ import datetime as _dt
 import pathlib
 import queue
 from dataclasses import dataclass, field
-from typing import Any
+from typing import Any, Callable
 
 from prefect import flow
 
@@ -31,7 +31,8 @@ from pipelines.flows.stage_table import (CORE_STAGES, PUBLISH_STAGES, SCIENCE_ST
 from pipelines.flows.status import RECONSTRUCTED, finished_status
 from pipelines.flows.store import WorkStore
 
-__all__ = ["archive_flow", "core_flow", "CoreTrack", "register_observer", "unregister_observer"]
+__all__ = ["archive_flow", "core_flow", "collect_run", "CoreTrack", "register_observer",
+           "unregister_observer"]
 
 #: on Dask, up to this many cores' science stages go to a worker as one task: each task
 #: run costs orchestration CPU in the flow process and the Prefect server (~0.1-0.2 s,
@@ -425,44 +426,57 @@ def archive_flow(plan_id: str, run_dir: str, cache_dir: str, recompute: bool = F
     observer = _OBSERVERS.get(observer_id or "", _Silent())
     store = WorkStore(cache_dir)
     driver = _Driver(plan, run_dir, store, recompute, observer, tuple(inline_stages), chain)
+    return collect_run(driver, _run_level_stage)
+
+
+def _run_level_stage(driver: _Driver, stage: str, entries: dict) -> Any:
+    """A run-level stage not found in the work store, computed: the stack as a task of the
+    flow, the archive events inline (light work on small tables). Returns its result, or the
+    exception it failed with."""
+    if stage == "stack":
+        future = tasks.STAGE_TASKS[stage].submit(plan=driver.plan, label="all-cores", entries=entries,
+                                                 store=driver.store, recompute=driver.recompute)
+        return future.result(raise_on_failure=False)
+    try:
+        return call_stage(stage, driver.plan, entries, driver.store, driver.recompute)
+    except stages.StageSkipped as skipped:
+        return {"skipped": str(skipped)}
+    except Exception as error:  # noqa: BLE001 - the per-core outputs stay valid
+        return RuntimeError(stages.problem_text(error))
+
+
+def collect_run(driver: _Driver, compute: Callable[[_Driver, str, dict], Any]) -> dict:
+    """Run ``driver`` to the end, then the run-level stages (stack, archive events), and
+    return the flow's result (see :func:`archive_flow`). A run-level stage found in the work
+    store is taken from it; ``compute(driver, stage, entries)`` gives any other."""
+    plan, store, recompute = driver.plan, driver.store, driver.recompute
+
+    notes: list[str] = []
+
+    def run_level(stage: str, entries: dict) -> dict | None:
+        """The stage's entry, or ``None`` with a note when it failed or was skipped."""
+        found = None if recompute else probe_stage(stage, plan, entries, store)
+        result = found if found is not None else compute(driver, stage, entries)
+        if isinstance(result, BaseException):
+            notes.append(f"{stage.replace('_', ' ')} failed: {result}")
+            return None
+        if "skipped" in result:
+            notes.append(result["skipped"])
+            return None
+        return result
+
     tracks = driver.run()
-    notes = [f"training set {n}: {m}" for n, m in sorted(driver.training_failed.items())]
+    notes += [f"training set {n}: {m}" for n, m in sorted(driver.training_failed.items())]
     reconstructions = {t.name: t.entries["reconstruction"] for t in tracks
                        if t.status in RECONSTRUCTED and "reconstruction" in t.entries}
-    stack = None
-    if reconstructions:
-        entries = {"reconstructions": reconstructions}
-        result = None if recompute else probe_stage("stack", plan, entries, store)
-        if result is None:
-            future = tasks.STAGE_TASKS["stack"].submit(plan=plan, label="all-cores", entries=entries,
-                                                       store=store, recompute=recompute)
-            result = future.result(raise_on_failure=False)
-        if isinstance(result, BaseException):
-            notes.append(f"stack failed: {result}")
-        elif "skipped" in result:
-            notes.append(result["skipped"])
-        else:
-            stack = result
-    archive_events = _archive_events(plan, tracks, store, recompute, notes)
+    stack = run_level("stack", {"reconstructions": reconstructions}) if reconstructions else None
+    events = {t.name: t.entries["events"] for t in tracks if "events" in t.entries}
+    archive_events = run_level("archive_events", {"all_events": events}) if events else None
     timings = [{"core_id": t.name, "stage": s, "seconds": t.seconds[s], "reused": t.cached.get(s, False)}
                for t in tracks for s in ("series", *CORE_STAGES, *PUBLISH_STAGES) if s in t.seconds]
     return {"cores": [t.row() for t in tracks], "timings": timings, "training": driver.training,
             "stack": stack, "archive_events": archive_events, "notes": notes,
             "known_hashes": driver.known_hashes, "series": sorted(driver.series)}
-
-
-def _archive_events(plan: RunPlan, tracks, store: WorkStore, recompute: bool, notes: list[str]) -> dict | None:
-    """The run-level events tables (inline: light work on small tables)."""
-    events = {t.name: t.entries["events"] for t in tracks if "events" in t.entries}
-    if not events:
-        return None
-    try:
-        return call_stage("archive_events", plan, {"all_events": events}, store, recompute)
-    except stages.StageSkipped as skipped:
-        notes.append(str(skipped))
-    except Exception as error:  # noqa: BLE001 - the per-core outputs stay valid
-        notes.append(f"archive events failed: {stages.problem_text(error)}")
-    return None
 
 
 @flow(name="downcore-core", validate_parameters=False, persist_result=False, log_prints=False)

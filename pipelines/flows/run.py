@@ -109,14 +109,21 @@ def _write_run_tables(run_dir: pathlib.Path, result: dict) -> None:
             atomic_copy(result["archive_events"]["paths"][name], run_dir / name)
 
 
-def _write_report(run_dir: pathlib.Path, notes: list[str]) -> None:
-    from pipelines.report import write_exports, write_run_report
+def _report_helper(report: bool) -> Any:
+    """A helper process for the report, started before the flow so that its imports overlap
+    the science (see :mod:`pipelines.report.drawing`); ``None`` without a report."""
+    if not report:
+        return None
+    from pipelines.report.drawing import ReportHelper
 
-    for name, writer in (("exports", write_exports), ("report", write_run_report)):
-        try:
-            writer(run_dir)
-        except Exception as error:  # noqa: BLE001 - the science outputs stay valid
-            notes.append(f"{name} not written: {type(error).__name__}: {error}")
+    return ReportHelper.start_if_useful()
+
+
+def _write_report(run_dir: pathlib.Path, notes: list[str], helper: Any = None) -> None:
+    """The report and the exports (a failure of either is a note: the science outputs stay valid)."""
+    from pipelines.report import write_report_and_exports
+
+    notes.extend(write_report_and_exports(run_dir, helper=helper))
 
 
 def _streams(result: dict) -> list[str]:
@@ -187,34 +194,84 @@ def execute_run(config_path: str | os.PathLike[str], out_dir: str | os.PathLike[
         release_run_folder(run_dir, finished=(run_dir / "manifest.json").is_file())
 
 
-def _run_into(run_dir: pathlib.Path, plan: RunPlan, inputs: list, cache: pathlib.Path, *, choice: ExecutorChoice,
-              recompute: bool, resume: bool, progress: Any, report: bool, local_server: Any,
-              started: tuple[float, str]) -> RunOutcome:
-    """The run itself, in a run folder whose lock this process holds."""
+class _DrawWhenPublished:
+    """A progress observer that also has the report helper draw each core's figures as soon
+    as the core's folder is published (the other cores' science still running)."""
+
+    def __init__(self, inner: Any, helper: Any, run_dir: pathlib.Path):
+        self.inner, self.helper, self.run_dir = inner, helper, run_dir
+
+    def started(self, total: int) -> None:
+        if self.inner is not None:
+            self.inner.started(total)
+
+    def stage(self, label: str, stage: str) -> None:
+        if self.inner is not None:
+            self.inner.stage(label, stage)
+
+    def finished(self, track: Any) -> None:
+        if self.inner is not None:
+            self.inner.finished(track)
+        if (self.run_dir / track.name).is_dir():
+            self.helper.draw_core(self.run_dir, track.name)  # never raises: a dead helper is skipped
+
+
+def _orchestrated(run_dir: pathlib.Path, plan: RunPlan, cache: pathlib.Path, choice: ExecutorChoice,
+                  recompute: bool, progress: Any, local_server: Any, helper: Any = None) -> dict:
+    """The archive flow's result: every stage of the run through Prefect."""
     from pipelines.flows.archive import (archive_flow, register_observer, register_plan, unregister_observer,
                                          unregister_plan)
 
-    started, started_utc = started
     runner = task_runner_for(choice, cache / "dask-scratch")
-    observer_id = register_observer(progress) if progress is not None else None
+    observer = _DrawWhenPublished(progress, helper, run_dir) if helper is not None else progress
+    observer_id = register_observer(observer) if observer is not None else None
     plan_id = register_plan(plan)
     try:
         if local_server is not None and progress is not None:
             progress.phase("starting the Prefect server")
         api_url = local_server.wait_ready() if local_server is not None else None
         with prefect_run_settings(choice, api_url=api_url):
-            result = archive_flow.with_options(task_runner=runner)(
+            return archive_flow.with_options(task_runner=runner)(
                 plan_id=plan_id, run_dir=str(run_dir), cache_dir=str(cache), recompute=recompute,
                 observer_id=observer_id, inline_stages=choice.inline_stages(),
                 chain=choice.chain_core_stages())
-    except BaseException:
-        if progress is not None:
-            progress.close()
-        raise
     finally:
         unregister_plan(plan_id)
         if observer_id:
             unregister_observer(observer_id)
+
+
+def _run_into(run_dir: pathlib.Path, plan: RunPlan, inputs: list, cache: pathlib.Path, *, choice: ExecutorChoice,
+              recompute: bool, resume: bool, progress: Any, report: bool, local_server: Any,
+              started: tuple[float, str]) -> RunOutcome:
+    """The run itself, in a run folder whose lock this process holds."""
+    helper = _report_helper(report)
+    try:
+        return _report_and_manifest(run_dir, plan, inputs, cache, choice=choice, recompute=recompute, resume=resume,
+                                    progress=progress, report=report, local_server=local_server,
+                                    started=started, helper=helper)
+    finally:
+        if helper is not None:
+            helper.close()
+
+
+def _report_and_manifest(run_dir: pathlib.Path, plan: RunPlan, inputs: list, cache: pathlib.Path, *,
+                         choice: ExecutorChoice, recompute: bool, resume: bool, progress: Any, report: bool,
+                         local_server: Any, started: tuple[float, str], helper: Any) -> RunOutcome:
+    """The run's work (from the store, or through the flow), its tables, report and manifest."""
+    from pipelines.flows.assemble import assemble_from_store
+
+    started, started_utc = started
+    try:
+        result = None if recompute else assemble_from_store(plan, str(run_dir), str(cache), progress)
+        if result is not None and local_server is not None:
+            local_server.stop()  # spawned in the background, never waited for: nothing to orchestrate
+        if result is None:
+            result = _orchestrated(run_dir, plan, cache, choice, recompute, progress, local_server, helper)
+    except BaseException:
+        if progress is not None:
+            progress.close()
+        raise
     if progress is not None and not report:
         progress.close()
     notes = list(result["notes"])
@@ -239,7 +296,7 @@ def _run_into(run_dir: pathlib.Path, plan: RunPlan, inputs: list, cache: pathlib
         try:
             if progress is not None:
                 progress.phase("writing the report and exports")
-            _write_report(run_dir, notes)
+            _write_report(run_dir, notes, helper)
         finally:
             if progress is not None:
                 progress.close()

@@ -11,14 +11,21 @@ Both read only the run folder, so they can be re-run on any finished run
 
 from __future__ import annotations
 
-__all__ = ["write_run_report", "write_exports"]
+__all__ = ["write_run_report", "write_exports", "write_report_and_exports"]
 
 
-def write_run_report(run_dir, png: bool = False):
+def write_run_report(run_dir, png: bool = False, helpers: int | None = None, helper=None):
     """See :func:`pipelines.report.build.write_run_report`."""
     from pipelines.report.build import write_run_report as _write
 
-    return _write(run_dir, png=png)
+    return _write(run_dir, png=png, helpers=helpers, helper=helper)
+
+
+def write_report_and_exports(run_dir, helper=None) -> list[str]:
+    """See :func:`pipelines.report.build.write_report_and_exports`."""
+    from pipelines.report.build import write_report_and_exports as _write
+
+    return _write(run_dir, helper=helper)
 
 
 def write_exports(run_dir, csv: bool = True, unreadable: list | None = None):

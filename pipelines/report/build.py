@@ -16,6 +16,7 @@ import pandas as pd
 
 from pipelines.report import html as H
 from pipelines.report import style
+from pipelines.report.drawing import DrawnFigures, FigureClaims, ReportHelper, helpers_wanted
 from pipelines.report.figures_calibration import (analogue_figure, cv_scatter_figure,
                                                   cv_statistics, training_sets_of)
 from pipelines.report.figures_chronology import (NEGLIGIBLE_PROBABILITY, age_depth_figure,
@@ -24,28 +25,35 @@ from pipelines.report.figures_chronology import (NEGLIGIBLE_PROBABILITY, age_dep
                                                  outlier_figure)
 from pipelines.report.figures_events import event_figure, event_variables, lead_lag_figure
 from pipelines.report.figures_reconstruction import reconstruction_figure, stack_figure
-from pipelines.report.rundata import CoreData, RunData, downcore_version, read_run, reconstruction_series
+from pipelines.report.rundata import (CoreData, RunData, downcore_version, read_core, read_run,
+                                      reconstruction_series)
 from pipelines.runfolder import atomic_write_text
 
-__all__ = ["write_run_report", "REPORT_NAME"]
+__all__ = ["write_run_report", "write_report_and_exports", "draw_claimed", "REPORT_NAME"]
 
 REPORT_NAME = "report.html"
 
 
 class _Figures:
-    """Numbers, saves and renders the figures of one report."""
+    """Numbers, saves and renders the figures of one report (``drawn``: figures drawn
+    beforehand, by key, see :mod:`pipelines.report.drawing`; any other is drawn here)."""
 
-    def __init__(self, run_dir: pathlib.Path, png: bool = False):
+    def __init__(self, run_dir: pathlib.Path, png: bool = False,
+                 drawn: dict[str, style.SavedFigure | None] | None = None):
         self.run_dir = run_dir
         self.png = png
+        self.drawn = drawn or {}
         self.count = 0
         self.written: set[str] = set()
 
     def add(self, make: Callable[[], object], key: str, title: str, caption: str) -> str:
-        fig = make()
-        if fig is None:
+        if key in self.drawn:
+            saved = self.drawn[key]
+        else:
+            fig = make()
+            saved = None if fig is None else style.save_figure(fig, self.run_dir, key, title, caption, png=self.png)
+        if saved is None:
             return ""
-        saved = style.save_figure(fig, self.run_dir, key, title, caption, png=self.png)
         self.written.update(pathlib.Path(f).name for f in (saved.png, saved.svg) if f)
         self.count += 1
         return H.figure_html(saved, self.count)
@@ -57,6 +65,17 @@ class _Figures:
         for path in folder.iterdir():
             if path.suffix in (".png", ".svg") and path.name not in self.written:
                 path.unlink()
+
+
+class _Claiming:
+    """Stands in for :class:`_Figures` in a drawing pass: draws the figures it can claim."""
+
+    def __init__(self, figures: DrawnFigures):
+        self.figures = figures
+
+    def add(self, make: Callable[[], object], key: str, title: str, caption: str) -> str:
+        self.figures.draw(make, key, title, caption)
+        return ""
 
 
 def _manifest_items(run: RunData) -> list[tuple[str, object]]:
@@ -313,7 +332,85 @@ def _archive_events_section(run: RunData, figs: _Figures) -> str:
     return H.section("archive-events", "Events across the archive", body)
 
 
-def write_run_report(run_dir: str | pathlib.Path, png: bool = False) -> pathlib.Path:
+def _sections(run: RunData, figs) -> tuple[str, str, list[str]]:
+    """The composite, archive-events and core sections (figures through ``figs``)."""
+    return _stack_section(run, figs), _archive_events_section(run, figs), [
+        _core_section(core, run, figs) for core in run.cores]
+
+
+def draw_claimed(run_dir: pathlib.Path, png: bool, claims: FigureClaims) -> dict[str, style.SavedFigure | None]:
+    """Draw every figure of the report nobody has claimed yet (see :mod:`pipelines.report.drawing`)."""
+    run = read_run(run_dir)
+    drawer = _Claiming(DrawnFigures(run.folder, png, claims))
+    with style.report_style():
+        _sections(run, drawer)
+    return drawer.figures.drawn
+
+
+def draw_core_claimed(run_dir: pathlib.Path, core_id: str, claims: FigureClaims) -> dict[str, style.SavedFigure | None]:
+    """Draw the figures of one published core of a run still in progress (those that need only
+    the core's own tables; the training sets' figures wait for the report), claiming each."""
+    core = read_core(run_dir, core_id)
+    if not core.tables:
+        return {}
+    run = RunData(folder=pathlib.Path(run_dir), manifest={}, summary=None, stack=None, cores=[core], training=[])
+    drawer = _Claiming(DrawnFigures(run.folder, False, claims))
+    with style.report_style():
+        _core_section(core, run, drawer)
+    return drawer.figures.drawn
+
+
+def _drawn_in_parallel(run: RunData, png: bool, helper: ReportHelper | None,
+                       exports: bool) -> tuple[dict[str, style.SavedFigure | None], bool, str | None]:
+    """The figures drawn by this process and ``helper`` (none: nothing drawn yet), whether the
+    helper wrote the exports (asked with ``exports``) and the exports' failure, if any."""
+    if helper is None:
+        return {}, False, None
+    early = not png and getattr(helper, "claims", None) is not None  # a run's helper (no PNG)
+    claims = helper.claims if early else FigureClaims.create()
+    drawn: dict[str, style.SavedFigure | None] = helper.early_figures() if early else {}
+    try:
+        future = helper.submit(run.folder, png, claims, exports)
+        mine = DrawnFigures(run.folder, png, claims)
+        with style.report_style():
+            _sections(run, _Claiming(mine))
+        drawn.update(mine.drawn)
+        try:
+            delivered = future.result()
+        except Exception:  # noqa: BLE001 - what the helper did not deliver is done here
+            return drawn, False, None
+        drawn.update(delivered["drawn"])
+        return drawn, exports, delivered["exports"]
+    finally:
+        if not early:
+            claims.remove()
+
+
+def write_report_and_exports(run_dir: str | pathlib.Path, helper: ReportHelper | None = None) -> list[str]:
+    """The report (:func:`write_run_report`) and the exports
+    (:func:`pipelines.report.exports.write_exports`) of a run folder, the exports written by
+    ``helper`` while this process draws when one is given; returns a note for each that failed
+    (the science outputs stay valid)."""
+    notes: list[str] = []
+    try:
+        _, exported, failure = _report(run_dir, False, None, helper, exports=True)
+    except Exception as error:  # noqa: BLE001
+        notes.append(f"report not written: {type(error).__name__}: {error}")
+        exported, failure = False, None
+    if failure:
+        notes.append(f"exports not written: {failure}")
+    elif not exported:
+        from pipelines.report.exports import write_exports
+
+        try:
+            write_exports(run_dir)
+        except Exception as error:  # noqa: BLE001
+            notes.append(f"exports not written: {type(error).__name__}: {error}")
+    return notes
+
+
+def write_run_report(run_dir: str | pathlib.Path, png: bool = False, helpers: int | None = None,
+                     helper: ReportHelper | None = None) -> pathlib.Path:
     """Write ``report.html`` and ``figures/*.svg`` (and ``*.png``) for a run folder.
 
     Parameters
@@ -323,18 +420,36 @@ def write_run_report(run_dir: str | pathlib.Path, png: bool = False) -> pathlib.
         the report says what is absent.
     png : bool
         Also write a PNG copy of every figure (a second drawing of each).
+    helpers : int, optional
+        Helper processes drawing figures alongside this one (0 or 1; default
+        :func:`pipelines.report.drawing.helpers_wanted`). The bytes do not depend on it.
+    helper : ReportHelper, optional
+        A helper process started earlier (used whatever ``helpers`` says, not closed here).
 
     Returns
     -------
     pathlib.Path
         The report file.
     """
+    return _report(run_dir, png, helpers, helper, exports=False)[0]
+
+
+def _report(run_dir: str | pathlib.Path, png: bool, helpers: int | None, helper: ReportHelper | None,
+            exports: bool) -> tuple[pathlib.Path, bool, str | None]:
+    """:func:`write_run_report`, the helper asked to write the exports first when ``exports``;
+    returns the report file, whether the helper wrote the exports and their failure if any."""
     run = read_run(run_dir)
-    figs = _Figures(run.folder, png=png)
+    own = None
+    if helper is None and helpers_wanted(sum(bool(c.tables) for c in run.cores), helpers):
+        own = helper = ReportHelper.start_if_useful()
+    try:
+        drawn, exported, failure = _drawn_in_parallel(run, png, helper, exports)
+    finally:
+        if own is not None:
+            own.close()
+    figs = _Figures(run.folder, png=png, drawn=drawn)
     with style.report_style():
-        stack = _stack_section(run, figs)
-        archive_events = _archive_events_section(run, figs)
-        cores = [_core_section(core, run, figs) for core in run.cores]
+        stack, archive_events, cores = _sections(run, figs)
     figs.remove_stale()
     toc = [("summary", "Archive summary")]
     if stack:
@@ -350,4 +465,4 @@ def write_run_report(run_dir: str | pathlib.Path, png: bool = False) -> pathlib.
               f"{figs.count} figures, also saved as {'PNG and ' if png else ''}SVG in figures/.")
     text = H.page(title, subtitle, toc, _summary_section(run) + stack + archive_events + "".join(cores),
                   footer)
-    return atomic_write_text(run.folder / REPORT_NAME, text)
+    return atomic_write_text(run.folder / REPORT_NAME, text), exported, failure

@@ -24,6 +24,7 @@ from pipelines.outputs_schema import CORE_TABLES, TABLES, member_columns
 from pipelines.runfolder import IN_PROGRESS_MARKER
 
 __all__ = [
+    "read_core",
     "REQUIRED_COLUMNS",
     "CoreData",
     "RunData",
@@ -192,6 +193,21 @@ def _read_training(folder: pathlib.Path, notes: list[str]) -> list[TrainingData]
             for name in names]
 
 
+def _load_core_tables(core: CoreData, core_dir: pathlib.Path) -> None:
+    for name, required in REQUIRED_COLUMNS.items():
+        table = _load(core_dir / f"{name}.parquet", required, core.notes)
+        if table is not None:
+            core.tables[name] = table
+
+
+def read_core(run_dir: str | pathlib.Path, core_id: str) -> CoreData:
+    """The tables of one core folder of a run (even one still in progress); the summary's
+    facts (status, warnings) are not read: ``status`` is ``"unknown"``."""
+    core = CoreData(core_id=core_id, status="unknown")
+    _load_core_tables(core, pathlib.Path(run_dir) / core_id)
+    return core
+
+
 def read_run(run_dir: str | pathlib.Path) -> RunData:
     """Read a run folder.
 
@@ -233,11 +249,7 @@ def read_run(run_dir: str | pathlib.Path) -> RunData:
             cores[sub.name] = CoreData(core_id=sub.name, status="unknown",
                                        reason="not listed in summary.parquet")
     for core in cores.values():
-        core_dir = folder / core.core_id
-        for name, required in REQUIRED_COLUMNS.items():
-            table = _load(core_dir / f"{name}.parquet", required, core.notes)
-            if table is not None:
-                core.tables[name] = table
+        _load_core_tables(core, folder / core.core_id)
     return RunData(folder=folder, manifest=manifest, summary=summary, stack=stack,
                    cores=list(cores.values()), training=_read_training(folder, notes),
                    notes=notes)

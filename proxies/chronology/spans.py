@@ -62,12 +62,30 @@ def half_cell_mass(on_grid, origin: float, step: float, size: int) -> np.ndarray
 _KERNEL_CUT = 1e-15
 
 
-def _rows_by_length(kernels: np.ndarray):
-    """Kernel rows (R, J) sorted longest first, with each row's length above the cut."""
-    above = kernels >= _KERNEL_CUT
-    length = np.where(above.any(axis=1), kernels.shape[1] - np.argmax(above[:, ::-1], axis=1), 0)
+def _rows_by_length(values: np.ndarray, kernels: np.ndarray):
+    """Broadcast (..., W) values and (..., J) kernels to rows, sorted longest kernel first.
+
+    Returns the leading shape, the sorted value rows (R, W) and kernel rows (R, J), the
+    order (to undo the sort) and each sorted row's kernel length above the cut.
+    """
+    lead = np.broadcast_shapes(values.shape[:-1], kernels.shape[:-1])
+    rows_values = np.broadcast_to(values, lead + values.shape[-1:]).reshape(-1, values.shape[-1])
+    rows_kernel = np.broadcast_to(kernels, lead + kernels.shape[-1:]).reshape(-1, kernels.shape[-1])
+    above = rows_kernel >= _KERNEL_CUT
+    length = np.where(above.any(axis=1), rows_kernel.shape[1] - np.argmax(above[:, ::-1], axis=1), 0)
     order = np.argsort(-length, kind="stable")
-    return order, length[order]
+    return lead, rows_values[order], rows_kernel[order], order, length[order]
+
+
+def _live_rows(length: np.ndarray, lags: int, width: int):
+    """(lag t, rows whose kernel reaches t) for t = 0 .., rows sorted longest first."""
+    live = length.size
+    for t in range(min(lags, width)):
+        while live and length[live - 1] <= t:
+            live -= 1
+        if not live:
+            return
+        yield t, live
 
 
 def shift_with_potential(alpha: np.ndarray, kernels: np.ndarray, potential: np.ndarray, lo: int,
@@ -97,20 +115,11 @@ def shift_with_potential(alpha: np.ndarray, kernels: np.ndarray, potential: np.n
     """
     width_in, lags = alpha.shape[-1], kernels.shape[-1]
     width = min(width_in + lags - 1, size - lo)
-    lead = np.broadcast_shapes(alpha.shape[:-1], kernels.shape[:-1])
     dtype = np.result_type(alpha, kernels)
-    rows_alpha = np.broadcast_to(alpha, lead + (width_in,)).reshape(-1, width_in)
-    rows_kernel = np.broadcast_to(kernels, lead + (lags,)).reshape(-1, lags)
-    order, length = _rows_by_length(rows_kernel)
-    rows_alpha, rows_kernel = rows_alpha[order], rows_kernel[order]
+    lead, rows_alpha, rows_kernel, order, length = _rows_by_length(alpha, kernels)
     potential = potential.astype(dtype)
     out = np.zeros((order.size, width), dtype=dtype)
-    live = order.size
-    for t in range(min(lags, width)):
-        while live and length[live - 1] <= t:
-            live -= 1
-        if not live:
-            break
+    for t, live in _live_rows(length, lags, width):
         n = min(width_in, width - t)
         weight = potential[2 * lo + t: 2 * lo + t + 2 * n: 2]
         out[:live, t: t + n] += rows_alpha[:live, :n] * rows_kernel[:live, t: t + 1] * weight
@@ -125,18 +134,9 @@ def pull_with_potential(values: np.ndarray, kernels: np.ndarray, potential: np.n
     ``values`` (..., G) on the whole node grid, ``kernels`` (..., J); returns (..., G).
     """
     size, lags = values.shape[-1], kernels.shape[-1]
-    lead = np.broadcast_shapes(values.shape[:-1], kernels.shape[:-1])
-    rows_values = np.broadcast_to(values, lead + (size,)).reshape(-1, size)
-    rows_kernel = np.broadcast_to(kernels, lead + (lags,)).reshape(-1, lags)
-    order, length = _rows_by_length(rows_kernel)
-    rows_values, rows_kernel = rows_values[order], rows_kernel[order]
+    lead, rows_values, rows_kernel, order, length = _rows_by_length(values, kernels)
     out = np.zeros((order.size, size))
-    live = order.size
-    for t in range(min(lags, size)):
-        while live and length[live - 1] <= t:
-            live -= 1
-        if not live:
-            break
+    for t, live in _live_rows(length, lags, size):
         n = size - t
         out[:live, :n] += rows_kernel[:live, t: t + 1] * potential[t: t + 2 * n: 2] * rows_values[:live, t: t + n]
     result = np.empty_like(out)
