@@ -228,7 +228,7 @@ def test_demo_event_recovered(core_id, variable, min_probability):
     assert event["end_q025"] <= truth["end_cal_bp"] + 100
     # The per-member onsets behind the summary (event_onsets.parquet), one per detecting member.
     onsets = result.onsets[result.onsets["event_id"] == event["event_id"]]
-    assert list(result.onsets.columns) == ["event_id", "member", "onset_cal_bp", "amplitude", "detected"]
+    assert list(result.onsets.columns) == ["event_id", "member", "onset_cal_bp", "end_cal_bp", "amplitude", "detected"]
     # every member contributes (detecting members their detection, the others their fitted
     # change at the event's place), so the summaries are over all members
     assert len(onsets) == onsets["member"].nunique() == recon.series[variable].values.shape[1]

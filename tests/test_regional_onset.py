@@ -88,7 +88,7 @@ def test_regional_onset_range_holds_the_shared_onset():
     (binomial at 85 % coverage: P(<= 5 of 8) ~ 3 %). The ramp's onset of the composite is
     biased old (it starts with the earliest record's change): checked to lie at or before
     the midpoint."""
-    settings = dataclasses.replace(EventSettings(), background_keeps_changes=1, n_surrogates=60)
+    settings = dataclasses.replace(EventSettings(), n_surrogates=60)
     reco = ReconstructionSettings()
     onset = 1000.0 + 50.0 * 60 + 25.0
     held = found = 0

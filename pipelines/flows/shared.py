@@ -80,6 +80,7 @@ class SharedObjects:
         with self._lock:
             self._items.clear()
             self._bytes = 0
+            self.reads = 0
 
 
 #: the process's shared inputs
