@@ -124,3 +124,34 @@ def test_a_dead_helper_changes_nothing_but_the_time(tmp_path):
     finally:
         helper.close()
     assert _report_bytes(run) == alone
+
+
+def _export_bytes(run: pathlib.Path) -> dict[str, bytes]:
+    files = sorted(run.rglob("*.csv")) + [run / "reconstructions.nc"]
+    return {p.relative_to(run).as_posix(): p.read_bytes() for p in files if p.name != "timings.csv"}
+
+
+def test_forked_helper_writes_the_exports_and_the_same_report(tmp_path, monkeypatch):
+    """The report command's path: a helper forked after the run folder is read writes the
+    exports, then draws; report, figures and exports have the bytes of one process alone."""
+    run = make_run_folder(tmp_path / "run")
+    write_run_report(run, helpers=0)
+    from pipelines.report import write_exports
+
+    write_exports(run)
+    alone, exports_alone = _report_bytes(run), _export_bytes(run)
+    for path in run.rglob("*.csv"):
+        if path.name != "timings.csv":
+            path.unlink()
+    (run / "reconstructions.nc").unlink()
+    forked = []
+    monkeypatch.setattr(build, "ForkedHelper", lambda r: forked.append(r) or drawing.ForkedHelper(r))
+    monkeypatch.setenv(drawing.HELPERS_ENV, "1")
+    assert drawing.fork_is_safe()
+    unreadable: list[str] = []
+    report, written = build.write_report_with_exports(run, unreadable=unreadable)
+    assert forked and report == run / "report.html" and not unreadable
+    assert _report_bytes(run) == alone and _export_bytes(run) == exports_alone
+    from pipelines.report.csv import parquet_tables
+
+    assert set(written) == {p.with_suffix(".csv") for p in parquet_tables(run)} | {run / "reconstructions.nc"}
