@@ -25,6 +25,7 @@ matplotlib.use("Agg", force=True)
 import matplotlib.pyplot as plt  # noqa: E402
 from matplotlib.figure import Figure  # noqa: E402
 
+from pipelines.report.layout import place_panels  # noqa: E402
 from pipelines.runfolder import atomic_write_bytes  # noqa: E402
 
 __all__ = ["INK", "SLATE", "SAND", "CLAY", "MOSS", "FOG", "PAPER", "BAND_DARK", "BAND_LIGHT",
@@ -83,6 +84,8 @@ _RC = {
     "svg.hashsalt": "downcore-report",
     "svg.fonttype": "none",
     "path.simplify": True,
+    "figure.autolayout": False,
+    "figure.constrained_layout.use": False,
 }
 
 #: PNG resolution [dots per inch]
@@ -203,12 +206,16 @@ def save_figure(fig: Figure, run_dir: pathlib.Path, key: str, title: str,
     """
     safe = re.sub(r"[^A-Za-z0-9_.-]+", "_", key)
     rasterise_dense(fig)
+    if place_panels(fig):
+        # the panels are placed: no layout engine, so saving draws the figure once (with one,
+        # Matplotlib draws it a first time to lay it out)
+        fig.set_layout_engine(None)
     svg = _svg_text(fig)
     png_name = None
     if png:
-        # the layout is settled by the first save; freezing it saves a second constrained-layout
-        # pass (the slowest part of drawing) and keeps the PNG identical in layout to the SVG
-        fig.set_layout_engine("none")
+        # the layout is settled by the first save; freezing it saves a second layout pass
+        # and keeps the PNG identical in layout to the SVG
+        fig.set_layout_engine(None)
         png_name = f"figures/{safe}.png"
         atomic_write_bytes(run_dir / png_name, _png_bytes(fig))
     plt.close(fig)
