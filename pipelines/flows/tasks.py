@@ -21,7 +21,7 @@ from typing import Any, Callable
 from prefect import task
 from prefect.cache_policies import NO_CACHE
 
-from pipelines.flows import stages
+from pipelines.flows import science_pool, stages
 from pipelines.flows.plan import RunPlan
 from pipelines.flows.stage_table import SCIENCE_STAGES, STAGES, call_stage
 from pipelines.flows.store import WorkStore
@@ -44,15 +44,31 @@ def _guarded(runner: Callable[..., dict], *args: Any) -> dict:
         return runner(*args)
     except stages.StageSkipped as skipped:
         return {"skipped": str(skipped), "seconds": round(time.perf_counter() - start, 4)}
+    except StageFailed:
+        raise
     except Exception as error:  # noqa: BLE001 - any failure is isolated to its core
         raise StageFailed(stages.problem_text(error)) from None
 
 
+def _call_in_worker(name: str, plan: RunPlan, entries: dict, store: WorkStore, recompute: bool) -> dict:
+    """:func:`call_stage` in a worker process of the run's science pool (this thread waits)."""
+    outcome, value = science_pool.active_pool().run_stage(name, plan, entries, store, recompute)
+    if outcome == "skipped":
+        raise stages.StageSkipped(value)
+    if outcome == "failed":
+        raise StageFailed(value)
+    return value
+
+
 def _stage_task(name: str):
-    """The Prefect task of stage ``name`` (task runs are named ``<stage>[<core or set>]``)."""
+    """The Prefect task of stage ``name`` (task runs are named ``<stage>[<core or set>]``); its
+    work runs in a worker process when the run has a science pool
+    (:mod:`pipelines.flows.science_pool`) and the stage is one of its :data:`POOL_STAGES`."""
+    in_pool = name in science_pool.POOL_STAGES
 
     def run(plan: RunPlan, label: str, entries: dict, store: WorkStore, recompute: bool = False) -> dict:
-        return _guarded(call_stage, name, plan, entries, store, recompute)
+        call = _call_in_worker if in_pool and science_pool.active_pool() is not None else call_stage
+        return _guarded(call, name, plan, entries, store, recompute)
 
     run.__name__ = run.__qualname__ = f"{name}_task"
     run.__doc__ = f"Stage {name!r} of :data:`pipelines.flows.stage_table.STAGES`."
