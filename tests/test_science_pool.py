@@ -35,8 +35,6 @@ def _parquet(run: pathlib.Path) -> dict[str, bytes]:
 @pytest.fixture
 def pool_on(monkeypatch):
     monkeypatch.setenv(science_pool.PROCESSES_ENV, "2")
-    yield
-    science_pool.close_science_pool()
 
 
 def _archive_with_failing_chronology(root: pathlib.Path) -> pathlib.Path:
@@ -61,6 +59,8 @@ def test_pool_run_gives_the_same_bytes_and_failures_as_threads(tmp_path, pool_on
     pooled = execute_run(config, tmp_path / "pool", cache_dir=tmp_path / "cache-pool",
                          choice=ExecutorChoice(workers=2), report=False)
     assert SHARED.reads == 0, "with the pool, the stages read their inputs in the workers"
+    _, alive = psutil.wait_procs(_workers(), timeout=10)
+    assert alive == [], "the workers end with the run's flow"
     monkeypatch.setenv(science_pool.PROCESSES_ENV, "0")
     threads = execute_run(config, tmp_path / "threads", cache_dir=tmp_path / "cache-threads",
                           choice=ExecutorChoice(workers=2), report=False)
@@ -102,9 +102,15 @@ def test_a_call_that_kills_its_worker_twice_raises_and_the_pool_goes_on():
         pool.close()
 
 
-def _worker_pids() -> set[int]:
-    return {child.pid for child in psutil.Process().children()
-            if "multiprocessing" in " ".join(child.cmdline()) and "spawn_main" in " ".join(child.cmdline())}
+def _workers() -> list[psutil.Process]:
+    found = []
+    for child in psutil.Process().children():
+        try:
+            if "spawn_main" in " ".join(child.cmdline()):
+                found.append(child)
+        except psutil.Error:  # ended meanwhile
+            pass
+    return found
 
 
 def test_a_worker_killed_during_a_run_is_replaced_and_the_run_completes(tmp_path, pool_on):
@@ -116,9 +122,9 @@ def test_a_worker_killed_during_a_run_is_replaced_and_the_run_completes(tmp_path
     deadline = time.monotonic() + 120
     while not (tmp_path / "cache" / "chronology").is_dir() and time.monotonic() < deadline:
         time.sleep(0.05)  # the first chronology has started
-    victims = _worker_pids()
+    victims = _workers()
     assert victims, "no science worker found"
-    os.kill(sorted(victims)[0], signal.SIGKILL)
+    victims[0].kill()
     thread.join(timeout=300)
     assert not thread.is_alive()
     assert list(outcome["run"].summary["status"]) == ["ok"] * 4

@@ -125,9 +125,6 @@ def execute(config: pathlib.Path, out: pathlib.Path, *, workers, dask_address, d
                                   resume=resume, progress=RunProgress(quiet=quiet), report=report,
                                   local_server=server)
     finally:
-        from pipelines.flows.science_pool import close_science_pool
-
-        close_science_pool()
         if server is not None:
             server.stop()
     print_summary(outcome, quiet)

@@ -12,8 +12,7 @@ runner called in this process: every random draw comes from ``rng_for(run_seed, 
 core_id)`` and BLAS is pinned to one thread in every process.
 
 The pool is started when a run's flow starts, so the workers' imports (~1.5 s of CPU each)
-overlap the temporary Prefect server's start-up; it is kept for later runs of the same
-process and ended when the process ends (or by :func:`close_science_pool`).
+overlap the temporary Prefect server's start-up, and ended as soon as the flow has returned.
 
 How many workers (:func:`pool_size`): ``$DOWNCORE_SCIENCE_PROCESSES`` when set (``0``: none,
 the science runs in the tasks' threads); otherwise as many as there are CPUs, at most the
@@ -26,7 +25,6 @@ says so; the other cores go on. A worker never outlives the process that started
 
 from __future__ import annotations
 
-import atexit
 import concurrent.futures
 import contextlib
 import multiprocessing
@@ -43,15 +41,16 @@ from concurrent.futures.process import BrokenProcessPool
 from typing import Any, Iterator
 
 __all__ = ["SciencePool", "POOL_STAGES", "PROCESSES_ENV", "pool_size", "science_pool_for_run",
-           "active_pool", "close_science_pool"]
+           "active_pool"]
 
 #: environment variable: science worker processes (0 = the science runs in the tasks' threads)
 PROCESSES_ENV = "DOWNCORE_SCIENCE_PROCESSES"
 
-#: stages whose work runs in a worker process (the run-level stack and archive events, which
-#: run alone, and the publishing of a core's folder stay in the flow's process)
+#: stages whose work runs in a worker process (the stack too: the workers have its science
+#: imported; the archive events, light, and the publishing of a core's folder stay in the
+#: flow's process)
 POOL_STAGES = frozenset({"training", "series", "ingest", "chronology", "calibration", "reconstruction",
-                         "events", "samples"})
+                         "events", "samples", "stack"})
 
 #: seconds between a worker's checks that the process that started it is still alive
 PARENT_POLL_SECONDS = 0.5
@@ -245,21 +244,20 @@ class SciencePool:
             return "failed", (f"the worker process running {name} died, twice (killed by the system, or out "
                               f"of memory?); set {PROCESSES_ENV}=0 to run the science in the run's own process")
 
-    def close(self, wait: bool = True) -> None:
-        """End the workers (at once when ``wait`` is false) and remove the plan files."""
+    def close(self) -> None:
+        """End the workers at once (idle after a run; abandoned, when it was interrupted,
+        like a killed run's) and remove the plan files."""
         with self._lock:
             executor = self._executor
-        if not wait:
-            for process in list(getattr(executor, "_processes", {}).values()):
-                with contextlib.suppress(Exception):
-                    process.terminate()
-        executor.shutdown(wait=wait, cancel_futures=True)
+        processes = list((getattr(executor, "_processes", None) or {}).values())
+        executor.shutdown(wait=False, cancel_futures=True)
+        for process in processes:
+            with contextlib.suppress(Exception):
+                process.terminate()
         shutil.rmtree(self._folder, ignore_errors=True)
 
 
-_POOL: SciencePool | None = None
 _ACTIVE: SciencePool | None = None
-_POOL_LOCK = threading.Lock()
 
 
 def active_pool() -> SciencePool | None:
@@ -267,21 +265,10 @@ def active_pool() -> SciencePool | None:
     return _ACTIVE
 
 
-def _pool_of_size(size: int) -> SciencePool:
-    global _POOL
-    with _POOL_LOCK:
-        if _POOL is not None and _POOL.size != size:
-            _POOL.close()
-            _POOL = None
-        if _POOL is None:
-            _POOL = SciencePool(size)
-            atexit.register(close_science_pool)
-        return _POOL
-
-
 @contextlib.contextmanager
 def science_pool_for_run(threads: int, units: int, use: bool = True) -> Iterator[SciencePool | None]:
-    """The pool the tasks of one run use (see :func:`pool_size`), or ``None``.
+    """The pool the tasks of one run use (see :func:`pool_size`), or ``None``; its workers are
+    ended when the run's flow has returned.
 
     Parameters
     ----------
@@ -297,22 +284,9 @@ def science_pool_for_run(threads: int, units: int, use: bool = True) -> Iterator
     if size == 0:
         yield None
         return
-    pool = _pool_of_size(size)
-    _ACTIVE = pool
+    pool = _ACTIVE = SciencePool(size)
     try:
         yield pool
-    except BaseException:
-        _ACTIVE = None
-        close_science_pool(wait=False)  # interrupted: stages still running are abandoned
-        raise
     finally:
         _ACTIVE = None
-
-
-def close_science_pool(wait: bool = True) -> None:
-    """End this process's science workers (a later run starts new ones)."""
-    global _POOL
-    with _POOL_LOCK:
-        pool, _POOL = _POOL, None
-    if pool is not None:
-        pool.close(wait=wait)
+        pool.close()
