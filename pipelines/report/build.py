@@ -16,8 +16,7 @@ import pandas as pd
 
 from pipelines.report import html as H
 from pipelines.report import style
-from pipelines.report.drawing import (DrawnFigures, FigureClaims, ForkedHelper, ReportHelper, fork_is_safe,
-                                      helpers_wanted)
+from pipelines.report.drawing import DrawnFigures, FigureClaims, ReportHelper, own_helper
 from pipelines.report.figures_calibration import (analogue_figure, cv_scatter_figure,
                                                   cv_statistics, training_sets_of)
 from pipelines.report.figures_chronology import (NEGLIGIBLE_PROBABILITY, age_depth_figure,
@@ -467,7 +466,7 @@ def _report(run_dir: str | pathlib.Path, png: bool, helpers: int | None, helper,
     run = read_run(run_dir)
     own = None
     if helper is None:
-        own = helper = _own_helper(run, helpers)
+        own = helper = own_helper(run, helpers)
     try:
         drawn, exported = _drawn_in_parallel(run, png, helper, exports)
     finally:
@@ -493,12 +492,3 @@ def _report(run_dir: str | pathlib.Path, png: bool, helpers: int | None, helper,
                   footer)
     return atomic_write_text(run.folder / REPORT_NAME, text), exported
 
-
-def _own_helper(run: RunData, helpers: int | None):
-    """A helper for a report given none: forked from this process where that is safe (it
-    costs nothing to start, so any run with tables is worth it), else spawned for a run of
-    :data:`~pipelines.report.drawing.HELPER_MIN_CORES` cores or more; ``None`` when not wanted."""
-    with_tables = sum(bool(c.tables) for c in run.cores)
-    if fork_is_safe():
-        return ForkedHelper(run) if helpers_wanted(with_tables, helpers, min_cores=1) else None
-    return ReportHelper.start_if_useful() if helpers_wanted(with_tables, helpers) else None

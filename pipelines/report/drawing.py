@@ -31,7 +31,7 @@ from typing import Callable, Iterator
 from pipelines.report import style
 
 __all__ = ["FigureClaims", "DrawnFigures", "ReportHelper", "ForkedHelper", "fork_is_safe",
-           "helpers_wanted", "HELPERS_ENV", "HELPER_MIN_CORES"]
+           "helpers_wanted", "own_helper", "HELPERS_ENV", "HELPER_MIN_CORES"]
 
 #: environment variable: helper processes for drawing (0 = draw everything in this process)
 HELPERS_ENV = "DOWNCORE_REPORT_HELPERS"
@@ -256,3 +256,13 @@ class ForkedHelper:
         global _FORKED_RUN
         self.executor.shutdown(wait=True, cancel_futures=True)
         _FORKED_RUN = None
+
+
+def own_helper(run, helpers: int | None):
+    """A helper for a report given none (``run`` read already): forked from this process where
+    that is safe (it costs nothing to start, so any run with tables is worth it), else spawned
+    for a run of :data:`HELPER_MIN_CORES` cores or more; ``None`` when not wanted."""
+    with_tables = sum(bool(c.tables) for c in run.cores)
+    if fork_is_safe():
+        return ForkedHelper(run) if helpers_wanted(with_tables, helpers, min_cores=1) else None
+    return ReportHelper.start_if_useful() if helpers_wanted(with_tables, helpers) else None
