@@ -151,3 +151,79 @@ def archive_false_share(pools: dict, members: dict, alpha: float = 0.05, length_
     called = table["survives_fdr"].to_numpy(dtype=bool)
     return {"called": int(called.sum()), "false": int((called & ~is_real).sum()),
             "false_strict": int((called & ~is_strict).sum())}
+
+
+def core_onsets(ages, values, settings, rng, core_id: str = "SIM"):
+    """Events and all-member onsets of one simulated ensemble, through the core-level stage
+    (:func:`proxies.events.detect_core_events`) on a one-variable stand-in reconstruction."""
+    from types import SimpleNamespace
+
+    from proxies.events import detect_core_events
+
+    series = SimpleNamespace(age_cal_bp=ages, values=values)
+    result = detect_core_events(SimpleNamespace(core_id=core_id, series={"t": series}), settings, rng)
+    return result.events, result.onsets.assign(core_id=core_id)
+
+
+def lag_trial(seed: int, trial: int, lag_yr: float, settings, size: float = 5.0, **kwargs):
+    """Two cores sharing one lasting step, core B's ``lag_yr`` later (younger) than core A's.
+
+    Returns
+    -------
+    dict or None
+        The lead/lag row of the two cores' matched events (``lead_lag_table``), ``None`` when
+        the step is not found significantly in both cores.
+    """
+    import pandas as pd
+
+    from proxies.events.leadlag import lead_lag_table
+    from proxies.seeding import rng_for
+
+    onset_a = 1000.0 + STEP_YR * 60 + 25.0
+    found, onsets = [], []
+    for core, onset in (("A", onset_a), ("B", onset_a - lag_yr)):
+        ages, values, _ = simulated_ensemble(rng_for(seed, "lag", core, trial), kind="step", size=size,
+                                             onset=onset, **kwargs)
+        events, member_onsets = core_onsets(ages, values, settings, rng_for(seed, "lag-events", core, trial), core)
+        hit = events[events["significant"] & (events["kind"] == "shift")
+                     & (abs(events["onset_median"] - onset) <= 400)] if len(events) else events
+        if not len(hit):
+            return None
+        found.append(hit.iloc[[0]])
+        onsets.append(member_onsets[member_onsets["event_id"] == hit.iloc[0]["event_id"]])
+    table = lead_lag_table(pd.concat(found, ignore_index=True), pd.concat(onsets, ignore_index=True), 1000.0)
+    return table.iloc[0].to_dict() if len(table) else None
+
+
+def ramp_onsets(ages, values, near_age: float, settings):
+    """Member onsets [cal BP] of the change near ``near_age`` by the detection's own onset
+    estimate: the least-squares ramp (Mudelsee 2000, :func:`proxies.events.ramp.fit_ramps`)
+    of each member in the window a detection there gets (``ramp_window_points`` centred on
+    the change; the window is placed at ``near_age``, the fitted onset is each member's own)."""
+    from proxies.events.ramp import fit_ramps
+
+    ages_fwd, x = ages[::-1], values[::-1]
+    centre = int(np.argmin(np.abs(ages_fwd - near_age)))
+    half = settings.ramp_window_points // 2
+    start = np.full(x.shape[1], max(centre - half, 0))
+    stop = np.full(x.shape[1], min(centre + half - 1, ages.size - 1))
+    fit = fit_ramps(ages_fwd, x, start, stop, settings.ramp_window_points)
+    return ages_fwd[fit.i1]
+
+
+def ramp_lag_trial(seed: int, trial: int, lag_yr: float, settings, size: float = 5.0, **kwargs) -> dict:
+    """As :func:`lag_trial`, with each core's member onsets from :func:`ramp_onsets` at the
+    ensemble-median's largest change (no significance test: fast enough for 50 trials)."""
+    from proxies.events.leadlag import lag_summary
+    from proxies.seeding import rng_for
+
+    onset_a = 1000.0 + STEP_YR * 60 + 25.0
+    onsets = []
+    for core, onset in (("A", onset_a), ("B", onset_a - lag_yr)):
+        ages, values, _ = simulated_ensemble(rng_for(seed, "lag", core, trial), kind="step", size=size,
+                                             onset=onset, **kwargs)
+        median = np.nanmedian(values, axis=1)
+        jump = np.abs(np.convolve(median, np.r_[np.ones(5), -np.ones(5)] / 5, mode="same"))
+        jump[:5] = jump[-5:] = 0.0
+        onsets.append(ramp_onsets(ages, values, float(ages[int(np.argmax(jump))]), settings))
+    return lag_summary(*onsets)
