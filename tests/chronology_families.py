@@ -86,4 +86,5 @@ def simulate_core_dates(family: str, rng, depth, ages, curve, plant_outlier: boo
         "age": np.round(measured), "error": np.round(error), "thickness_cm": 0.0, "curve": None,
         "reservoir_offset": 0.0, "reservoir_error": 0.0, "exclude": False,
         "source_row": np.arange(2, where.size + 2)})
+    table.attrs["planted_shift_14c_yr"] = float(shift) if planted is not None else 0.0
     return table, planted

@@ -16,6 +16,9 @@ from pipelines.flows.runners import apply_environment_defaults  # imports no Pre
 
 os.environ.setdefault("PREFECT_HOME", tempfile.mkdtemp(prefix="downcore-test-prefect-"))
 apply_environment_defaults()  # the quiet, offline defaults the downcore command sets
+# the science runs in the tasks' threads (a test's patch of this process is seen by every stage);
+# tests/test_science_pool.py turns the worker processes on
+os.environ.setdefault("DOWNCORE_SCIENCE_PROCESSES", "0")
 
 import pytest  # noqa: E402
 

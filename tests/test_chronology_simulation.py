@@ -13,11 +13,14 @@ off). Per family, not pooled:
 On the independent-gamma family (``own``) the coverage stays 92-98 % and the median 95 %
 width grows by at most 25 % against the independent-increment model.
 
-Run ``python tests/test_chronology_simulation.py`` to print the table per family.
+Run ``python tests/test_chronology_simulation.py`` to print the table per family. While
+developing, ``DOWNCORE_SIMULATION_CORES=6`` runs fewer cores per family (the floors are meant
+for the full 20; CI runs the full size).
 """
 
 from __future__ import annotations
 
+import os
 import pathlib
 import sys
 import warnings
@@ -31,7 +34,7 @@ from chronology_synthetic import synthetic_core  # noqa: E402
 
 from proxies.chronology import ChronologySettings, build_chronology  # noqa: E402
 
-CORES = 20
+CORES = int(os.environ.get("DOWNCORE_SIMULATION_CORES", "20"))
 ENSEMBLE = 400
 CHECK_DEPTHS = 40
 
@@ -78,10 +81,12 @@ def test_family(curve, family):
     assert 0.90 <= row["coverage"] <= 0.98, row
     assert 0.90 <= row["coverage_far"] <= 0.98, row
     assert row["correct_flagged"] <= 0.03, row
-    # Known shortfall, kept visible: in cores reaching 25-45 kyr the dates lie ~3,000 cal yr
-    # apart, and a 1,500-4,000 14C yr shift is within what the accumulation can do between
-    # two dates; 4 of the 10 planted outliers are flagged (README, cautions), not 70 %.
-    caught_floor = 0.30 if family == "old" else 0.70
+    # Known limit, kept visible (README, cautions): in cores reaching 25-45 kyr the dates lie
+    # ~3,000 cal yr apart and a 1,500-4,000 14C yr shift usually stays between the true ages
+    # of its neighbours; 4 of these 10 planted outliers are flagged (6 in 10 over 80 cores,
+    # where a reference knowing every other date's true age catches 5 in 10:
+    # chronology_outlier_diagnosis.py). The floor is what is measured.
+    caught_floor = 0.40 if family == "old" else 0.70
     assert row["outliers_flagged"] >= caught_floor, row
 
 

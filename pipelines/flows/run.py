@@ -222,19 +222,25 @@ def _orchestrated(run_dir: pathlib.Path, plan: RunPlan, cache: pathlib.Path, cho
     from pipelines.flows.archive import (archive_flow, register_observer, register_plan, unregister_observer,
                                          unregister_plan)
 
+    from pipelines.flows.science_pool import science_pool_for_run
+
     runner = task_runner_for(choice, cache / "dask-scratch")
     observer = _DrawWhenPublished(progress, helper, run_dir) if helper is not None else progress
     observer_id = register_observer(observer) if observer is not None else None
     plan_id = register_plan(plan)
     try:
-        if local_server is not None and progress is not None:
-            progress.phase("starting the Prefect server")
-        api_url = local_server.wait_ready() if local_server is not None else None
-        with prefect_run_settings(choice, api_url=api_url):
-            return archive_flow.with_options(task_runner=runner)(
-                plan_id=plan_id, run_dir=str(run_dir), cache_dir=str(cache), recompute=recompute,
-                observer_id=observer_id, inline_stages=choice.inline_stages(),
-                chain=choice.chain_core_stages())
+        # the science workers start first: their imports and the first cores' head start
+        # overlap the Prefect server's start-up
+        with science_pool_for_run(plan, str(cache), choice.workers, recompute=recompute,
+                                  use=not (choice.dask_address or choice.dask_local)):
+            if local_server is not None and progress is not None:
+                progress.phase("starting the Prefect server")
+            api_url = local_server.wait_ready() if local_server is not None else None
+            with prefect_run_settings(choice, api_url=api_url):
+                return archive_flow.with_options(task_runner=runner)(
+                    plan_id=plan_id, run_dir=str(run_dir), cache_dir=str(cache), recompute=recompute,
+                    observer_id=observer_id, inline_stages=choice.inline_stages(),
+                    chain=choice.chain_core_stages())
     finally:
         unregister_plan(plan_id)
         if observer_id:
