@@ -15,7 +15,9 @@ Per variable of a reconstruction, oldest first:
    in a whole red-noise series, so each member has a false event anywhere with probability
    about ``alpha``;
 4. each significant candidate gets onset, end and amplitude from ramp fits (Mudelsee 2000) on
-   the member's gridded values;
+   the member's gridded values, onset (and a shift's end) as one parametric AR(1) bootstrap
+   draw about the fit (:func:`proxies.events.ramp.ramp_location_draws`), so that the spread
+   over members holds the change's location uncertainty beside the age error;
 5. member detections of the same kind and direction are grouped by their change times
    (``cluster_gap_yr``) into events; a group found by fewer than ``min_probability`` of the
    members is not reported.
