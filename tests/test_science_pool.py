@@ -165,3 +165,16 @@ def test_workers_end_when_the_run_process_is_killed_and_the_run_resumes(tmp_path
 
     timings = pd.read_csv(tmp_path / "run" / "timings.csv")
     assert timings.loc[timings["stage"] == "chronology", "reused"].any()
+
+
+def test_side_stores_of_ended_runs_are_removed(tmp_path):
+    from pipelines.flows.head_start import SIDE_PREFIX, HeadStart
+
+    ended = subprocess.run([sys.executable, "-c", "import os; print(os.getpid())"], capture_output=True,
+                           text=True).stdout.strip()
+    abandoned = tmp_path / f"{SIDE_PREFIX}{ended}-1"
+    alive = tmp_path / f"{SIDE_PREFIX}{os.getpid()}-1"
+    for folder in (abandoned, alive):
+        (folder / "results").mkdir(parents=True)
+    HeadStart(str(tmp_path))
+    assert not abandoned.exists() and alive.exists()

@@ -32,6 +32,23 @@ HEAD_START_STAGES = ("ingest", "chronology")
 CLAIM_POLL_SECONDS = 0.02
 
 
+#: side stores are ``<work store>/.head-start-<pid>-<n>``
+SIDE_PREFIX = ".head-start-"
+
+
+def _remove_abandoned(store_root: str) -> None:
+    """Remove the side stores of runs whose process has ended without removing its own
+    (killed): a process id no longer alive on this machine."""
+    for folder in pathlib.Path(store_root).glob(f"{SIDE_PREFIX}*"):
+        try:
+            pid = int(folder.name[len(SIDE_PREFIX):].split("-")[0])
+            os.kill(pid, 0)
+        except ProcessLookupError:
+            shutil.rmtree(folder, ignore_errors=True)
+        except (ValueError, PermissionError, OSError):
+            continue
+
+
 def _result_file(side_root: str, stage: str, key: str) -> pathlib.Path:
     return pathlib.Path(side_root) / "results" / f"{stage}-{key}.json"
 
@@ -74,7 +91,8 @@ class HeadStart:
 
     def __init__(self, store_root: str):
         self.store_root = store_root
-        self.side_root = os.path.join(store_root, f".head-start-{os.getpid()}-{time.monotonic_ns()}")
+        _remove_abandoned(store_root)
+        self.side_root = os.path.join(store_root, f"{SIDE_PREFIX}{os.getpid()}-{time.monotonic_ns()}")
         self.futures: dict[str, Any] = {}  # core folder -> future of its head start
 
     def claim(self, stage: str, folder: str | None, key: str, store: Any) -> dict | None:
