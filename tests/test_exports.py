@@ -65,6 +65,36 @@ def test_csv_values_carry_six_significant_digits():
                                                   "1.23457e+08,3", ",4"]
 
 
+def test_csv_text_is_that_of_pandas_to_csv_for_awkward_tables():
+    """The fast float path writes pandas' own bytes (``DataFrame.to_csv`` with ``%.6g``, the
+    reference): NaN, infinities, -0.0, tiny and huge values, float32, ints, booleans, missing
+    strings, text that needs quoting, list cells, and columns in any order."""
+    import io
+
+    from pipelines.report.csv import _flatten, table_csv_text
+
+    rng = np.random.default_rng(3)
+    members = {f"m{i:04d}": rng.normal(0, 10.0 ** rng.integers(-8, 9), 7) for i in range(5)}
+    members["m0001"][[1, 4]] = [np.nan, -0.0]
+    members["m0003"][[0, 2, 5]] = [np.inf, -np.inf, 1e20]
+    quoted = pd.DataFrame({
+        "label": ["a", 'say "hi"', "x,y", None, "two\nlines", "", "plain"],
+        **members,
+        "n": np.arange(7), "flag": [True, False] * 3 + [True],
+        "f32": np.linspace(0, 1, 7, dtype=np.float32),
+        "list": [[1, 2], [], ["a"], [0.5], [3], [4], [5]],
+    })
+    plain = quoted.drop(columns=["label"]).assign(label=list("abcdefg"))  # nothing to quote
+    for table in (quoted, plain, quoted[["m0000"]], quoted.iloc[:0]):
+        expected = table.copy()
+        for column in expected.columns:
+            if expected[column].dtype == object:
+                expected[column] = expected[column].map(_flatten)
+        buffer = io.StringIO()
+        expected.to_csv(buffer, index=False, lineterminator="\n", float_format="%.6g")
+        assert table_csv_text(table) == buffer.getvalue()
+
+
 def test_no_csv_on_request(tmp_path):
     run = make_run_folder(tmp_path / "run")
     written = write_exports(run, csv=False)

@@ -124,3 +124,47 @@ def test_a_dead_helper_changes_nothing_but_the_time(tmp_path):
     finally:
         helper.close()
     assert _report_bytes(run) == alone
+
+
+def _export_bytes(run: pathlib.Path) -> dict[str, bytes]:
+    files = sorted(run.rglob("*.csv")) + [run / "reconstructions.nc"]
+    return {p.relative_to(run).as_posix(): p.read_bytes() for p in files if p.name != "timings.csv"}
+
+
+def test_forked_helper_writes_the_exports_and_the_same_report(tmp_path):
+    """The report command's path: a helper forked after the run folder is read writes the
+    exports, then draws; report, figures and exports have the bytes of one process alone.
+    Run in a fresh process (this one may hold threads of earlier tests: no fork then)."""
+    import os
+    import subprocess
+    import sys
+
+    from pipelines.report import write_exports
+    from pipelines.report.csv import parquet_tables
+
+    run = make_run_folder(tmp_path / "run")
+    write_run_report(run, helpers=0)
+    write_exports(run)
+    alone, exports_alone = _report_bytes(run), _export_bytes(run)
+    for path in run.rglob("*.csv"):
+        if path.name != "timings.csv":
+            path.unlink()
+    (run / "reconstructions.nc").unlink()
+    code = ("import sys\n"
+            "from pipelines.report import build, drawing\n"
+            "forked = []\n"
+            "original = drawing.ForkedHelper\n"
+            "drawing.ForkedHelper = lambda r: forked.append(r) or original(r)\n"
+            "unreadable = []\n"
+            "report, written = build.write_report_with_exports(sys.argv[1], unreadable=unreadable)\n"
+            "print(len(forked), len(unreadable))\n"
+            "print('\\n'.join(sorted(str(p) for p in written)))\n")
+    root = pathlib.Path(__file__).resolve().parents[1]
+    done = subprocess.run([sys.executable, "-c", code, str(run)], capture_output=True, text=True, timeout=300,
+                          env={**os.environ, "PYTHONPATH": str(root), drawing.HELPERS_ENV: "1"})
+    assert done.returncode == 0, done.stderr
+    lines = done.stdout.splitlines()
+    assert lines[0] == "1 0"  # forked once, every table readable
+    assert _report_bytes(run) == alone and _export_bytes(run) == exports_alone
+    assert lines[1:] == sorted(str(p) for p in {p.with_suffix(".csv") for p in parquet_tables(run)}
+                               | {run / "reconstructions.nc"})

@@ -35,15 +35,14 @@ def command(run_dir: pathlib.Path, no_csv: bool, png: bool) -> None:
 
     Reads only the run folder, never the inputs; running it twice gives the same files.
     """
-    from pipelines.report import write_exports, write_run_report
+    from pipelines.report.build import write_report_with_exports
 
     if not (run_dir / "summary.parquet").is_file() and not (run_dir / "manifest.json").is_file():
         raise click.ClickException(f"{run_dir} holds no summary.parquet or manifest.json -- give "
                                    "the folder a downcore run wrote")
     _refuse_a_live_run(run_dir)
-    report = write_run_report(run_dir, png=png)
     unreadable: list[str] = []
-    exports = write_exports(run_dir, csv=not no_csv, unreadable=unreadable)
+    report, exports = write_report_with_exports(run_dir, png=png, csv=not no_csv, unreadable=unreadable)
     for sentence in unreadable:
         click.echo(f"warning: {sentence}", err=True)
     n_csv = sum(p.suffix == ".csv" for p in exports)

@@ -2,8 +2,9 @@
 
 When every stage of every core (and the run-level stages) is already in the work store, a
 run has no work to orchestrate: its run folder is the store's finished entries hard-linked
-into place. :func:`assemble_from_store` walks the very same driver as the archive flow
-(:func:`pipelines.flows.archive.collect_run`), but where the flow would submit a task it stops
+into place. :func:`assemble_from_store` walks the cores exactly as the archive flow does
+(:func:`pipelines.flows.archive.run_cores` and ``collect_run``, with a submitter that looks
+stages up in the work store), but where the flow would submit or run a task it stops
 (:class:`WorkNeeded`) before anything is written; only when the whole walk succeeds are the
 core folders published. So the outputs are those of the flow, byte for byte, and the run does
 not wait ~3.5 s for a temporary Prefect server it would not use. Any stage to compute (a new
@@ -15,10 +16,11 @@ from __future__ import annotations
 
 from typing import Any
 
-from pipelines.flows.archive import _Driver, _Finished, _Silent, collect_run
+from pipelines.flows.archive import Submitter, collect_run, run_cores
 from pipelines.flows.plan import RunPlan
 from pipelines.flows.store import WorkStore
 from pipelines.flows.tasks import publish_core_folder
+from pipelines.flows.tracks import CoreTrack, log_text, published_entries
 
 __all__ = ["WorkNeeded", "assemble_from_store", "NO_ORCHESTRATION_NOTE"]
 
@@ -31,26 +33,26 @@ class WorkNeeded(Exception):
     """A stage is not in the work store (``str(error)`` names it): the run needs Prefect."""
 
 
-class _StoreOnlyDriver(_Driver):
-    """The archive flow's driver with every submission refused; a core folder's publication
-    is deferred until the walk has succeeded."""
+class _StoreOnly(Submitter):
+    """The archive flow's submitter with every submission refused; a core folder's
+    publication is deferred until the walk has succeeded."""
 
-    def __init__(self, plan: RunPlan, run_dir: str, store: WorkStore, observer: Any):
-        super().__init__(plan, run_dir, store, False, observer)
-        self.publications: list[dict] = []
+    def __init__(self, plan: RunPlan, run_dir: str, store: WorkStore):
+        super().__init__(plan, run_dir, store)
+        self.publications: list[tuple[str, list[dict], str]] = []
 
-    def _send(self, track: Any, stage: str, task, kwargs: dict) -> None:
-        if stage != "outputs":
-            raise WorkNeeded(stage)
-        self.publications.append(kwargs)
-        self.done.put((track, stage, _Finished({"files": [], "known_hashes": {}})))
+    def _run(self, stage: str, label: str, entries: dict, inline: bool) -> Any:
+        raise WorkNeeded(f"{stage}[{label}]")
 
-    def _flush_chains(self) -> None:  # pragma: no cover - chains are built for Dask runs only
-        raise WorkNeeded("chain")
+    def chain_cores(self, label: str, chains: list[dict]) -> Any:  # pragma: no cover - Dask runs only
+        raise WorkNeeded(f"chain[{label}]")
 
+    def publish(self, track: CoreTrack) -> Any:
+        self.publications.append((track.name, published_entries(track), log_text(track)))
+        return {"files": [], "known_hashes": {}}
 
-def _refuse(driver: _Driver, stage: str, entries: dict) -> Any:
-    raise WorkNeeded(stage)
+    def run_level(self, stage: str, entries: dict) -> Any:
+        raise WorkNeeded(stage)
 
 
 def assemble_from_store(plan: RunPlan, run_dir: str, cache_dir: str, observer: Any = None) -> dict | None:
@@ -67,13 +69,13 @@ def assemble_from_store(plan: RunPlan, run_dir: str, cache_dir: str, observer: A
     observer : progress observer, optional
         Told about the cores as the flow would tell it.
     """
-    driver = _StoreOnlyDriver(plan, run_dir, WorkStore(cache_dir), observer or _Silent())
+    submitter = _StoreOnly(plan, run_dir, WorkStore(cache_dir))
     try:
-        result = collect_run(driver, _refuse)
+        result = collect_run(submitter, run_cores(submitter, observer))
     except WorkNeeded:
         return None
-    for kwargs in driver.publications:
-        published = publish_core_folder(kwargs["run_dir"], kwargs["label"], kwargs["entries"], kwargs["log_text"])
+    for name, entries, text in submitter.publications:
+        published = publish_core_folder(run_dir, name, entries, text)
         result["known_hashes"].update(published["known_hashes"])
     result["notes"].append(NO_ORCHESTRATION_NOTE)
     return result

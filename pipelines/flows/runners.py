@@ -59,13 +59,14 @@ class ExecutorChoice:
     dask_local: bool = False
 
     def inline_stages(self) -> tuple[str, ...]:
-        """Light stages run in the flow's process: on Dask a submitted task costs ~60-80 ms,
-        more than ingest, calibration or publishing a core folder take (threads: none)."""
-        return ("ingest", "calibration", "outputs") if (self.dask_address or self.dask_local) else ()
+        """Light stages run in the flow's process (when their inputs are known there): on
+        Dask a submitted task costs ~60-80 ms, more than ingest or calibration take (threads:
+        none). A core's folder is always published in the flow's process."""
+        return ("ingest", "calibration") if (self.dask_address or self.dask_local) else ()
 
     def chain_core_stages(self) -> bool:
-        """On Dask, a core's science stages go to a worker as one task (fewer task runs: the
-        orchestration of each costs CPU that the workers need)."""
+        """On Dask, a core's stages after ingest go to a worker as one task (fewer task runs:
+        the orchestration of each costs CPU that the workers need)."""
         return bool(self.dask_address or self.dask_local)
 
     def describe(self) -> dict[str, Any]:

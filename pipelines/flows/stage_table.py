@@ -24,8 +24,8 @@ from pipelines.flows.series import run_series
 from pipelines.flows.plan import RunPlan
 from pipelines.flows.store import WorkStore
 
-__all__ = ["Stage", "STAGES", "CORE_STAGES", "SCIENCE_STAGES", "PUBLISH_STAGES", "KEY_PARTS", "stage_key", "call_stage",
-           "probe_stage"]
+__all__ = ["Stage", "STAGES", "CORE_STAGES", "SCIENCE_STAGES", "PUBLISH_STAGES", "KEY_PARTS", "COLLECTIONS",
+           "NOT_RUN", "finished", "take_inputs", "stage_key", "call_stage", "probe_stage"]
 
 
 def _instrumental_digests(plan: RunPlan, entries: dict) -> dict[str, str]:
@@ -79,9 +79,11 @@ class Stage:
     per_core : bool
         Run once per core (else once per run).
     at_publish : bool
-        A per-core stage that runs just before the core's folder is published, for every
-        core whose inputs exist, whatever stage it reached (not in :data:`CORE_STAGES`);
-        an input it lacks is given as ``None``.
+        A per-core stage that runs last, for every core whose required inputs finished,
+        whatever stage it reached (not in :data:`CORE_STAGES`).
+    optional : tuple of str
+        Inputs given as ``None`` when their stage did not finish (skipped or failed); a
+        stage whose other inputs did not all finish is not run (:func:`take_inputs`).
     """
 
     name: str
@@ -91,6 +93,7 @@ class Stage:
     key_parts: tuple[str, ...]
     per_core: bool = True
     at_publish: bool = False
+    optional: tuple[str, ...] = ()
 
 
 #: every stage, in the order a core goes through them (run-level stages where they run)
@@ -111,7 +114,7 @@ STAGES: dict[str, Stage] = {s.name: s for s in (
     Stage("events", stages.run_events, ("reconstruction",), ("events", "event_probability", "event_onsets"),
           ("[events] settings", "seed")),
     Stage("samples", run_dated_samples, ("ingest", "chronology", "calibration"), ("samples_dated",), (),
-          at_publish=True),
+          at_publish=True, optional=("calibration",)),
     Stage("stack", stages.run_stack, ("reconstructions",),
           ("stack", "stack_ensemble", "regional_events", "regional_onsets"),
           ("[reconstruction] settings", "[events] settings", "seed"), per_core=False),
@@ -125,6 +128,43 @@ CORE_STAGES: tuple[str, ...] = tuple(name for name, s in STAGES.items() if s.per
 PUBLISH_STAGES: tuple[str, ...] = tuple(name for name, s in STAGES.items() if s.at_publish)
 #: a core's stages after ingest (chained into one task on Dask)
 SCIENCE_STAGES: tuple[str, ...] = CORE_STAGES[1:]
+
+
+#: inputs that hold many entries (name -> entry): only the finished ones are given
+COLLECTIONS: frozenset[str] = frozenset({"training", "reconstructions", "all_events"})
+#: inputs that are plain values, not entries
+_PLAIN_INPUTS: frozenset[str] = frozenset({"folder", "name"})
+#: what a stage returns when an input it needs did not finish (nothing was run)
+NOT_RUN: dict[str, Any] = {"not_run": True}
+
+
+def finished(entry: Any) -> bool:
+    """Whether ``entry`` is a finished work-store entry (not a skip, a failure or
+    :data:`NOT_RUN`)."""
+    return isinstance(entry, dict) and "key" in entry
+
+
+def take_inputs(stage: Stage, entries: dict[str, Any]) -> dict[str, Any] | None:
+    """The inputs ``stage`` is run on, taken by name from ``entries``; ``None`` when an input
+    it needs did not finish (it was skipped or failed: the stage must not run).
+
+    An :attr:`Stage.optional` input that did not finish is given as ``None``; a collection
+    (:data:`COLLECTIONS`, e.g. every training set) keeps only its finished entries.
+    """
+    taken: dict[str, Any] = {}
+    for name in stage.inputs:
+        value = entries.get(name)
+        if name in _PLAIN_INPUTS:
+            taken[name] = value
+        elif name in COLLECTIONS:
+            taken[name] = {member: entry for member, entry in sorted(value.items()) if finished(entry)}
+        elif finished(value):
+            taken[name] = value
+        elif name in stage.optional:
+            taken[name] = None
+        else:
+            return None
+    return taken
 
 
 def _entry_key(value: Any) -> Any:
@@ -145,9 +185,12 @@ def stage_key(stage: Stage, plan: RunPlan, entries: dict[str, Any]) -> str:
 
 def call_stage(name: str, plan: RunPlan, entries: dict[str, Any], store: WorkStore,
                recompute: bool = False) -> dict:
-    """Run stage ``name`` on its entries (taken by name from ``entries``)."""
+    """Run stage ``name`` on its entries (:func:`take_inputs`); :data:`NOT_RUN` (and nothing
+    run) when an input it needs did not finish."""
     stage = STAGES[name]
-    taken = {inp: entries[inp] for inp in stage.inputs}
+    taken = take_inputs(stage, entries)
+    if taken is None:
+        return dict(NOT_RUN)
     return stage.runner(plan, store, stage_key(stage, plan, taken), recompute, **taken)
 
 

@@ -1,6 +1,6 @@
 """Prefect tasks: one per stage of the stage table (:mod:`pipelines.flows.stage_table`), one
-that chains a core's science stages (Dask) and one that publishes a core's folder in the run
-folder.
+that chains a core's stages after ingest (Dask) and one that publishes a core's folder in the
+run folder.
 
 Tasks are thin: each calls one runner of :mod:`pipelines.flows.stages`. Caching is done by
 the runners' content-addressed work store (keys = content hashes of inputs, settings and the
@@ -9,7 +9,9 @@ cache hit must also check that those files still exist; Prefect's own cache is t
 (``NO_CACHE``) and no result is persisted by Prefect.
 
 A failed stage raises :class:`StageFailed` carrying a plain message (picklable, so it crosses
-Dask workers intact); a skipped stage returns ``{"skipped": reason}``.
+Dask workers intact); a skipped stage returns ``{"skipped": reason}``. A stage task may be
+given the futures of its upstream stages: one whose needed input did not finish returns
+:data:`pipelines.flows.stage_table.NOT_RUN` without running anything.
 """
 
 from __future__ import annotations
@@ -23,7 +25,8 @@ from prefect.cache_policies import NO_CACHE
 
 from pipelines.flows import science_pool, stages
 from pipelines.flows.plan import RunPlan
-from pipelines.flows.stage_table import SCIENCE_STAGES, STAGES, call_stage
+from pipelines.flows.stage_table import (NOT_RUN, PUBLISH_STAGES, SCIENCE_STAGES, STAGES, call_stage, finished,
+                                         take_inputs)
 from pipelines.flows.store import WorkStore
 from pipelines.runfolder import atomic_write_bytes, link_or_copy, publish_folder, staging_folder
 
@@ -67,6 +70,8 @@ def _stage_task(name: str):
     in_pool = name in science_pool.POOL_STAGES
 
     def run(plan: RunPlan, label: str, entries: dict, store: WorkStore, recompute: bool = False) -> dict:
+        if take_inputs(STAGES[name], entries) is None:
+            return dict(NOT_RUN)  # an input was skipped or failed: nothing to run (nor to send)
         call = _call_in_worker if in_pool and science_pool.active_pool() is not None else call_stage
         return _guarded(call, name, plan, entries, store, recompute)
 
@@ -81,11 +86,12 @@ STAGE_TASKS = {name: _stage_task(name) for name in STAGES}
 
 def run_core_chain(plan: RunPlan, entries: dict, store: WorkStore,
                    recompute: bool = False) -> list[tuple[str, dict]]:
-    """Run the science stages of one core (:data:`SCIENCE_STAGES`) in one go.
+    """Run every stage of one core after its ingest in one go: the science stages
+    (:data:`SCIENCE_STAGES`, up to the first skipped or failed one), then the
+    :data:`PUBLISH_STAGES` whose inputs finished.
 
     Each stage still goes through its own runner, so it is cached under its own content key
-    exactly as when submitted alone (and gives the same bytes). The chain stops at the
-    first skipped or failed stage.
+    exactly as when submitted alone (and gives the same bytes).
 
     Returns
     -------
@@ -95,22 +101,28 @@ def run_core_chain(plan: RunPlan, entries: dict, store: WorkStore,
     entries = dict(entries)
     done: list[tuple[str, dict]] = []
     for stage in SCIENCE_STAGES:
-        try:
-            result = _guarded(call_stage, stage, plan, entries, store, recompute)
-        except StageFailed as failed:
-            done.append((stage, {"failed": str(failed)}))
-            break
+        result = _chained(stage, plan, entries, store, recompute)
         done.append((stage, result))
-        if "skipped" in result:
+        if not finished(result):
             break
         entries[stage] = result
+    for stage in PUBLISH_STAGES:
+        if take_inputs(STAGES[stage], entries) is not None:
+            done.append((stage, _chained(stage, plan, entries, store, recompute)))
     return done
+
+
+def _chained(stage: str, plan: RunPlan, entries: dict, store: WorkStore, recompute: bool) -> dict:
+    try:
+        return _guarded(call_stage, stage, plan, entries, store, recompute)
+    except StageFailed as failed:
+        return {"failed": str(failed)}
 
 
 @task(name="core-chain", task_run_name="core-chain[{label}]", **_OPTIONS)
 def core_chain_task(plan: RunPlan, label: str, chains: list[dict], store: WorkStore,
                     recompute: bool = False) -> list[list[tuple[str, dict]]]:
-    """All science stages of a few cores as one task (used on Dask, where each task run's
+    """All stages after ingest of a few cores as one task (used on Dask, where each task run's
     orchestration costs CPU that the workers need); one chain per core, failures isolated.
     ``chains`` holds each core's entries (its ingest and the training sets)."""
     return [run_core_chain(plan, entries, store, recompute) for entries in chains]

@@ -16,7 +16,7 @@ import pandas as pd
 
 from pipelines.report import html as H
 from pipelines.report import style
-from pipelines.report.drawing import DrawnFigures, FigureClaims, ReportHelper, helpers_wanted
+from pipelines.report.drawing import DrawnFigures, FigureClaims, ReportHelper, own_helper
 from pipelines.report.figures_calibration import (analogue_figure, cv_scatter_figure,
                                                   cv_statistics, training_sets_of)
 from pipelines.report.figures_chronology import (NEGLIGIBLE_PROBABILITY, age_depth_figure,
@@ -29,7 +29,8 @@ from pipelines.report.rundata import (CoreData, RunData, downcore_version, read_
                                       reconstruction_series)
 from pipelines.runfolder import atomic_write_text
 
-__all__ = ["write_run_report", "write_report_and_exports", "draw_claimed", "REPORT_NAME"]
+__all__ = ["write_run_report", "write_report_and_exports", "write_report_with_exports", "draw_claimed",
+           "REPORT_NAME"]
 
 REPORT_NAME = "report.html"
 
@@ -338,9 +339,11 @@ def _sections(run: RunData, figs) -> tuple[str, str, list[str]]:
         _core_section(core, run, figs) for core in run.cores]
 
 
-def draw_claimed(run_dir: pathlib.Path, png: bool, claims: FigureClaims) -> dict[str, style.SavedFigure | None]:
-    """Draw every figure of the report nobody has claimed yet (see :mod:`pipelines.report.drawing`)."""
-    run = read_run(run_dir)
+def draw_claimed(run_dir: pathlib.Path | RunData, png: bool,
+                 claims: FigureClaims) -> dict[str, style.SavedFigure | None]:
+    """Draw every figure of the report nobody has claimed yet (see :mod:`pipelines.report.drawing`);
+    ``run_dir`` may be the run already read."""
+    run = run_dir if isinstance(run_dir, RunData) else read_run(run_dir)
     drawer = _Claiming(DrawnFigures(run.folder, png, claims))
     with style.report_style():
         _sections(run, drawer)
@@ -360,12 +363,13 @@ def draw_core_claimed(run_dir: pathlib.Path, core_id: str, claims: FigureClaims)
     return drawer.figures.drawn
 
 
-def _drawn_in_parallel(run: RunData, png: bool, helper: ReportHelper | None,
-                       exports: bool) -> tuple[dict[str, style.SavedFigure | None], bool, str | None]:
-    """The figures drawn by this process and ``helper`` (none: nothing drawn yet), whether the
-    helper wrote the exports (asked with ``exports``) and the exports' failure, if any."""
+def _drawn_in_parallel(run: RunData, png: bool, helper, exports) -> tuple[dict[str, style.SavedFigure | None],
+                                                                          dict | None]:
+    """The figures drawn by this process and ``helper`` (none: nothing drawn yet) and, when
+    the helper was asked for the exports (``exports``, see :mod:`pipelines.report.drawing`)
+    and answered, what it reported of them (``None`` otherwise)."""
     if helper is None:
-        return {}, False, None
+        return {}, None
     early = not png and getattr(helper, "claims", None) is not None  # a run's helper (no PNG)
     claims = helper.claims if early else FigureClaims.create()
     drawn: dict[str, style.SavedFigure | None] = helper.early_figures() if early else {}
@@ -378,9 +382,9 @@ def _drawn_in_parallel(run: RunData, png: bool, helper: ReportHelper | None,
         try:
             delivered = future.result()
         except Exception:  # noqa: BLE001 - what the helper did not deliver is done here
-            return drawn, False, None
-        drawn.update(delivered["drawn"])
-        return drawn, exports, delivered["exports"]
+            return drawn, None
+        drawn.update(delivered.pop("drawn"))
+        return drawn, (delivered if exports else None)
     finally:
         if not early:
             claims.remove()
@@ -393,13 +397,13 @@ def write_report_and_exports(run_dir: str | pathlib.Path, helper: ReportHelper |
     (the science outputs stay valid)."""
     notes: list[str] = []
     try:
-        _, exported, failure = _report(run_dir, False, None, helper, exports=True)
+        _, exported = _report(run_dir, False, None, helper, exports=True)
     except Exception as error:  # noqa: BLE001
         notes.append(f"report not written: {type(error).__name__}: {error}")
-        exported, failure = False, None
-    if failure:
-        notes.append(f"exports not written: {failure}")
-    elif not exported:
+        exported = None
+    if exported is not None and exported["exports"]:
+        notes.append(f"exports not written: {exported['exports']}")
+    elif exported is None:
         from pipelines.report.exports import write_exports
 
         try:
@@ -407,6 +411,27 @@ def write_report_and_exports(run_dir: str | pathlib.Path, helper: ReportHelper |
         except Exception as error:  # noqa: BLE001
             notes.append(f"exports not written: {type(error).__name__}: {error}")
     return notes
+
+
+def write_report_with_exports(run_dir: str | pathlib.Path, png: bool = False, csv: bool = True,
+                              unreadable: list[str] | None = None) -> tuple[pathlib.Path, list[pathlib.Path]]:
+    """:func:`write_run_report` and :func:`pipelines.report.exports.write_exports` (same
+    arguments), the exports written by the report's helper process while this one draws when
+    there is one; an export that fails there is done again here, so its error is raised.
+
+    Returns
+    -------
+    (pathlib.Path, list of pathlib.Path)
+        The report file and the export files written.
+    """
+    report, exported = _report(run_dir, png, None, None, exports={"csv": csv})
+    if exported is None or exported["exports"]:
+        from pipelines.report.exports import write_exports
+
+        return report, write_exports(run_dir, csv=csv, unreadable=unreadable)
+    if unreadable is not None:
+        unreadable.extend(exported["unreadable"])
+    return report, [pathlib.Path(p) for p in exported["written"]]
 
 
 def write_run_report(run_dir: str | pathlib.Path, png: bool = False, helpers: int | None = None,
@@ -434,16 +459,16 @@ def write_run_report(run_dir: str | pathlib.Path, png: bool = False, helpers: in
     return _report(run_dir, png, helpers, helper, exports=False)[0]
 
 
-def _report(run_dir: str | pathlib.Path, png: bool, helpers: int | None, helper: ReportHelper | None,
-            exports: bool) -> tuple[pathlib.Path, bool, str | None]:
+def _report(run_dir: str | pathlib.Path, png: bool, helpers: int | None, helper, exports) -> tuple[pathlib.Path,
+                                                                                              dict | None]:
     """:func:`write_run_report`, the helper asked to write the exports first when ``exports``;
-    returns the report file, whether the helper wrote the exports and their failure if any."""
+    returns the report file and what the helper reported of the exports (None: not done there)."""
     run = read_run(run_dir)
     own = None
-    if helper is None and helpers_wanted(sum(bool(c.tables) for c in run.cores), helpers):
-        own = helper = ReportHelper.start_if_useful()
+    if helper is None:
+        own = helper = own_helper(run, helpers)
     try:
-        drawn, exported, failure = _drawn_in_parallel(run, png, helper, exports)
+        drawn, exported = _drawn_in_parallel(run, png, helper, exports)
     finally:
         if own is not None:
             own.close()
@@ -465,4 +490,5 @@ def _report(run_dir: str | pathlib.Path, png: bool, helpers: int | None, helper:
               f"{figs.count} figures, also saved as {'PNG and ' if png else ''}SVG in figures/.")
     text = H.page(title, subtitle, toc, _summary_section(run) + stack + archive_events + "".join(cores),
                   footer)
-    return atomic_write_text(run.folder / REPORT_NAME, text), exported, failure
+    return atomic_write_text(run.folder / REPORT_NAME, text), exported
+

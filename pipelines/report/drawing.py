@@ -25,12 +25,13 @@ import re
 import shutil
 import sys
 import tempfile
+import threading
 from typing import Callable, Iterator
 
 from pipelines.report import style
 
-__all__ = ["FigureClaims", "DrawnFigures", "ReportHelper", "helpers_wanted", "HELPERS_ENV",
-           "HELPER_MIN_CORES"]
+__all__ = ["FigureClaims", "DrawnFigures", "ReportHelper", "ForkedHelper", "fork_is_safe",
+           "helpers_wanted", "own_helper", "HELPERS_ENV", "HELPER_MIN_CORES"]
 
 #: environment variable: helper processes for drawing (0 = draw everything in this process)
 HELPERS_ENV = "DOWNCORE_REPORT_HELPERS"
@@ -40,13 +41,14 @@ HELPERS_ENV = "DOWNCORE_REPORT_HELPERS"
 HELPER_MIN_CORES = 3
 
 
-def helpers_wanted(n_cores_with_tables: int, helpers: int | None = None) -> int:
+def helpers_wanted(n_cores_with_tables: int, helpers: int | None = None,
+                   min_cores: int = HELPER_MIN_CORES) -> int:
     """How many helper processes to draw with: ``helpers`` if given, else ``$DOWNCORE_REPORT_HELPERS``,
-    else one on a machine of two or more CPUs for a run of :data:`HELPER_MIN_CORES` cores or more."""
+    else one on a machine of two or more CPUs for a run of ``min_cores`` cores or more."""
     if helpers is None and os.environ.get(HELPERS_ENV, "").strip():
         helpers = int(os.environ[HELPERS_ENV])
     if helpers is None:
-        helpers = 1 if (os.cpu_count() or 1) >= 2 and n_cores_with_tables >= HELPER_MIN_CORES else 0
+        helpers = 1 if (os.cpu_count() or 1) >= 2 and n_cores_with_tables >= min_cores else 0
     return max(0, min(int(helpers), 1))
 
 
@@ -96,21 +98,43 @@ def _warm_up() -> None:
     import pipelines.report.exports  # noqa: F401
 
 
-def _helper_job(run_dir: str, png: bool, claims_folder: str, exports: bool) -> dict:
+def _exports_part(run_dir: str, exports) -> dict:
+    """The exports a helper was asked for (``exports``: False, True or ``{"csv": bool}``):
+    ``{"exports": None or the failure's text, "written": [paths], "unreadable": [sentences]}``
+    (``written`` is None when none were asked for)."""
+    if not exports:
+        return {"exports": None, "written": None, "unreadable": []}
+    from pipelines.report.exports import write_exports
+
+    csv = exports.get("csv", True) if isinstance(exports, dict) else True
+    unreadable: list[str] = []
+    try:
+        written = [str(p) for p in write_exports(run_dir, csv=csv, unreadable=unreadable)]
+    except Exception as error:  # noqa: BLE001 - reported by the caller (a run note, or done again)
+        return {"exports": f"{type(error).__name__}: {error}", "written": None, "unreadable": []}
+    return {"exports": None, "written": written, "unreadable": unreadable}
+
+
+def _helper_job(run_dir: str, png: bool, claims_folder: str, exports) -> dict:
     """The helper process: the exports first (when asked), then every figure nobody has
-    claimed yet. Returns ``{"drawn": {...}, "exports": None or the failure's text}``."""
+    claimed yet. Returns ``{"drawn": {...}}`` and :func:`_exports_part`'s keys."""
     from pipelines.report.build import draw_claimed
 
-    exports_error = None
-    if exports:
-        from pipelines.report.exports import write_exports
+    done = _exports_part(run_dir, exports)
+    return {"drawn": draw_claimed(pathlib.Path(run_dir), png, FigureClaims(claims_folder)), **done}
 
-        try:
-            write_exports(run_dir)
-        except Exception as error:  # noqa: BLE001 - reported as a run note by the caller
-            exports_error = f"{type(error).__name__}: {error}"
-    return {"drawn": draw_claimed(pathlib.Path(run_dir), png, FigureClaims(claims_folder)),
-            "exports": exports_error}
+
+#: the run a :class:`ForkedHelper` draws (read by this process before the fork, inherited)
+_FORKED_RUN = None
+
+
+def _forked_job(png: bool, claims_folder: str, exports) -> dict:
+    """A forked helper's part (as :func:`_helper_job`), on the run read before the fork."""
+    from pipelines.report.build import draw_claimed
+
+    run = _FORKED_RUN
+    done = _exports_part(str(run.folder), exports)
+    return {"drawn": draw_claimed(run, png, FigureClaims(claims_folder)), **done}
 
 
 def _core_job(run_dir: str, core_id: str, claims_folder: str) -> dict:
@@ -137,6 +161,16 @@ def _main_script_not_rerun() -> Iterator[None]:
     finally:
         for name, value in saved.items():
             setattr(main, name, value)
+
+
+def _submitted(executor, job, *args) -> concurrent.futures.Future:
+    """``executor.submit(job, *args)``, or a failed future when the helper has died."""
+    try:
+        return executor.submit(job, *args)
+    except RuntimeError as error:  # BrokenProcessPool is a RuntimeError
+        future: concurrent.futures.Future = concurrent.futures.Future()
+        future.set_exception(error)
+        return future
 
 
 class ReportHelper:
@@ -183,15 +217,52 @@ class ReportHelper:
             return None
 
     def submit(self, run_dir: pathlib.Path, png: bool, claims: FigureClaims,
-               exports: bool = False) -> concurrent.futures.Future:
-        """The helper's part of a report (a failed future when the helper has died)."""
-        try:
-            return self.executor.submit(_helper_job, str(run_dir), png, claims.folder, exports)
-        except RuntimeError as error:  # BrokenProcessPool is a RuntimeError
-            future: concurrent.futures.Future = concurrent.futures.Future()
-            future.set_exception(error)
-            return future
+               exports=False) -> concurrent.futures.Future:
+        """The helper's part of a report (a failed future when the helper has died);
+        ``exports`` as :func:`_exports_part` takes it."""
+        return _submitted(self.executor, _helper_job, str(run_dir), png, claims.folder, exports)
 
     def close(self) -> None:
         self.executor.shutdown(wait=True, cancel_futures=True)
         self.claims.remove()
+
+
+def fork_is_safe() -> bool:
+    """True where a helper can be forked from this process: the platform forks and this
+    process runs no other Python thread (a thread holding a lock at the fork would leave the
+    child stuck on it)."""
+    return "fork" in multiprocessing.get_all_start_methods() and threading.active_count() == 1
+
+
+class ForkedHelper:
+    """A helper process forked from this one once the run folder is read: it shares this
+    process's imports and tables, so it starts drawing at once (a spawned
+    :class:`ReportHelper` spends ~1.5 s importing and reading first). Used by a report that
+    was given no helper, where :func:`fork_is_safe`."""
+
+    def __init__(self, run) -> None:
+        global _FORKED_RUN
+        _FORKED_RUN = run
+        self.run = run
+        self.executor = concurrent.futures.ProcessPoolExecutor(
+            max_workers=1, mp_context=multiprocessing.get_context("fork"))
+
+    def submit(self, run_dir: pathlib.Path, png: bool, claims: FigureClaims,
+               exports=False) -> concurrent.futures.Future:
+        """The helper's part of the report of ``self.run`` (``run_dir`` is its folder)."""
+        return _submitted(self.executor, _forked_job, png, claims.folder, exports)
+
+    def close(self) -> None:
+        global _FORKED_RUN
+        self.executor.shutdown(wait=True, cancel_futures=True)
+        _FORKED_RUN = None
+
+
+def own_helper(run, helpers: int | None):
+    """A helper for a report given none (``run`` read already): forked from this process where
+    that is safe (it costs nothing to start, so any run with tables is worth it), else spawned
+    for a run of :data:`HELPER_MIN_CORES` cores or more; ``None`` when not wanted."""
+    with_tables = sum(bool(c.tables) for c in run.cores)
+    if fork_is_safe():
+        return ForkedHelper(run) if helpers_wanted(with_tables, helpers, min_cores=1) else None
+    return ReportHelper.start_if_useful() if helpers_wanted(with_tables, helpers) else None

@@ -260,6 +260,7 @@ def deposition_time_figure(core: CoreData):
     if values.size:
         low, high = np.quantile(values, [0.02, 0.98])
         ax.set_xscale("log")
+        style.plain_log_labels(ax.xaxis)
         ax.set_xlim(max(low / 2.0, 1e-3), high * 2.0)
     _draw_hiatuses(ax, marks)
     ax.invert_yaxis()

@@ -22,14 +22,15 @@ import matplotlib
 
 matplotlib.use("Agg", force=True)
 
-import matplotlib.pyplot as plt  # noqa: E402
 from matplotlib.figure import Figure  # noqa: E402
+from matplotlib.ticker import LogFormatter  # noqa: E402
 
+from pipelines.report.layout import place_panels  # noqa: E402
 from pipelines.runfolder import atomic_write_bytes  # noqa: E402
 
 __all__ = ["INK", "SLATE", "SAND", "CLAY", "MOSS", "FOG", "PAPER", "BAND_DARK", "BAND_LIGHT",
            "WARM", "COOL", "SERIES_STYLES", "report_style", "new_figure", "SavedFigure",
-           "save_figure", "inline_svg", "age_axis", "rasterise_dense", "ensemble_lines",
+           "save_figure", "inline_svg", "age_axis", "plain_log_labels", "rasterise_dense", "ensemble_lines",
            "without_embedded_pictures"]
 
 # Palette (hex). Lightness (L* roughly) in brackets: the grey-scale print keeps them apart.
@@ -83,6 +84,8 @@ _RC = {
     "svg.hashsalt": "downcore-report",
     "svg.fonttype": "none",
     "path.simplify": True,
+    "figure.autolayout": False,
+    "figure.constrained_layout.use": False,
 }
 
 #: PNG resolution [dots per inch]
@@ -117,6 +120,21 @@ def age_axis(ax, label: str = "age [cal BP]") -> None:
     ax.set_xlabel(label)
     if not ax.xaxis_inverted():
         ax.invert_xaxis()
+
+
+class _PlainLogFormatter(LogFormatter):
+    """Tick labels of a logarithmic axis as plain numbers (``6``, ``10``, ``20``), not powers
+    of ten: easier to read over the two or three decades a report axis spans, and plain text
+    (no math layout) in the SVG."""
+
+    def _num_to_string(self, x, vmin, vmax):
+        return f"{x:g}"
+
+
+def plain_log_labels(axis) -> None:
+    """Label a logarithmic ``axis`` (``ax.xaxis`` or ``ax.yaxis``) with plain numbers."""
+    axis.set_major_formatter(_PlainLogFormatter())
+    axis.set_minor_formatter(_PlainLogFormatter(labelOnlyBase=False))
 
 
 @dataclass(frozen=True)
@@ -203,15 +221,18 @@ def save_figure(fig: Figure, run_dir: pathlib.Path, key: str, title: str,
     """
     safe = re.sub(r"[^A-Za-z0-9_.-]+", "_", key)
     rasterise_dense(fig)
+    if place_panels(fig):
+        # the panels are placed: no layout engine, so saving draws the figure once (with one,
+        # Matplotlib draws it a first time to lay it out)
+        fig.set_layout_engine(None)
     svg = _svg_text(fig)
     png_name = None
     if png:
-        # the layout is settled by the first save; freezing it saves a second constrained-layout
-        # pass (the slowest part of drawing) and keeps the PNG identical in layout to the SVG
-        fig.set_layout_engine("none")
+        # the layout is settled by the first save; freezing it saves a second layout pass
+        # and keeps the PNG identical in layout to the SVG
+        fig.set_layout_engine(None)
         png_name = f"figures/{safe}.png"
         atomic_write_bytes(run_dir / png_name, _png_bytes(fig))
-    plt.close(fig)
     atomic_write_bytes(run_dir / "figures" / f"{safe}.svg", svg.encode("utf-8"))
     return SavedFigure(safe, title, caption, png_name, f"figures/{safe}.svg", svg)
 
