@@ -73,28 +73,84 @@ def case_outcomes(kind: str, n_ensembles: int, seed: int, settings, window_yr: f
         ``found`` (share with a significant event of the planted kind within ``window_yr``
         of the true onset), ``covered`` (share of those whose onset 95 % range holds the true
         onset), ``false`` (share with any significant event elsewhere), ``p_values`` (the
-        smallest event p-value of each ensemble, 1 if none).
+        smallest event p-value of each ensemble, 1 if none), ``events`` (each ensemble's
+        events table) and ``onsets`` (each ensemble's true onset).
     """
     from proxies.events import detect_series_events
     from proxies.seeding import rng_for
 
-    found = covered = false = 0
-    p_values = []
-    want = {"step": "shift", "excursion": "excursion"}.get(kind)
+    p_values, tables, onsets = [], [], []
     for i in range(n_ensembles):
         ages, values, onset = simulated_ensemble(rng_for(seed, "truth", kind, i), kind=kind, **kwargs)
         events, _, _, _ = detect_series_events(ages, values, settings, rng_for(seed, "events", kind, i))
         p_values.append(float(events["p_value"].min()) if len(events) else 1.0)
+        tables.append(events)
+        onsets.append(onset)
+    out = {"p_values": np.array(p_values), "events": tables, "onsets": onsets}
+    return out | case_shares(out, kind, n_ensembles, window_yr)
+
+
+def case_shares(outcomes: dict, kind: str, n: int, window_yr: float = 300.0) -> dict:
+    """``found``, ``covered`` and ``false`` (see :func:`case_outcomes`) over the first ``n``
+    ensembles of a :func:`case_outcomes` result."""
+    want = {"step": "shift", "excursion": "excursion"}.get(kind)
+    found = covered = false = 0
+    for events, onset in zip(outcomes["events"][:n], outcomes["onsets"][:n]):
         sig = events[events["significant"]] if len(events) else events
-        near = (abs(sig["onset_median"] - onset) <= window_yr) if len(sig) else np.zeros(0, bool)
-        hit = sig[near & (sig["kind"] == want)] if want and len(sig) else sig.iloc[0:0]
+        near = (abs(sig["onset_median"] - onset) <= window_yr).to_numpy() if len(sig) else np.zeros(0, bool)
+        hit = sig[near & (sig["kind"] == want).to_numpy()] if want and len(sig) else sig.iloc[0:0]
         if len(hit):
             found += 1
-            row = hit.iloc[0]
-            covered += bool(row["onset_q025"] <= onset <= row["onset_q975"])
+            covered += bool(hit.iloc[0]["onset_q025"] <= onset <= hit.iloc[0]["onset_q975"])
         false += bool(len(sig) - (near.sum() if want else 0) > 0)
-    return {"found": found / n_ensembles, "covered": covered / max(found, 1), "false": false / n_ensembles,
-            "p_values": np.array(p_values)}
+    return {"found": found / n, "covered": covered / max(found, 1), "false": false / n}
+
+
+def archive_false_share(pools: dict, members: dict, alpha: float = 0.05, length_yr: float = 300.0) -> dict:
+    """One simulated archive: the events of the listed ensembles of each case pool
+    (:func:`case_outcomes` results), under Benjamini-Hochberg control at ``alpha``.
+
+    Parameters
+    ----------
+    pools : dict
+        case kind -> :func:`case_outcomes` result (planted changes positive, ``length_yr``
+        long for excursions).
+    members : dict
+        case kind -> indices of that pool's ensembles in this archive.
+
+    Returns
+    -------
+    dict
+        ``called`` (events surviving FDR control), ``false`` (of those, events in a series
+        without a planted change, or of the wrong direction, or whose span from onset to end
+        misses the planted change by more than 300 yr) and ``false_strict`` (as ``false``,
+        also counting events of the planted change whose onset is more than 300 yr off).
+    """
+    from proxies.events.fdr import archive_event_table
+
+    frames, real, strict = {}, {}, {}
+    for kind, indices in members.items():
+        for i in indices:
+            events = pools[kind]["events"][i]
+            if not len(events):
+                continue
+            core = f"{kind}-{i:03d}"
+            onset = pools[kind]["onsets"][i]
+            frames[core] = events.assign(core_id=core, event_id=[f"t-E{k:02d}" for k in range(len(events))],
+                                         variable="t")
+            planted = (kind != "none") & (events["direction"] == "positive").to_numpy()
+            near = np.abs(events["onset_median"].to_numpy() - onset) <= 300
+            end = onset - (length_yr if kind == "excursion" else 0.0)
+            spans = (events["end_median"].to_numpy() <= onset + 300) & (events["onset_median"].to_numpy() >= end - 300)
+            real[core], strict[core] = planted & (near | spans), planted & near
+    searched = sum(len(indices) for indices in members.values())
+    table = archive_event_table(frames, alpha, searched)  # rows in sorted core order, in order
+    cores = sorted(frames)
+    is_real = np.concatenate([real[c] for c in cores]) if cores else np.zeros(0, bool)
+    is_strict = np.concatenate([strict[c] for c in cores]) if cores else np.zeros(0, bool)
+    called = table["survives_fdr"].to_numpy(dtype=bool)
+    return {"called": int(called.sum()), "false": int((called & ~is_real).sum()),
+            "false_strict": int((called & ~is_strict).sum())}
 
 
 def core_onsets(ages, values, settings, rng, core_id: str = "SIM"):

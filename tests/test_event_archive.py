@@ -52,6 +52,21 @@ def test_archive_table_puts_the_q_value_beside_each_p_value():
     assert list(empty.columns) == ARCHIVE_EVENT_COLUMNS and len(empty) == 0
 
 
+def test_series_searched_without_events_count_in_the_family_with_p_one():
+    """A searched series without any reported event is one more hypothesis with p = 1:
+    BH over the given p-values plus that many ones (statsmodels' 'fdr_bh' as the reference)."""
+    p = [0.001, 0.03, 0.04, 0.2]
+    expected = multipletests(p + [1.0] * 6, method="fdr_bh")[1][:4]
+    assert np.allclose(benjamini_hochberg(p, n_tests=10), expected)
+    assert np.allclose(benjamini_hochberg(p, n_tests=2), benjamini_hochberg(p))  # never fewer than given
+    # cores A and B (one variable each) have events; 8 more series were searched without any
+    table = archive_event_table({"B": _events("B", [0.04, 0.2]), "A": _events("A", [0.001, 0.03])}, 0.05,
+                                searched=10)
+    assert np.allclose(table["q_value"], multipletests(p + [1.0] * 8, method="fdr_bh")[1][:4])
+    assert table["survives_fdr"].tolist() == [True, False, False, False]
+    assert table["q_value"].iloc[0] == pytest.approx(0.001 * 12 / 1)  # 4 events + 8 empty series
+
+
 def test_difference_quantiles_are_those_of_all_member_pairs():
     rng = np.random.default_rng(1)
     a, b = rng.normal(12000, 80, 300), rng.gamma(2.0, 40.0, 250) + 11800

@@ -13,74 +13,80 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from event_simulation import case_outcomes, lag_trial, simulated_ensemble
-from proxies.events import EventSettings, detect_series_events
-from proxies.events.fdr import archive_event_table
-from proxies.seeding import rng_for
+from event_simulation import archive_false_share, case_outcomes, case_shares, lag_trial
+from proxies.events import EventSettings
 
 pytestmark = pytest.mark.slow
 N = 100  # ensembles per case
 SMALL = dict(n_points=100, n_members=24)  # keeps the suite to a few minutes on 2 cores
 KEEP = EventSettings()  # shifts no longer depend on the background (the old step-keeping key is gone)
+ARCHIVES = 5  # disjoint simulated archives of 100 series (80 red noise, 20 with an excursion)
 
 
-def test_false_significant_events_on_pure_red_noise():
+@pytest.fixture(scope="module")
+def pools():
+    """Each case's ensembles, detected once with default settings: the per-case tests use
+    the first ``N`` of each, the archive test ``ARCHIVES`` disjoint sets of them."""
+    return {"none": case_outcomes("none", 80 * ARCHIVES, 21, EventSettings(), **SMALL),
+            "excursion": case_outcomes("excursion", N, 22, EventSettings(), **SMALL),
+            "step": case_outcomes("step", N, 23, EventSettings(), **SMALL)}
+
+
+def test_false_significant_events_on_pure_red_noise(pools):
     """Target (issue 16): <= 5 % of pure red-noise series with a false significant event.
     Measured with default settings: 4 % of 100 ensembles (shifts tested on the members'
     standardised mean, excursions on the median series)."""
-    r = case_outcomes("none", N, 21, EventSettings(), **SMALL)
+    r = case_shares(pools["none"], "none", N)
     print("red noise: false", r["false"])
     assert r["false"] <= 0.05
 
 
-def test_excursion_power_and_onset_coverage_default_settings():
+def test_excursion_power_and_onset_coverage_default_settings(pools):
     """A 3-SD excursion of 300 yr (6 grid points). Target: power >= 80 %, onset 95 % range
-    holding the truth 85-99 %. Power NOT reached: measured 38 % of 100 ensembles, coverage 89 %;
-    asserted at the level reached (power >= 30 %, coverage >= 80 %)."""
-    r = case_outcomes("excursion", N, 22, EventSettings(), **SMALL)
+    holding the truth 85-99 %. Coverage met: 97 % (onsets carry one parametric AR(1)
+    bootstrap draw per member beside the age spread; 89 % before). Power NOT reached:
+    measured 38 % of 100 ensembles, asserted at the level reached (>= 30 %)."""
+    r = case_shares(pools["excursion"], "excursion", N)
     print("excursion: found", r["found"], "covered", r["covered"], "false", r["false"])
     assert r["found"] >= 0.30
-    assert 0.80 <= r["covered"] <= 1.0
+    assert 0.85 <= r["covered"] <= 0.99
 
 
-def test_step_power_and_onset_coverage_default_settings():
+def test_step_power_and_onset_coverage_default_settings(pools):
     """A lasting 3-SD step (>= 33 grid points each side), default settings. Target: power >=
-    80 %, onset coverage 85-99 %. NOT reached: power measured 71 % of 100 ensembles (2 %
-    before shifts were sought on the series itself), asserted >= 60 %; coverage 63 % (the
-    ramp onset of a step in red noise is biased old, and the members' spread holds the age
-    error only), asserted >= 40 %."""
-    r = case_outcomes("step", N, 23, EventSettings(), **SMALL)
+    80 %, onset coverage 85-99 %. Coverage met: 93 % of the found steps (63 % before the
+    onsets carried the change's location uncertainty and lost the ramp start's old bias).
+    Power NOT reached: 69 % of 100 ensembles, asserted >= 60 % (the members' red-noise null
+    comes out 2-4 grid steps where the climate has 1.5: see the README's cautions)."""
+    r = case_shares(pools["step"], "step", N)
     print("step: found", r["found"], "covered", r["covered"], "false", r["false"])
     assert r["found"] >= 0.60
-    assert r["covered"] >= 0.40
+    assert 0.85 <= r["covered"] <= 0.99
 
 
-def test_fdr_keeps_the_share_of_false_discoveries_of_an_archive_low():
-    """An archive of 100 series: 80 pure red noise, 20 with a 3-SD excursion. Target: with the
-    Benjamini-Hochberg q-value at 0.05, the share of false discoveries among the events that
-    survive is at most 10 %, and true events can survive: beyond the surrogates' range the
-    p-value comes from a Gumbel tail (validated in tests/test_event_significance.py), so it
-    is no longer stuck at about 3 / (n_surrogates + 1). An event within 300 yr of a planted
-    excursion counts as real whatever kind it is reported as."""
-    frames, truth = {}, {}
-    for i in range(100):
-        kind = "excursion" if i < 20 else "none"
-        ages, values, onset = simulated_ensemble(rng_for(25, "archive", i), kind=kind, **SMALL)
-        events, _, _, _ = detect_series_events(ages, values, EventSettings(), rng_for(25, "archive-events", i))
-        core = f"S{i:03d}"
-        if len(events):
-            events = events.assign(core_id=core, event_id=[f"t-E{k:02d}" for k in range(len(events))],
-                                   variable="t")
-            frames[core] = events
-            truth[core] = (kind, onset)
-    table = archive_event_table(frames, 0.05)
-    real = np.array([truth[c][0] == "excursion" and abs(o - truth[c][1]) <= 300
-                     for c, o in zip(table["core_id"], table["onset_median"])])
-    called = table["survives_fdr"].to_numpy()
-    print("archive: called", called.sum(), "false", (called & ~real).sum())
-    assert (called & ~real).sum() <= 0.20 * max(called.sum(), 1)
-    assert (called & real).sum() >= 3
-    assert table["p_value"].min() < 1 / 201
+def test_fdr_keeps_the_share_of_false_discoveries_of_an_archive_low(pools):
+    """``ARCHIVES`` disjoint archives of 100 series each: 80 pure red noise, 20 with a 3-SD
+    excursion. Target: with the Benjamini-Hochberg q-value at 0.05 over every searched series
+    (a series without events counts as one hypothesis with p = 1), the share of false
+    discoveries among the events that survive is at most 10 %, reported as mean and spread
+    over the archives (one archive says little: a handful of events survive). An event of a
+    planted excursion's direction whose span from onset to end comes within 300 yr of the
+    planted one is a true discovery (its onset error is the coverage tests' business); the
+    strict count (onset within 300 yr) is printed beside. Measured: 0 false of 10 survivors
+    in 5 archives (strict: 1 of 10); with the family of reported events only: 2 false of 14
+    (archive shares 0.25, 0, 0, 0, 0.25). Beyond the surrogates' range the p-value comes
+    from a Gumbel tail (tests/test_event_significance.py), so true events can survive."""
+    shares, strict, called_real = [], [], 0
+    for k in range(ARCHIVES):
+        r = archive_false_share(pools, {"none": range(80 * k, 80 * (k + 1)), "excursion": range(20 * k, 20 * (k + 1))})
+        shares.append(r["false"] / max(r["called"], 1))
+        strict.append(r["false_strict"] / max(r["called"], 1))
+        called_real += r["called"] - r["false"]
+        print(f"archive {k}: {r}")
+    print("false share: mean", np.mean(shares), "range", np.min(shares), "-", np.max(shares),
+          "| strict: mean", np.mean(strict), "range", np.min(strict), "-", np.max(strict))
+    assert np.mean(shares) <= 0.10
+    assert called_real >= ARCHIVES
 
 
 @pytest.mark.parametrize("lag_yr", [0.0, 200.0])

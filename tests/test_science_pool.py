@@ -59,6 +59,7 @@ def test_pool_run_gives_the_same_bytes_and_failures_as_threads(tmp_path, pool_on
     pooled = execute_run(config, tmp_path / "pool", cache_dir=tmp_path / "cache-pool",
                          choice=ExecutorChoice(workers=2), report=False)
     assert SHARED.reads == 0, "with the pool, the stages read their inputs in the workers"
+    assert not list((tmp_path / "cache-pool").glob(".head-start-*")), "the head start's side store is removed"
     _, alive = psutil.wait_procs(_workers(), timeout=10)
     assert alive == [], "the workers end with the run's flow"
     monkeypatch.setenv(science_pool.PROCESSES_ENV, "0")
@@ -80,7 +81,8 @@ def test_pool_size_follows_cpus_threads_cores_and_the_environment(monkeypatch):
     monkeypatch.delenv(science_pool.PROCESSES_ENV, raising=False)
     assert science_pool.pool_size(threads=2, units=4, cpus=2) == 2
     assert science_pool.pool_size(threads=8, units=3, cpus=4) == 3
-    assert science_pool.pool_size(threads=2, units=1, cpus=2) == 0  # one core: no pool
+    assert science_pool.pool_size(threads=2, units=1, cpus=2) == 1  # one core: its head start
+    assert science_pool.pool_size(threads=2, units=4, cpus=1) == 0  # one CPU: no pool
     assert science_pool.pool_size(threads=1, units=9, cpus=2) == 0  # one thread: no pool
     monkeypatch.setenv(science_pool.PROCESSES_ENV, "0")
     assert science_pool.pool_size(threads=2, units=4, cpus=2) == 0

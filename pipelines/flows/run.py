@@ -228,10 +228,11 @@ def _orchestrated(run_dir: pathlib.Path, plan: RunPlan, cache: pathlib.Path, cho
     observer = _DrawWhenPublished(progress, helper, run_dir) if helper is not None else progress
     observer_id = register_observer(observer) if observer is not None else None
     plan_id = register_plan(plan)
-    units = len(plan.core_folders) + len(plan.auxiliary.get("series", {}))
     try:
-        # the science workers start first: their imports overlap the Prefect server's start-up
-        with science_pool_for_run(choice.workers, units, use=not (choice.dask_address or choice.dask_local)):
+        # the science workers start first: their imports and the first cores' head start
+        # overlap the Prefect server's start-up
+        with science_pool_for_run(plan, str(cache), choice.workers, recompute=recompute,
+                                  use=not (choice.dask_address or choice.dask_local)):
             if local_server is not None and progress is not None:
                 progress.phase("starting the Prefect server")
             api_url = local_server.wait_ready() if local_server is not None else None

@@ -59,7 +59,8 @@ PARENT_POLL_SECONDS = 0.5
 def pool_size(threads: int, units: int, cpus: int | None = None) -> int:
     """Worker processes for a run of ``units`` cores (and dated series) on ``threads`` task
     threads: ``$DOWNCORE_SCIENCE_PROCESSES`` when set, else ``min(CPUs, threads, units)``,
-    and 0 (no pool) when that is below 2."""
+    and 0 (no pool) on one CPU or one thread. A one-core run gets one worker: its head start
+    (:mod:`pipelines.flows.head_start`) overlaps the Prefect server's start-up."""
     text = os.environ.get(PROCESSES_ENV, "").strip()
     if text:
         try:
@@ -69,8 +70,9 @@ def pool_size(threads: int, units: int, cpus: int | None = None) -> int:
                              "(0 runs the science in the tasks' threads)") from None
         return max(0, wanted)
     cpus = cpus if cpus is not None else _available_cpus()
-    size = min(cpus, int(threads), int(units))
-    return size if size >= 2 else 0
+    if cpus < 2 or int(threads) < 2:
+        return 0
+    return max(0, min(cpus, int(threads), int(units)))
 
 
 def _available_cpus() -> int:
@@ -142,6 +144,13 @@ def _run_stage(name: str, plan_path: str, entries: dict, store_root: str, recomp
         return "failed", problem_text(error)
 
 
+def _head_start(plan_path: str, store_root: str, side_root: str, folder: str) -> None:
+    """In a worker: the head start of one core (:func:`pipelines.flows.head_start.run_head_start`)."""
+    from pipelines.flows.head_start import run_head_start
+
+    run_head_start(_plan_from(plan_path), store_root, side_root, folder)
+
+
 # --- the parent side ---------------------------------------------------------------------
 
 @contextlib.contextmanager
@@ -178,6 +187,7 @@ class SciencePool:
         self._folder = tempfile.mkdtemp(prefix="downcore-science-")
         self._plans: dict[int, tuple[Any, str]] = {}
         self._executor = self._new_executor()
+        self._head: Any = None
 
     def _new_executor(self) -> concurrent.futures.ProcessPoolExecutor:
         executor = concurrent.futures.ProcessPoolExecutor(
@@ -234,10 +244,41 @@ class SciencePool:
                     raise
         raise AssertionError("unreachable")  # pragma: no cover
 
+    def start_head_start(self, plan: Any, store_root: str, folders: list[str]) -> None:
+        """Give each worker one of ``folders`` to begin with (:mod:`pipelines.flows.head_start`)."""
+        from pipelines.flows.head_start import HeadStart
+
+        head = HeadStart(store_root)
+        plan_path = self._plan_file(plan)
+        with self._lock:
+            executor = self._executor
+        for folder in folders[:self.size]:
+            head.futures[folder] = executor.submit(_head_start, plan_path, store_root, head.side_root, folder)
+        self._head = head
+
+    def _claimed(self, name: str, plan: Any, entries: dict, store: Any) -> dict | None:
+        """The head start's entry for this stage, when it computed it."""
+        from pipelines.flows.head_start import HEAD_START_STAGES
+
+        head = self._head
+        if head is None or name not in HEAD_START_STAGES or entries.get("folder") not in head.futures:
+            return None
+        from pipelines.flows.stage_table import STAGES, stage_key
+
+        stage = STAGES[name]
+        key = stage_key(stage, plan, {inp: entries[inp] for inp in stage.inputs})
+        try:
+            return head.claim(name, entries["folder"], key, store)
+        except (OSError, ValueError, KeyError):  # a damaged head start: the stage is computed
+            return None
+
     def run_stage(self, name: str, plan: Any, entries: dict, store: Any, recompute: bool) -> tuple[str, Any]:
-        """Run stage ``name`` in a worker and wait for it; see :func:`_run_stage` for the
-        result. A stage whose worker dies is tried once more in a fresh pool; when that
-        worker dies too, the stage has failed (``("failed", message)``)."""
+        """Run stage ``name`` in a worker and wait for it (or adopt its head start's entry);
+        see :func:`_run_stage` for the result. A stage whose worker dies is tried once more
+        in a fresh pool; when that worker dies too, the stage has failed (``("failed", message)``)."""
+        claimed = None if recompute else self._claimed(name, plan, entries, store)
+        if claimed is not None:
+            return "done", claimed
         try:
             return self.call(_run_stage, name, self._plan_file(plan), entries, str(store.root), recompute)
         except BrokenProcessPool:
@@ -255,6 +296,8 @@ class SciencePool:
             with contextlib.suppress(Exception):
                 process.terminate()
         shutil.rmtree(self._folder, ignore_errors=True)
+        if self._head is not None:
+            self._head.remove()
 
 
 _ACTIVE: SciencePool | None = None
@@ -266,25 +309,32 @@ def active_pool() -> SciencePool | None:
 
 
 @contextlib.contextmanager
-def science_pool_for_run(threads: int, units: int, use: bool = True) -> Iterator[SciencePool | None]:
-    """The pool the tasks of one run use (see :func:`pool_size`), or ``None``; its workers are
-    ended when the run's flow has returned.
+def science_pool_for_run(plan: Any, store_root: str, threads: int, use: bool = True,
+                         recompute: bool = False) -> Iterator[SciencePool | None]:
+    """The pool the tasks of one run use (see :func:`pool_size`), or ``None``; its workers
+    begin with the head start of the first cores (not with ``recompute``) and are ended when
+    the run's flow has returned.
 
     Parameters
     ----------
+    plan : RunPlan
+        The run's plan.
+    store_root : str
+        Its work store.
     threads : int
         The run's task threads.
-    units : int
-        Its cores and dated series.
     use : bool
         False for runners that are not this process's threads (Dask): then no pool.
     """
     global _ACTIVE
+    units = len(plan.core_folders) + len(plan.auxiliary.get("series", {}))
     size = pool_size(threads, units) if use else 0
     if size == 0:
         yield None
         return
     pool = _ACTIVE = SciencePool(size)
+    if not recompute:
+        pool.start_head_start(plan, str(store_root), list(plan.core_folders))
     try:
         yield pool
     finally:

@@ -36,7 +36,8 @@ def run_event_tables(results: dict, settings: EventSettings) -> tuple[pd.DataFra
     -------
     (archive_events, lead_lag) : DataFrame, DataFrame
     """
-    archive = archive_event_table({cid: r.events for cid, r in results.items()}, settings.alpha)
+    searched = sum(int(r.probability["variable"].nunique()) for r in results.values() if len(r.probability))
+    archive = archive_event_table({cid: r.events for cid, r in results.items()}, settings.alpha, searched)
     onsets = [r.onsets.assign(core_id=cid) for cid, r in sorted(results.items()) if len(r.onsets)]
     onsets = pd.concat(onsets, ignore_index=True) if onsets else pd.DataFrame(
         columns=["core_id", "event_id", "member", "onset_cal_bp"])

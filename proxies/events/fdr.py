@@ -33,13 +33,17 @@ ARCHIVE_EVENT_COLUMNS = ["core_id", "event_id", "variable", "kind", "direction",
                          "p_value", "q_value", "significant", "survives_fdr", "note"]
 
 
-def benjamini_hochberg(p_values: np.ndarray) -> np.ndarray:
+def benjamini_hochberg(p_values: np.ndarray, n_tests: int | None = None) -> np.ndarray:
     """Benjamini-Hochberg adjusted p-values (same order as given; NaN stays NaN).
 
     Parameters
     ----------
     p_values : array_like (m,)
         p-values in [0, 1].
+    n_tests : int, optional
+        Number of hypotheses in the family when it is larger than the number of finite
+        p-values given: the others count as p = 1 (a hypothesis with no candidate to report
+        cannot be rejected; a null p-value replaced by 1 stays valid, so the control holds).
 
     Returns
     -------
@@ -54,17 +58,18 @@ def benjamini_hochberg(p_values: np.ndarray) -> np.ndarray:
     if np.any((p[ok] < 0) | (p[ok] > 1)):
         raise ValueError("p-values must lie in [0, 1]")
     values = p[ok]
-    m = values.size
+    m = max(values.size, int(n_tests or 0))
     order = np.argsort(values, kind="mergesort")
-    scaled = values[order] * m / np.arange(1, m + 1)
+    scaled = values[order] * m / np.arange(1, values.size + 1)
     q_sorted = np.minimum.accumulate(scaled[::-1])[::-1]
-    q = np.empty(m)
+    q = np.empty(values.size)
     q[order] = np.minimum(q_sorted, 1.0)
     out[ok] = q
     return out
 
 
-def archive_event_table(events_by_core: dict[str, pd.DataFrame], alpha: float) -> pd.DataFrame:
+def archive_event_table(events_by_core: dict[str, pd.DataFrame], alpha: float,
+                        searched: int | None = None) -> pd.DataFrame:
     """All events of a run with their Benjamini-Hochberg ``q_value`` beside the ``p_value``.
 
     Parameters
@@ -73,6 +78,12 @@ def archive_event_table(events_by_core: dict[str, pd.DataFrame], alpha: float) -
         core id -> that core's events table (``events.parquet`` columns).
     alpha : float
         Level of both the per-series test and the FDR.
+    searched : int, optional
+        Number of series (core x variable) searched for events. Each searched series without
+        any reported event enters the family as one hypothesis with p = 1: the family is then
+        every searched series, not only those where the members' detections formed an event,
+        a selection that favours small p-values (without it, simulated archives of 100 series
+        had a false share of 10-17 %; tests/test_event_simulation.py).
 
     Returns
     -------
@@ -87,7 +98,10 @@ def archive_event_table(events_by_core: dict[str, pd.DataFrame], alpha: float) -
     if "note" not in table:
         table["note"] = ""
     table["note"] = table["note"].fillna("").astype(str)
-    table["q_value"] = benjamini_hochberg(table["p_value"].to_numpy(dtype=float))
+    with_events = table[["core_id", "variable"]].drop_duplicates().shape[0]
+    extra = max(int(searched or 0) - with_events, 0)
+    p_values = table["p_value"].to_numpy(dtype=float)
+    table["q_value"] = benjamini_hochberg(p_values, int(np.isfinite(p_values).sum()) + extra)
     table["significant"] = table["significant"].astype(bool)
     table["survives_fdr"] = table["significant"] & (table["q_value"] <= alpha)
     return table[ARCHIVE_EVENT_COLUMNS].reset_index(drop=True)

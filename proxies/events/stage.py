@@ -15,7 +15,9 @@ Per variable of a reconstruction, oldest first:
    in a whole red-noise series, so each member has a false event anywhere with probability
    about ``alpha``;
 4. each significant candidate gets onset, end and amplitude from ramp fits (Mudelsee 2000) on
-   the member's gridded values;
+   the member's gridded values, onset (and a shift's end) as one parametric AR(1) bootstrap
+   draw about the fit (:func:`proxies.events.ramp.ramp_location_draws`), so that the spread
+   over members holds the change's location uncertainty beside the age error;
 5. member detections of the same kind and direction are grouped by their change times
    (``cluster_gap_yr``) into events; a group found by fewer than ``min_probability`` of the
    members is not reported.
@@ -61,7 +63,7 @@ import numpy as np
 import pandas as pd
 
 from proxies.events.candidates import EXCURSION, KIND_NAMES, Candidates
-from proxies.events.ramp import fit_ramps
+from proxies.events.ramp import fit_ramps, ramp_location_draws
 from proxies.events.scan import ScanProfile
 from proxies.events.search import Search as _Search
 from proxies.events.search import central_search as _central_search
@@ -125,8 +127,11 @@ def _ramp_windows(cp: np.ndarray, lo: np.ndarray, hi: np.ndarray, half: int):
 
 
 def _member_detections(x: np.ndarray, ages_fwd: np.ndarray, cands: Candidates, p: np.ndarray,
-                       settings: EventSettings) -> pd.DataFrame:
-    """Ramp-fitted onset, end and amplitude of every significant candidate."""
+                       settings: EventSettings, boot: tuple | None = None) -> pd.DataFrame:
+    """Ramp-fitted onset, end and amplitude of every significant candidate; with ``boot =
+    (rng, persistence)`` onset (and a shift's end) are one parametric AR(1) bootstrap draw
+    about the fit (:func:`proxies.events.ramp.ramp_location_draws`), so that the members'
+    spread holds the change's location uncertainty beside the age error."""
     sig = cands.subset(p < settings.alpha)
     p_sig = p[p < settings.alpha]
     if len(sig) == 0:
@@ -153,6 +158,10 @@ def _member_detections(x: np.ndarray, ages_fwd: np.ndarray, cands: Candidates, p
     end_index = np.maximum(end_index, down.i2)
     onset = ages_fwd[down.i1]
     end = ages_fwd[end_index]
+    if boot is not None:
+        onset, drawn_end = ramp_location_draws(ages_fwd, series, down, start, stop, boot[1], boot[0],
+                                               settings.ramp_window_points)
+        end = np.minimum(np.where(is_exc, end, drawn_end), onset)
     return pd.DataFrame({"member": sig.member, "kind": sig.kind, "sign": sig.sign,
                          "change_age": ages_fwd[sig.first], "onset": onset, "end": end,
                          "duration": onset - end, "amplitude": down.x2 - down.x1,
@@ -198,7 +207,7 @@ def _member_event_p(kind: int, sign: float, young: float, old: float, cands: Can
 
 
 def _local_detections(sign: float, young: float, old: float, x: np.ndarray, ages_fwd: np.ndarray,
-                      members: _Search, max_exc: int, settings: EventSettings) -> pd.DataFrame:
+                      members: _Search, max_exc: int, settings: EventSettings, boot=None) -> pd.DataFrame:
     """Members whose best excursion block starting in [young, old] cal BP stands out against
     the red-noise null of the best block in a stretch of that many starts (local test)."""
     score, length = members.profile.best(int(sign))
@@ -217,7 +226,7 @@ def _local_detections(sign: float, young: float, old: float, x: np.ndarray, ages
     local = Candidates(cols[keep], np.full(keep.sum(), EXCURSION, dtype=np.int64), first, stop, z[keep],
                        np.full(keep.sum(), float(sign)), np.maximum(first - max_exc, 0), stop - 1,
                        np.minimum(stop - 1 + max_exc, n_t - 1))
-    return _member_detections(x, ages_fwd, local, p[keep], settings)
+    return _member_detections(x, ages_fwd, local, p[keep], settings, boot)
 
 
 def _event_p_value(kind: int, sign: float, young: float, old: float, central: _Search | None,
@@ -235,7 +244,7 @@ def _index_of(ages_fwd: np.ndarray, age: float) -> int:
 
 
 def _fits_elsewhere(kind: int, sign: float, showing: pd.DataFrame, x: np.ndarray, ages_fwd: np.ndarray,
-                    max_exc: int, settings: EventSettings) -> pd.DataFrame:
+                    max_exc: int, settings: EventSettings, boot=None) -> pd.DataFrame:
     """Ramp fits at the event's place for the members that do not show it, so that onset and
     amplitude are summarised over all members (a summary over detecting members only is
     biased towards large changes). The place is the detecting members' median change (and,
@@ -255,7 +264,7 @@ def _fits_elsewhere(kind: int, sign: float, showing: pd.DataFrame, x: np.ndarray
     full = lambda v: np.full(k, v, dtype=np.int64)  # noqa: E731
     pseudo = Candidates(missing.astype(np.int64), full(kind), full(first), full(second), np.zeros(k),
                         np.full(k, float(sign)), full(lo), full(mid), full(hi))
-    return _member_detections(x, ages_fwd, pseudo, np.zeros(k), settings)
+    return _member_detections(x, ages_fwd, pseudo, np.zeros(k), settings, boot)
 
 
 def _event_row(kind: int, sign: float, showing: pd.DataFrame, p_value: float, n_members: int,
@@ -277,7 +286,7 @@ def _event_row(kind: int, sign: float, showing: pd.DataFrame, p_value: float, n_
 
 
 def _events_from_detections(det: pd.DataFrame, x: np.ndarray, ages_fwd: np.ndarray, members: _Search,
-                            central: _Search | None, max_exc: int, settings: EventSettings):
+                            central: _Search | None, max_exc: int, settings: EventSettings, boot=None):
     """Events: groups of member detections, plus significant excursions of the
     ensemble-median series that no group covers; each tested on the ensemble-median series;
     members showing an established excursion counted by the local test."""
@@ -289,7 +298,7 @@ def _events_from_detections(det: pd.DataFrame, x: np.ndarray, ages_fwd: np.ndarr
     def add(kind, sign, young, old, record, p_value):
         showing = record
         if int(kind) == EXCURSION and p_value < settings.alpha:
-            local = _local_detections(float(sign), young, old, x, ages_fwd, members, max_exc, settings)
+            local = _local_detections(float(sign), young, old, x, ages_fwd, members, max_exc, settings, boot)
             if len(local):
                 showing = local.assign(event=len(rows), test="local")
                 local_frames.append(showing)
@@ -297,7 +306,7 @@ def _events_from_detections(det: pd.DataFrame, x: np.ndarray, ages_fwd: np.ndarr
             return
         if showing is record:
             det.loc[record.index, "event"] = len(rows)
-        elsewhere = _fits_elsewhere(kind, sign, showing, x, ages_fwd, max_exc, settings)
+        elsewhere = _fits_elsewhere(kind, sign, showing, x, ages_fwd, max_exc, settings, boot)
         rows.append(_event_row(kind, sign, showing, p_value, n_members, settings, elsewhere))
         fitted_elsewhere.append(elsewhere.assign(event=len(rows) - 1, test="fitted"))
         spans.append(showing[["member", "onset", "end"]].to_numpy())
@@ -378,8 +387,10 @@ def detect_series_events(age_cal_bp: np.ndarray, values: np.ndarray, settings: E
     members = _search(x, observed, background, max_exc, settings, rng)
     tau_yr = members.tau_steps * step
     central = _central_search(x, observed, members, background, max_exc, settings, rng)
-    det = _member_detections(x, ages_fwd, members.cands, members.p, settings)
-    rows, spans, det, elsewhere = _events_from_detections(det, x, ages_fwd, members, central, max_exc, settings)
+    boot = (rng, float(np.exp(-1.0 / members.tau_steps)) if members.tau_steps > 0 else 0.0)
+    det = _member_detections(x, ages_fwd, members.cands, members.p, settings, boot)
+    rows, spans, det, elsewhere = _events_from_detections(det, x, ages_fwd, members, central, max_exc, settings,
+                                                          boot)
     events = pd.DataFrame(rows)
     det.attrs["elsewhere"] = elsewhere
     probability = _probability_through_time(age_cal_bp, spans, n_members)
