@@ -29,16 +29,16 @@ import concurrent.futures
 import contextlib
 import multiprocessing
 import os
-import pathlib
 import pickle
 import shutil
 import signal
-import sys
 import tempfile
 import threading
 import time
 from concurrent.futures.process import BrokenProcessPool
 from typing import Any, Iterator
+
+from pipelines.spawning import main_script_not_rerun
 
 __all__ = ["SciencePool", "POOL_STAGES", "PROCESSES_ENV", "pool_size", "science_pool_for_run",
            "active_pool"]
@@ -153,25 +153,6 @@ def _head_start(plan_path: str, store_root: str, side_root: str, folder: str) ->
 
 # --- the parent side ---------------------------------------------------------------------
 
-@contextlib.contextmanager
-def _main_script_hidden() -> Iterator[None]:
-    """While workers are spawned: hide the main script, which multiprocessing would otherwise
-    import again in each worker (a script without a ``__main__`` guard would start its run
-    again); the workers need nothing from it."""
-    main = sys.modules.get("__main__")
-    saved = {name: getattr(main, name) for name in ("__file__", "__spec__") if hasattr(main, name)}
-    try:
-        for name in saved:
-            if name == "__spec__":
-                main.__spec__ = None
-            else:
-                delattr(main, name)
-        yield
-    finally:
-        for name, value in saved.items():
-            setattr(main, name, value)
-
-
 class SciencePool:
     """``size`` spawned worker processes running stages (see the module docstring).
 
@@ -193,7 +174,7 @@ class SciencePool:
         executor = concurrent.futures.ProcessPoolExecutor(
             max_workers=self.size, mp_context=multiprocessing.get_context("spawn"),
             initializer=_worker_setup, initargs=(os.getpid(),))
-        with _main_script_hidden():  # workers are spawned on demand: all of them now
+        with main_script_not_rerun():  # workers are spawned on demand: all of them now
             for _ in range(self.size):
                 executor.submit(_warm_up)
         return executor

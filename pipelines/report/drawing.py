@@ -17,18 +17,17 @@ claimed but did not deliver (it crashed) is drawn here.
 from __future__ import annotations
 
 import concurrent.futures
-import contextlib
 import multiprocessing
 import os
 import pathlib
 import re
 import shutil
-import sys
 import tempfile
 import threading
-from typing import Callable, Iterator
+from typing import Callable
 
 from pipelines.report import style
+from pipelines.spawning import main_script_not_rerun as _main_script_not_rerun
 
 __all__ = ["FigureClaims", "DrawnFigures", "ReportHelper", "ForkedHelper", "fork_is_safe",
            "helpers_wanted", "own_helper", "HELPERS_ENV", "HELPER_MIN_CORES"]
@@ -142,25 +141,6 @@ def _core_job(run_dir: str, core_id: str, claims_folder: str) -> dict:
     from pipelines.report.build import draw_core_claimed
 
     return draw_core_claimed(pathlib.Path(run_dir), core_id, FigureClaims(claims_folder))
-
-
-@contextlib.contextmanager
-def _main_script_not_rerun() -> Iterator[None]:
-    """While a process is spawned: hide the main script from multiprocessing, which would
-    otherwise run it again in the child (a user's script without a ``__main__`` guard would
-    start its run a second time). The helper needs nothing from the main script."""
-    main = sys.modules.get("__main__")
-    saved = {name: getattr(main, name) for name in ("__file__", "__spec__") if hasattr(main, name)}
-    try:
-        for name in saved:
-            if name == "__spec__":
-                main.__spec__ = None
-            else:
-                delattr(main, name)
-        yield
-    finally:
-        for name, value in saved.items():
-            setattr(main, name, value)
 
 
 def _submitted(executor, job, *args) -> concurrent.futures.Future:
