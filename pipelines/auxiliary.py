@@ -12,7 +12,7 @@ call it, ``(run_config, name)``.
 from __future__ import annotations
 
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING
 
 import numpy as np
 import pandas as pd
@@ -22,6 +22,9 @@ from proxies.calibration import (InstrumentalSeries, InstrumentalSpec, TrainingS
 from proxies.problems import InputError, Problem
 
 from pipelines.tables import read_table
+
+if TYPE_CHECKING:  # for the annotation only
+    from pipelines.config import RunConfig
 
 __all__ = ["read_training_set", "read_instrumental"]
 
@@ -55,9 +58,9 @@ def _require_columns(table, columns, name):
                                   column=c) for c in missing])
 
 
-def _from_config(config: Any, section: str, name: str, spec_class):
-    where = str(getattr(config, "path", "run config"))
-    tables = getattr(config, "sections", {}).get(section, {})
+def _from_config(config: RunConfig, section: str, name: str, spec_class):
+    where = str(config.path)
+    tables = config.sections.get(section, {})
     if name not in tables:
         raise InputError(Problem(where, f"no [{section}.{name}] table", column=f"{section}.{name}"))
     spec = spec_class.from_mapping(name, tables[name], where)

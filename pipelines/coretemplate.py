@@ -5,8 +5,9 @@ The template is meant to be filled by hand (or by a script) and then checked wit
 ``downcore check``. Values the user did not give on the command line stay as commented
 ``REQUIRED`` lines, so an unfilled folder fails the check with one precise problem per
 missing key, and the empty tables fail with "no data rows" until rows are added. The keys
-written here are exactly those :mod:`proxies.cores.validation` accepts
-(``tests/test_new_core.py`` keeps the two in step).
+written here are exactly those core.toml accepts, each under its table and in the declared
+order (``CORE_KEYS``, ``FILE_KEYS`` and ``BLOCK_KEYS`` of :mod:`proxies.cores.core_file`;
+``tests/test_new_core.py`` fails when a declared key is missing here or one is added here only).
 """
 
 from __future__ import annotations

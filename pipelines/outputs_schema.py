@@ -144,7 +144,8 @@ def markdown_table() -> str:
     """The README's table of run-folder tables and their columns."""
     lines = ["| file | column | type | units | meaning |", "|---|---|---|---|---|"]
     for spec in TABLES.values():
-        lines.append(f"| `{spec.path}` | | | | {_cell(spec.doc)} |")
+        copy = f" (+ `{spec.csv_file_name}`, written with it)" if spec.with_csv else ""
+        lines.append(f"| `{spec.path}`{copy} | | | | {_cell(spec.doc)} |")
         for column in spec.columns:
             name = f"`{column.name}`" + ("" if column.name in spec.required else " (optional)")
             lines.append(f"| | {name} | {column.dtype} | {_cell(column.units)} | {_cell(column.doc)} |")

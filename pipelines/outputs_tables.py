@@ -54,10 +54,18 @@ class OutputTable:
     file_format: str = "parquet"
     #: columns a reader may rely on (the writer always writes them); the others are optional
     required: tuple[str, ...] = ()
+    #: the stage writes the CSV copy (``X.csv``, :func:`pipelines.report.csv.table_csv_text`)
+    #: beside the table itself, so it exists without the exports (which then leave it alone)
+    with_csv: bool = False
 
     @property
     def file_name(self) -> str:
         return self.path.rsplit("/", 1)[-1]
+
+    @property
+    def csv_file_name(self) -> str:
+        """The CSV copy's file name (``X.csv`` beside ``X.parquet``)."""
+        return self.file_name.rsplit(".", 1)[0] + ".csv"
 
     @property
     def names(self) -> tuple[str, ...]:
@@ -306,7 +314,7 @@ TABLES: dict[str, OutputTable] = {t.key: t for t in (
                "every raw proxy column of the samples file, as given (and its _error column)")),
         required=("depth_cm", "thickness_cm", "event_free_depth_cm", "age_median_cal_bp",
                   "age_q160_cal_bp", "age_q840_cal_bp", "age_q025_cal_bp", "age_q975_cal_bp",
-                  "in_event_layer", "event_layer_kind")),
+                  "in_event_layer", "event_layer_kind"), with_csv=True),
     OutputTable("reconstruction", "<core>/reconstruction.parquet", "values and anomalies on the time grid", (
         _AGE, _c("year_ce", "float", "yr CE", "1950 - age_cal_bp"), _VARIABLE,
         _c("proxy", "string", "", "proxy behind the series"),

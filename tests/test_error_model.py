@@ -133,3 +133,15 @@ def test_coefficient_errors_and_shared_fraction_are_never_both():
         CalibrationSettings.from_mapping({"x": {
             "method": "linear", "slope": 1.0, "intercept": 0.0, "variable": "t",
             "slope_error": 0.1, "shared_error_fraction": 0.5}}, "run.toml")
+
+
+@pytest.mark.parametrize("form, key", [
+    ({"method": "linear", "slope": 0.0, "intercept": 1.0}, "slope"),
+    ({"method": "exponential", "prefactor": 2.0, "exponent": 0.0}, "exponent"),
+])
+def test_a_user_form_that_cannot_be_inverted_is_refused(form, key):
+    """A zero climate coefficient leaves the proxy constant in climate: no inverse (the
+    linear form's slope, the exponential form's exponent), named by its key."""
+    from proxies.problems import InputError
+    with pytest.raises(InputError, match=f"{key} must not be zero \\(not invertible\\)"):
+        CalibrationSettings.from_mapping({"x": {**form, "variable": "t"}}, "run.toml")

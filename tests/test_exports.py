@@ -102,6 +102,21 @@ def test_no_csv_on_request(tmp_path):
     assert not _csv_exports(run)
 
 
+def test_exports_leave_the_stage_written_samples_csv_alone(tmp_path):
+    """samples_dated.csv is the samples stage's own output (declared ``with_csv``): the
+    exports keep an existing copy and write only missing ones; other CSV copies are always
+    (re)written from their Parquet table."""
+    run = make_run_folder(tmp_path / "run")
+    core = next(p.parent for p in sorted(run.glob("*/chronology.parquet")))
+    atomic_write_parquet(core / "samples_dated.parquet", pd.DataFrame({"depth_cm": [1.0, 2.0]}))
+    (core / "samples_dated.csv").write_text("from the stage\n", encoding="utf-8")
+    (core / "chronology.csv").write_text("stale\n", encoding="utf-8")
+    written = write_exports(run)
+    assert (core / "samples_dated.csv").read_text(encoding="utf-8") == "from the stage\n"
+    assert core / "samples_dated.csv" not in written
+    assert (core / "chronology.csv").read_text(encoding="utf-8") != "stale\n"
+
+
 def test_netcdf_opens_cleanly_and_every_variable_has_units(exported):
     run, _ = exported
     ds = _open(run / "reconstructions.nc")

@@ -24,7 +24,8 @@ CORE_FILES = {"chronology.parquet", "age_ensemble.parquet", "dates.parquet", "da
               "date_densities.parquet", "hyperparameters.parquet", "calibration.parquet",
               "calibrated_samples.parquet", "calibration_diagnostics.parquet",
               "reconstruction.parquet", "reconstruction_ensemble.parquet", "events.parquet",
-              "event_probability.parquet", "event_onsets.parquet", "samples_dated.parquet", "log.txt"}
+              "event_probability.parquet", "event_onsets.parquet", "samples_dated.parquet",
+              "samples_dated.csv", "log.txt"}
 
 
 def _parquet_bytes(run: pathlib.Path) -> dict[str, bytes]:
@@ -61,6 +62,19 @@ def test_every_table_the_pipeline_writes_fits_the_schema(first_run):
     assert file_problems(run / "timings.csv", TABLES["timings"]) == []
     written = {p.relative_to(run).as_posix() for p in run.rglob("*.parquet")}
     assert "SYN-000/date_ranges.parquet" in written and "stack.parquet" in written
+
+
+def test_per_sample_csv_is_written_without_the_report(first_run):
+    """With report=False (``--no-report``) every dated core still has ``samples_dated.csv``,
+    the text the exports write for a table (pipelines/report/csv.py) of its Parquet file."""
+    from pipelines.report.csv import table_csv_text
+
+    dated = [p.parent for p in first_run.run_dir.glob("*/samples_dated.parquet")]
+    assert len(dated) == 3
+    for core in dated:
+        text = table_csv_text(read_parquet(core / "samples_dated.parquet"))
+        assert (core / "samples_dated.csv").read_text(encoding="utf-8") == text
+    assert not list(first_run.run_dir.glob("*/chronology.csv"))  # the other copies stay exports
 
 
 def test_failing_core_is_isolated_and_reported(first_run):

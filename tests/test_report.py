@@ -364,3 +364,14 @@ def test_all_negligible_outlier_probabilities_collapse_to_one_line(tmp_path):
     assert "below 0.001 for every date (no chart drawn)" in text
     assert not (run / "figures" / "TARN-2_outliers.svg").exists()
     assert "&lt; 0.001" in text
+
+
+def test_tables_the_report_does_not_draw_on_are_checked_not_read(tmp_path):
+    """The reconstruction's members (the largest table) are used by neither the report nor the
+    netCDF: read_run checks their schema only, and a damaged file is still named."""
+    run = make_run_folder(tmp_path / "run")
+    core = next(c for c in read_run(run).cores if c.core_id == "TARN-2")
+    assert "reconstruction_ensemble" not in core.tables and not core.notes
+    (run / "TARN-2" / "reconstruction_ensemble.parquet").write_bytes(b"PAR1 truncated")
+    core = next(c for c in read_run(run).cores if c.core_id == "TARN-2")
+    assert any(n.startswith("reconstruction_ensemble.parquet could not be read") for n in core.notes)

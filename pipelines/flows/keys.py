@@ -27,7 +27,7 @@ KEY_FORMAT = "downcore-key/1"
 
 _PIPELINE_MODULES = ("ingest.py", "tables.py", "config.py", "curvefiles.py", "auxiliary.py",
                      "runfolder.py", "flows/stages.py", "flows/dated_samples.py", "flows/keys.py",
-                     "flows/store.py", "flows/shared.py")
+                     "flows/store.py", "flows/shared.py", "report/csv.py")
 
 
 def canonical(value: Any) -> Any:

@@ -143,7 +143,7 @@ def publish_core_folder(run_dir: str, folder_name: str, entries: list[dict], log
         for entry in entries:
             digests = entry.get("sha256", {})
             for name, path in sorted(entry.get("paths", {}).items()):
-                if name.endswith(".parquet"):
+                if name.endswith((".parquet", ".csv")):  # tables and their stage-written CSV copies
                     target = link_or_copy(path, staged / name)
                     written.append(name)
                     file_name = pathlib.Path(path).name

@@ -3,7 +3,9 @@
 Each ``X.parquet`` of a run folder gets ``X.csv`` beside it: comma-separated, UTF-8, one
 header row, no index, ``\\n`` line ends, floats to :data:`SIGNIFICANT_DIGITS` significant
 digits (full precision stays in the Parquet table), missing values as empty cells, list cells
-joined with ``"; "``. Same table, same bytes.
+joined with ``"; "``. Same table, same bytes. A table declared ``with_csv`` (the per-sample
+table) gets its copy from its stage already (:func:`table_csv_text` too); the exports leave
+that copy as it is and write it only when it is missing (a folder written before).
 """
 
 from __future__ import annotations
@@ -16,6 +18,7 @@ import numpy as np
 import pandas as pd
 import pyarrow.parquet as pq
 
+from pipelines.outputs_schema import table_for_path
 from pipelines.runfolder import atomic_write_text
 
 __all__ = ["parquet_tables", "table_csv_text", "write_csv_beside", "SIGNIFICANT_DIGITS"]
@@ -66,6 +69,11 @@ def table_csv_text(table: pd.DataFrame) -> str:
     return buffer.getvalue()
 
 
+def _copied_by_stage(root: pathlib.Path, path: pathlib.Path) -> bool:
+    spec = table_for_path(path.relative_to(root).as_posix())
+    return spec is not None and spec.with_csv
+
+
 def _pandas_csv_text(table: pd.DataFrame) -> str:
     buffer = io.StringIO()
     table.to_csv(buffer, index=False, lineterminator="\n", float_format=FLOAT_FORMAT)
@@ -98,8 +106,10 @@ def write_csv_beside(run_dir: str | pathlib.Path,
     A Parquet file that cannot be read (truncated, not Parquet) gets no CSV copy; a sentence
     naming it and the reader's error is appended to ``unreadable`` when given.
     """
-    written = []
-    for path in parquet_tables(pathlib.Path(run_dir)):
+    written, root = [], pathlib.Path(run_dir)
+    for path in parquet_tables(root):
+        if path.with_suffix(".csv").is_file() and _copied_by_stage(root, path):
+            continue
         try:
             table = pq.read_table(path).to_pandas()
         except (OSError, ValueError) as error:  # pyarrow's ArrowInvalid is a ValueError

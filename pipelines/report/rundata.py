@@ -26,6 +26,7 @@ from pipelines.runfolder import IN_PROGRESS_MARKER
 __all__ = [
     "read_core",
     "REQUIRED_COLUMNS",
+    "CHECKED_NOT_READ",
     "CoreData",
     "RunData",
     "TrainingData",
@@ -40,6 +41,10 @@ __all__ = [
 
 #: columns each per-core table must hold for the report to use it (from the run-folder schema)
 REQUIRED_COLUMNS: dict[str, tuple[str, ...]] = {key: TABLES[key].required for key in CORE_TABLES}
+
+#: per-core tables neither the report nor the netCDF export draws on (the members of the
+#: reconstruction, the largest table of a run): checked, not read
+CHECKED_NOT_READ = frozenset({"reconstruction_ensemble"})
 
 #: folders inside a run folder that are not cores
 NOT_CORE_FOLDERS = {"training", "figures"}
@@ -193,8 +198,26 @@ def _read_training(folder: pathlib.Path, notes: list[str]) -> list[TrainingData]
             for name in names]
 
 
+def _check_only(path: pathlib.Path, required: tuple[str, ...], notes: list[str]) -> None:
+    """Check a table nobody here reads (its schema: readable, required columns present) and
+    note what is wrong, as :func:`_load` would, without reading its data."""
+    if not path.is_file():
+        return
+    try:
+        names = pq.read_schema(path).names
+    except Exception as error:  # noqa: BLE001 - any unreadable file is reported, not raised
+        notes.append(f"{path.name} could not be read ({type(error).__name__}: {error}); left out")
+        return
+    missing = [c for c in required if c not in names]
+    if missing:
+        notes.append(f"{path.name} lacks column(s) {', '.join(missing)}; left out")
+
+
 def _load_core_tables(core: CoreData, core_dir: pathlib.Path) -> None:
     for name, required in REQUIRED_COLUMNS.items():
+        if name in CHECKED_NOT_READ:
+            _check_only(core_dir / f"{name}.parquet", required, core.notes)
+            continue
         table = _load(core_dir / f"{name}.parquet", required, core.notes)
         if table is not None:
             core.tables[name] = table

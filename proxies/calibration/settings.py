@@ -102,12 +102,17 @@ class _UserForm(ProxyCalibration):
                                           kind="pair[float]")
 
     _pair: ClassVar[tuple[str, str]] = ("", "")
+    #: the coefficient of the climate value: zero would make the form not invertible
+    _climate_coefficient: ClassVar[str] = ""
 
     @classmethod
     def cross_check(cls, values, where):
         a, b = cls._pair
         problems = [Problem(where, f"method '{values['method']}' needs '{k}'",
                             f"give {k} = <number>", column=k) for k in (a, b) if values[k] is None]
+        key = cls._climate_coefficient
+        if values[key] == 0:
+            problems.append(Problem(where, f"{key} must not be zero (not invertible)", column=key))
         if values.get("variable") is None:
             problems.append(Problem(where, f"method '{values['method']}' needs the climate "
                                     "variable name", 'e.g. variable = "temperature"',
@@ -138,14 +143,7 @@ class LinearCalibration(_UserForm):
                                  "member)", low=0.0)
     intercept_error: float = setting(0.0, "1-sigma error of the intercept (shared)", low=0.0)
     _pair: ClassVar[tuple[str, str]] = ("slope", "intercept")
-
-    @classmethod
-    def cross_check(cls, values, where):
-        problems = super().cross_check(values, where)
-        if values["slope"] == 0:
-            problems.append(Problem(where, "slope must not be zero (not invertible)",
-                                    column="slope"))
-        return problems
+    _climate_coefficient: ClassVar[str] = "slope"
 
 
 @dataclass(frozen=True)
@@ -160,13 +158,11 @@ class ExponentialCalibration(_UserForm):
                                      "samples of a member)", low=0.0)
     exponent_error: float = setting(0.0, "1-sigma error of the exponent (shared)", low=0.0)
     _pair: ClassVar[tuple[str, str]] = ("prefactor", "exponent")
+    _climate_coefficient: ClassVar[str] = "exponent"
 
     @classmethod
     def cross_check(cls, values, where):
         problems = super().cross_check(values, where)
-        if values["exponent"] == 0:
-            problems.append(Problem(where, "exponent must not be zero (not invertible)",
-                                    column="exponent"))
         if values["prefactor"] is not None and values["prefactor"] <= 0:
             problems.append(Problem(where, "prefactor must be positive", column="prefactor"))
         return problems

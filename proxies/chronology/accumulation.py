@@ -61,8 +61,8 @@ __all__ = [
     "place_nodes",
 ]
 
-
-_TAIL = 1e-9
+#: probability cut off beyond the last cell of a discretised increment kernel (memory.py's too)
+KERNEL_TAIL = 1e-9
 
 
 @dataclass(frozen=True, eq=False)
@@ -237,7 +237,7 @@ def increment_kernel(dz_cm: float, mean_rate: float, shape: float, step: float, 
                       lambda x: stats.expon.cdf(x, scale=gap_mean)))
     kernel = np.ones(1)
     for isf, cdf in parts:
-        cells = int(np.ceil(isf(_TAIL) / step)) + 2
+        cells = int(np.ceil(isf(KERNEL_TAIL) / step)) + 2
         if max_cells is not None:
             cells = min(cells, max_cells)
         edges = (np.arange(cells + 1) - 0.5) * step

@@ -46,13 +46,11 @@ import numpy as np
 from scipy import fft as sp_fft
 from scipy import stats
 
-from proxies.chronology.accumulation import AccumulationProblem
+from proxies.chronology.accumulation import KERNEL_TAIL, AccumulationProblem
 from proxies.chronology.evidence_weights import members_per_point
 from proxies.chronology.spans import shift_with_potential
 
 __all__ = ["MemoryFit", "rate_classes", "class_kernels", "memory_forward", "fit_memory"]
-
-_TAIL = 1e-9
 
 
 @dataclass(frozen=True, eq=False)
@@ -115,13 +113,13 @@ def class_kernels(dz_cm: float, rates: np.ndarray, within_shape: float, referenc
     rates = np.asarray(rates, dtype=float)
     if dz_cm > 0:
         local = within_shape * dz_cm / reference_cm
-        top = stats.gamma.isf(_TAIL, local, scale=rates.max() * dz_cm / local)
+        top = stats.gamma.isf(KERNEL_TAIL, local, scale=rates.max() * dz_cm / local)
         cells = min(int(np.ceil(top / step)) + 2, max_cells)
         kernel = _gamma_cells(rates * dz_cm, local, step, cells)
     else:
         kernel = np.ones((rates.size, 1))
     if gap_mean is not None:
-        cells = min(int(np.ceil(stats.expon.isf(_TAIL, scale=gap_mean) / step)) + 2, max_cells)
+        cells = min(int(np.ceil(stats.expon.isf(KERNEL_TAIL, scale=gap_mean) / step)) + 2, max_cells)
         edges = (np.arange(cells + 1) - 0.5) * step
         edges[0] = 0.0
         gap = np.diff(stats.expon.cdf(edges, scale=gap_mean))

@@ -42,6 +42,8 @@ TOP_LEVEL_KEYS = ("core", "files", "sections", "event_layers", "hiatuses")
 CORE_KEYS = ("id", "archive", "latitude", "longitude", "collected", "depth_unit", "site", "top_age_error",
              "top_intact")
 FILE_KEYS = ("samples", "dates", "counts", "lead210")
+#: the keys of each ``[[block]]`` table (sections, event layers, hiatuses)
+BLOCK_KEYS = {"sections": ("name", "top"), "event_layers": ("top", "bottom", "kind"), "hiatuses": ("depth",)}
 
 
 def current_year() -> int:
@@ -327,7 +329,7 @@ def _check_sections(where: _Collector, entries: list[dict], factor: float, unit:
     seen: set[str] = set()
     for number, entry in enumerate(entries, start=1):
         path = f"sections[{number}]"
-        _unknown_keys(where, entry, ("name", "top"), path)
+        _unknown_keys(where, entry, BLOCK_KEYS["sections"], path)
         name = _text(where, entry, "name", f"{path}.name", required=True)
         top = _number(where, entry, "top", f"{path}.top", required=True, lo=0, unit=unit)
         if top is not None and any(abs(s.top_cm - top * factor) < 1e-9 for s in sections):
@@ -348,7 +350,7 @@ def _check_event_layers(where: _Collector, entries: list[dict], factor: float, u
     layers: list[tuple[int, EventLayer]] = []
     for number, entry in enumerate(entries, start=1):
         path = f"event_layers[{number}]"
-        _unknown_keys(where, entry, ("top", "bottom", "kind"), path)
+        _unknown_keys(where, entry, BLOCK_KEYS["event_layers"], path)
         top = _number(where, entry, "top", f"{path}.top", required=True, lo=0, unit=unit)
         bottom = _number(where, entry, "bottom", f"{path}.bottom", required=True, lo=0, unit=unit)
         kind = _text(where, entry, "kind", f"{path}.kind", required=False) or "unspecified"
@@ -380,7 +382,7 @@ def _check_hiatuses(
     depths = []
     for number, entry in enumerate(entries, start=1):
         path = f"hiatuses[{number}]"
-        _unknown_keys(where, entry, ("depth",), path)
+        _unknown_keys(where, entry, BLOCK_KEYS["hiatuses"], path)
         depth = _number(where, entry, "depth", f"{path}.depth", required=True, lo=0, unit=unit)
         if depth is None:
             continue
