@@ -104,6 +104,32 @@ def test_a_call_that_kills_its_worker_twice_raises_and_the_pool_goes_on():
         pool.close()
 
 
+def test_a_call_that_meets_a_pool_renewed_by_another_thread_goes_to_the_new_pool():
+    """Two threads notice a broken pool; one renews it and shuts the old one down while the
+    other is about to submit to it ("cannot schedule new futures after shutdown"): the call
+    goes to the new pool, and a genuine error of the call itself still surfaces."""
+    pool = science_pool.SciencePool(1)
+    stale = pool._current()
+    try:
+        pool._renew(stale)  # what the other thread did: stale is now shut down
+        assert pool._current() is not stale
+        calls = []
+        real_current = pool._current
+
+        def current_once_stale():
+            calls.append(1)
+            return stale if len(calls) == 1 else real_current()
+
+        pool._current = current_once_stale
+        assert pool.call(int, "7") == 7
+        assert len(calls) >= 2
+        pool._current = real_current
+        with pytest.raises(ValueError):
+            pool.call(int, "not a number")
+    finally:
+        pool.close()
+
+
 def _workers() -> list[psutil.Process]:
     found = []
     for child in psutil.Process().children():

@@ -192,11 +192,9 @@ class SciencePool:
             self._plans[id(plan)] = (plan, path)
             return path
 
-    def _submit(self, function: Any, args: tuple) -> tuple[concurrent.futures.ProcessPoolExecutor,
-                                                          concurrent.futures.Future]:
+    def _current(self) -> concurrent.futures.ProcessPoolExecutor:
         with self._lock:
-            executor = self._executor
-        return executor, executor.submit(function, *args)
+            return self._executor
 
     def _renew(self, broken: concurrent.futures.ProcessPoolExecutor) -> None:
         """Replace a broken executor (once, whichever thread notices first)."""
@@ -215,15 +213,22 @@ class SciencePool:
         concurrent.futures.process.BrokenProcessPool
             When the worker died both times.
         """
-        for attempt in (1, 2):
-            executor, future = self._submit(function, args)
+        deaths = 0
+        while True:
+            executor = self._current()
             try:
-                return future.result()
+                return executor.submit(function, *args).result()
             except BrokenProcessPool:
+                deaths += 1
                 self._renew(executor)
-                if attempt == 2:
+                if deaths == 2:
                     raise
-        raise AssertionError("unreachable")  # pragma: no cover
+            except (RuntimeError, concurrent.futures.CancelledError):
+                # another thread renewed the pool between reading it and submitting (the old
+                # one is shut down: "cannot schedule new futures", or the call was cancelled):
+                # the call goes to the new pool; any other error is the call's own
+                if self._current() is executor:
+                    raise
 
     def start_head_start(self, plan: Any, store_root: str, folders: list[str]) -> None:
         """Give each worker one of ``folders`` to begin with (:mod:`pipelines.flows.head_start`)."""
