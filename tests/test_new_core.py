@@ -12,7 +12,7 @@ from click.testing import CliRunner
 from pipelines.cli import main
 from pipelines.coretemplate import core_template
 from pipelines.ingest import load_core
-from proxies.cores.validation import BLOCK_KEYS, CORE_KEYS, FILE_KEYS, TOP_LEVEL_KEYS
+from proxies.cores.core_file import BLOCK_KEYS, CORE_KEYS, FILE_KEYS, TOP_LEVEL_KEYS
 
 
 def _new(tmp_path, *options):

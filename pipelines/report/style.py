@@ -270,7 +270,7 @@ def inline_svg(svg_text: str, prefix: str) -> str:
     head_end = text.index(">")
     head = _NAMESPACES.sub("", text[:head_end])
     head = re.sub(r'\s(width|height)="[^"]*"', "", head)
-    head += f' role="img" class="plot"'
+    head += ' role="img" class="plot"'
     text = head + text[head_end:]
     ids = sorted(set(_ID.findall(text)), key=len, reverse=True)
     if ids:

@@ -13,7 +13,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from proxies.chronology.calibrate import CalibratedDates, CurveRangeError, average_calibrated, calibrate_radiocarbon
+from proxies.chronology.calibrate import CurveRangeError, average_calibrated, calibrate_radiocarbon
 from proxies.chronology.curve_cells import CurveChoice, curve_cell_problem, parse_curve_cell, share_quadrature
 from proxies.chronology.curves import CalibrationCurve, blend_curves
 from proxies.cores.validation import resolve_curve_name
