@@ -130,11 +130,16 @@ def test_a_call_that_meets_a_pool_renewed_by_another_thread_goes_to_the_new_pool
         pool.close()
 
 
-def _workers() -> list[psutil.Process]:
+def _workers(root: psutil.Process | None = None) -> list[psutil.Process]:
+    """The helper processes of ``root`` (default: this process): spawned ones (its children
+    running ``spawn_main``) or forked ones (children of its fork server)."""
+    root = root or psutil.Process()
     found = []
-    for child in psutil.Process().children():
+    for child in root.children(recursive=True):
         try:
-            if "spawn_main" in " ".join(child.cmdline()):
+            parent = child.parent()
+            forked = parent is not None and parent.pid != root.pid and "forkserver" in " ".join(parent.cmdline())
+            if forked or (child.ppid() == root.pid and "spawn_main" in " ".join(child.cmdline())):
                 found.append(child)
         except psutil.Error:  # ended meanwhile
             pass
@@ -174,7 +179,7 @@ def test_workers_end_when_the_run_process_is_killed_and_the_run_resumes(tmp_path
         while not (chronologies.is_dir() and list(chronologies.glob("*/*/entry.json"))) \
                 and time.monotonic() < deadline:
             time.sleep(0.05)
-        workers = [c for c in psutil.Process(process.pid).children() if "spawn_main" in " ".join(c.cmdline())]
+        workers = _workers(psutil.Process(process.pid))
         assert len(workers) == 2
         process.kill()
         process.wait(timeout=30)

@@ -104,6 +104,16 @@ def exit_on_input_errors(prefix: str) -> Iterator[None]:
         sys.exit(EXIT_INPUT)
 
 
+def _start_helpers_early(report: bool) -> None:
+    """When a report is coming on a machine of two or more CPUs (so a report helper, see
+    :mod:`pipelines.report.drawing`), the helpers' fork server starts importing the science and
+    the drawing now, while this process imports Prefect (:func:`pipelines.spawning.helper_context`)."""
+    if report and (os.cpu_count() or 1) >= 2 and os.environ.get("DOWNCORE_REPORT_HELPERS", "").strip() != "0":
+        from pipelines.spawning import helper_context
+
+        helper_context()
+
+
 def execute(config: pathlib.Path, out: pathlib.Path, *, workers, dask_address, dask_local,
             cache_dir, recompute, quiet, resume: bool = False, report: bool = True) -> Any:
     """Run and print; exit with the documented status on errors."""
@@ -113,6 +123,7 @@ def execute(config: pathlib.Path, out: pathlib.Path, *, workers, dask_address, d
     if "PREFECT_LOGGING_LEVEL" in applied:
         _silence_task_failures()
     choice = make_choice(workers, dask_address, dask_local)
+    _start_helpers_early(report)
     from pipelines.flows.localserver import LocalServer
 
     server = LocalServer.start_if_needed()  # starts while the config is read and inputs hashed

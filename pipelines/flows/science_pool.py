@@ -11,8 +11,10 @@ small description. Nothing large crosses a pipe, and the bytes written are those
 runner called in this process: every random draw comes from ``rng_for(run_seed, stage,
 core_id)`` and BLAS is pinned to one thread in every process.
 
-The pool is started when a run's flow starts, so the workers' imports (~1.5 s of CPU each)
-overlap the temporary Prefect server's start-up, and ended as soon as the flow has returned.
+The pool is started when a run's flow starts, so that the workers are ready when the
+temporary Prefect server is, and ended as soon as the flow has returned. The workers are
+forked from downcore's fork server (:func:`pipelines.spawning.helper_context`), which has the
+science imported once for all of them (spawned, each would spend ~1.5 s of CPU importing it).
 
 How many workers (:func:`pool_size`): ``$DOWNCORE_SCIENCE_PROCESSES`` when set (``0``: none,
 the science runs in the tasks' threads); otherwise as many as there are CPUs, at most the
@@ -27,7 +29,6 @@ from __future__ import annotations
 
 import concurrent.futures
 import contextlib
-import multiprocessing
 import os
 import pickle
 import shutil
@@ -38,7 +39,7 @@ import time
 from concurrent.futures.process import BrokenProcessPool
 from typing import Any, Iterator
 
-from pipelines.spawning import main_script_not_rerun
+from pipelines.spawning import helper_context, main_script_not_rerun
 
 __all__ = ["SciencePool", "POOL_STAGES", "PROCESSES_ENV", "pool_size", "science_pool_for_run",
            "active_pool"]
@@ -87,16 +88,30 @@ def _available_cpus() -> int:
 _PLANS: dict[str, Any] = {}
 
 
-def _worker_setup(parent_pid: int) -> None:
-    """In each worker: Ctrl-C is the parent's to handle, BLAS on one thread, and an exit as
-    soon as the parent is gone (however it ended, ``kill -9`` included)."""
+def _is_alive(pid: int) -> bool:
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:  # pragma: no cover - a process of another user has that pid now
+        return False
+    return True
+
+
+def _worker_setup(run_pid: int) -> None:
+    """In each worker: Ctrl-C is the run's to handle, BLAS on one thread, and an exit as soon
+    as the run's process is gone (however it ended, ``kill -9`` included). The worker's parent
+    is the run's process when spawned, the fork server when forked
+    (:func:`pipelines.spawning.helper_context`), which exits with the run: the worker
+    leaves when its parent changes or the run's process is gone."""
     signal.signal(signal.SIGINT, signal.SIG_IGN)
     from pipelines.flows.stages import pin_blas_threads
 
     pin_blas_threads()
+    parent = os.getppid()
 
     def watch() -> None:
-        while os.getppid() == parent_pid:
+        while os.getppid() == parent and _is_alive(run_pid):
             time.sleep(PARENT_POLL_SECONDS)
         os._exit(1)
 
@@ -172,7 +187,7 @@ class SciencePool:
 
     def _new_executor(self) -> concurrent.futures.ProcessPoolExecutor:
         executor = concurrent.futures.ProcessPoolExecutor(
-            max_workers=self.size, mp_context=multiprocessing.get_context("spawn"),
+            max_workers=self.size, mp_context=helper_context(),
             initializer=_worker_setup, initargs=(os.getpid(),))
         with main_script_not_rerun():  # workers are spawned on demand: all of them now
             for _ in range(self.size):

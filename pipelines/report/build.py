@@ -372,12 +372,14 @@ def _drawn_in_parallel(run: RunData, png: bool, helper, exports) -> tuple[dict[s
         return {}, None
     early = not png and getattr(helper, "claims", None) is not None  # a run's helper (no PNG)
     claims = helper.claims if early else FigureClaims.create()
-    drawn: dict[str, style.SavedFigure | None] = helper.early_figures() if early else {}
     try:
+        # this process draws at once: a core figure the helper has not reached yet (its
+        # early jobs wait behind the science) is claimed and drawn here, not waited for
         future = helper.submit(run.folder, png, claims, exports)
         mine = DrawnFigures(run.folder, png, claims)
         with style.report_style():
             _sections(run, _Claiming(mine))
+        drawn: dict[str, style.SavedFigure | None] = helper.early_figures() if early else {}
         drawn.update(mine.drawn)
         try:
             delivered = future.result()

@@ -27,6 +27,7 @@ import threading
 from typing import Callable
 
 from pipelines.report import style
+from pipelines.spawning import helper_context
 from pipelines.spawning import main_script_not_rerun as _main_script_not_rerun
 
 __all__ = ["FigureClaims", "DrawnFigures", "ReportHelper", "ForkedHelper", "fork_is_safe",
@@ -161,7 +162,7 @@ class ReportHelper:
 
     def __init__(self) -> None:
         self.executor = concurrent.futures.ProcessPoolExecutor(
-            max_workers=1, mp_context=multiprocessing.get_context("spawn"))
+            max_workers=1, mp_context=helper_context())
         with _main_script_not_rerun():  # the one process is spawned here, by the first task
             self.executor.submit(_warm_up)
         self.claims = FigureClaims.create()
