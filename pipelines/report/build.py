@@ -373,12 +373,16 @@ def _drawn_in_parallel(run: RunData, png: bool, helper, exports) -> tuple[dict[s
     early = not png and getattr(helper, "claims", None) is not None  # a run's helper (no PNG)
     claims = helper.claims if early else FigureClaims.create()
     try:
-        # this process draws at once: a core figure the helper has not reached yet (its
-        # early jobs wait behind the science) is claimed and drawn here, not waited for
-        future = helper.submit(run.folder, png, claims, exports)
+        # this process draws at once (a core figure the helper has not reached is drawn here,
+        # not waited for); the helper writes the CSV copies, this process then the netCDF
+        asked = {"csv": exports.get("csv", True) if isinstance(exports, dict) else True, "netcdf": False}
+        future = helper.submit(run.folder, png, claims, asked if exports else False)
         mine = DrawnFigures(run.folder, png, claims)
         with style.report_style():
             _sections(run, _Claiming(mine))
+        if exports:
+            from pipelines.report.exports import netcdf_part, with_netcdf
+        netcdf = netcdf_part(run) if exports else None
         drawn: dict[str, style.SavedFigure | None] = helper.early_figures() if early else {}
         drawn.update(mine.drawn)
         try:
@@ -386,7 +390,7 @@ def _drawn_in_parallel(run: RunData, png: bool, helper, exports) -> tuple[dict[s
         except Exception:  # noqa: BLE001 - what the helper did not deliver is done here
             return drawn, None
         drawn.update(delivered.pop("drawn"))
-        return drawn, (delivered if exports else None)
+        return drawn, (with_netcdf(delivered, netcdf) if exports else None)
     finally:
         if not early:
             claims.remove()

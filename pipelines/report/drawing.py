@@ -99,17 +99,19 @@ def _warm_up() -> None:
 
 
 def _exports_part(run_dir: str, exports) -> dict:
-    """The exports a helper was asked for (``exports``: False, True or ``{"csv": bool}``):
+    """The exports a helper was asked for (``exports``: False, True or ``{"csv": bool}``,
+    optionally with ``"netcdf": False`` when the report's own process writes the netCDF):
     ``{"exports": None or the failure's text, "written": [paths], "unreadable": [sentences]}``
     (``written`` is None when none were asked for)."""
     if not exports:
         return {"exports": None, "written": None, "unreadable": []}
     from pipelines.report.exports import write_exports
 
-    csv = exports.get("csv", True) if isinstance(exports, dict) else True
+    asked = exports if isinstance(exports, dict) else {}
     unreadable: list[str] = []
     try:
-        written = [str(p) for p in write_exports(run_dir, csv=csv, unreadable=unreadable)]
+        written = [str(p) for p in write_exports(run_dir, csv=asked.get("csv", True), unreadable=unreadable,
+                                                 netcdf=asked.get("netcdf", True))]
     except Exception as error:  # noqa: BLE001 - reported by the caller (a run note, or done again)
         return {"exports": f"{type(error).__name__}: {error}", "written": None, "unreadable": []}
     return {"exports": None, "written": written, "unreadable": unreadable}
