@@ -14,7 +14,7 @@ import shutil
 import pytest
 
 from archive_factory import FULL_CHAIN, write_archive
-from pipelines.flows import archive, stage_table
+from pipelines.flows import stage_table
 from pipelines.flows.run import execute_run
 from pipelines.flows.runners import ExecutorChoice
 from pipelines.flows.stage_table import NOT_RUN, STAGES, call_stage, take_inputs
@@ -86,10 +86,9 @@ def test_a_second_core_with_the_same_id_fails_before_its_science(tmp_path):
 
 
 @pytest.mark.usefixtures("prefect_harness")
-def test_cores_are_published_as_they_finish(tmp_path, monkeypatch):
+def test_cores_are_published_as_they_finish(tmp_path):
     """The first core's folder is published while later cores' stages are still to run
-    (the wavefront submission order), not after every core's last stage."""
-    monkeypatch.setattr(archive, "WAVE_LAG_CORES", 2)
+    (one chained task per core, in core order), not after every core's last stage."""
     config = write_archive(tmp_path, n_cores=10, ensemble=20, n_dates=4, n_samples=10)
     cache = tmp_path / "cache"
     seen: list[tuple[str, int]] = []

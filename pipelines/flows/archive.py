@@ -6,14 +6,15 @@ Built from the stage table (:mod:`pipelines.flows.stage_table`) with plain Prefe
 2. every core's ingest (and every dated series' ``series`` stage) is submitted; their outcomes
    are read in core order, which gives each core its id (a second core with the same id
    fails here, before any of its science runs) and publishes the cores that stopped;
-3. every later stage of every core is submitted with its upstream stages' futures as inputs
-   (wrapped in ``allow_failure``: a stage whose needed input failed or was skipped returns
-   :data:`~pipelines.flows.stage_table.NOT_RUN` without running, and the core is reported
-   as failed at -- or skipped at -- the stage that stopped it). Stages found in the work store
-   are looked up in the flow instead of submitted. On threads the submission order is a
-   wavefront (:data:`WAVE_LAG_CORES`): a stage's upstream is always submitted well before it,
-   so a worker thread seldom waits for an input, and the first cores finish early rather
-   than all at the end;
+3. as soon as a core's first stage is known, its later stages are looked up in the work
+   store (in the flow, while their inputs are known there), and the stages from the first one
+   that must run go to the task runner as one chained task (:mod:`pipelines.flows.chain`),
+   with the training sets' futures as inputs (wrapped in ``allow_failure``: a stage whose
+   needed input failed or was skipped returns :data:`~pipelines.flows.stage_table.NOT_RUN`
+   without running, and the core is reported as failed at -- or skipped at -- the stage that
+   stopped it). Each stage keeps its own work-store entry and timing. One task per core
+   instead of one per stage: every task run costs orchestration CPU in this process and in
+   the Prefect server, which a small machine takes from the science;
 4. ``as_completed`` hands back the futures as they finish; a core whose stages are all done
    is recorded (:mod:`pipelines.flows.tracks`) and its folder published at once (in the
    flow's own thread: hard links), so in a long run results appear core by core;
@@ -24,20 +25,24 @@ their events, folder, stack and lead/lag follow as for a core. The flow returns 
 row per core (and series); it never fails because a core failed.
 
 Concurrency is the task runner's: ``ThreadPoolTaskRunner(max_workers=N)`` by default or a
-``DaskTaskRunner`` (see :mod:`pipelines.flows.runners`). On Dask the light stages run in the
-flow's process and a few cores' stages after ingest go to a worker as one task
-(:data:`CHAIN_BATCH_CORES`). Results do not depend on any of it: every random stream is
+``DaskTaskRunner`` (see :mod:`pipelines.flows.runners`). On Dask ingest runs in the flow's
+process and a few cores' chains go to a worker as one task (:data:`CHAIN_BATCH_CORES`).
+The run plan is handed to the tasks ``quote``-d: Prefect then does not walk through it (every
+input file with its hash) for each task run, which made the orchestration grow with the square
+of the number of cores. Results do not depend on any of it: every random stream is
 ``rng_for(run_seed, stage, core_id)``, and tables are written in a fixed order.
 """
 
 from __future__ import annotations
 
+import dataclasses
 import pathlib
 from dataclasses import dataclass, field
 from typing import Any
 
 from prefect import allow_failure, flow
 from prefect.futures import PrefectFuture, as_completed
+from prefect.utilities.annotations import quote
 
 from pipelines.flows import stages, tasks
 from pipelines.flows.plan import RunPlan
@@ -50,14 +55,10 @@ from pipelines.flows.tracks import (CoreTrack, log_text, published_entries, reco
 __all__ = ["archive_flow", "core_flow", "collect_run", "CoreTrack", "Submitter", "Finished", "register_observer",
            "unregister_observer", "run_cores"]
 
-#: on Dask, up to this many cores' stages go to a worker as one task: each task run costs
+#: on Dask, up to this many cores' chains go to a worker as one task: each task run costs
 #: orchestration CPU in the flow process and the Prefect server (~0.1-0.2 s, measured)
-#: that on a small machine competes with the workers
+#: that on a small machine competes with the workers (threads: one core per task)
 CHAIN_BATCH_CORES = 4
-#: stage ``d`` (after ingest) of core ``i`` is submitted at position ``i + d * WAVE_LAG_CORES``:
-#: on threads a task waits in its worker for its inputs, and this many cores' worth of
-#: other stages between a stage and its upstream keep that wait rare
-WAVE_LAG_CORES = 8
 
 _OBSERVERS: dict[str, Any] = {}
 _PLANS: dict[str, RunPlan] = {}
@@ -98,10 +99,17 @@ class _Silent:
 
 class Finished:
     """A stage outcome known in the flow (found in the work store, run inline, or nothing to
-    run): quacks like a completed future."""
+    run): quacks like a completed future. With ``compute`` the outcome is computed when
+    first asked for (a stage run inline in the flow's process, in core order)."""
 
-    def __init__(self, value: Any):
-        self.value = value
+    def __init__(self, value: Any = None, compute: Any = None):
+        self._value, self._compute = value, compute
+
+    @property
+    def value(self) -> Any:
+        if self._compute is not None:
+            self._value, self._compute = self._compute(), None
+        return self._value
 
     def result(self, raise_on_failure: bool = False) -> Any:
         return self.value
@@ -141,9 +149,9 @@ class Submitter:
     flow's process, or submitted to the task runner (a future)."""
 
     def __init__(self, plan: RunPlan, run_dir: str, store: WorkStore, recompute: bool = False,
-                 inline_stages: tuple[str, ...] = (), chain: bool = False):
+                 inline_stages: tuple[str, ...] = (), batch: int = 1):
         self.plan, self.run_dir, self.store, self.recompute = plan, run_dir, store, recompute
-        self.inline_stages, self.chain = frozenset(inline_stages), chain
+        self.inline_stages, self.batch = frozenset(inline_stages), max(1, int(batch))
 
     def stage(self, stage: str, label: str, entries: dict[str, Any]) -> Any:
         """Stage ``stage`` of ``label`` on ``entries`` (values, :class:`Finished` or futures)."""
@@ -164,16 +172,18 @@ class Submitter:
 
     def _run(self, stage: str, label: str, entries: dict, inline: bool) -> Any:
         task = tasks.STAGE_TASKS[stage]
-        kwargs = {"plan": self.plan, "label": label, "entries": entries, "store": self.store,
+        kwargs = {"plan": quote(self.plan), "label": label, "entries": entries, "store": self.store,
                   "recompute": self.recompute}
         if inline:
-            return Finished(task(**kwargs, return_state=True).result(raise_on_failure=False))
+            return Finished(compute=lambda: task(**kwargs, return_state=True).result(raise_on_failure=False))
         return task.submit(**kwargs)
 
-    def chain_cores(self, label: str, chains: list[dict]) -> Any:
-        """Every stage after ingest of a few cores as one task (:func:`tasks.core_chain_task`)."""
-        chains = [{name: _given(name, value) for name, value in entries.items()} for entries in chains]
-        return tasks.core_chain_task.submit(plan=self.plan, label=label, chains=chains, store=self.store,
+    def chain_cores(self, label: str, chains: list[tuple[tuple[str, ...], dict]]) -> Any:
+        """The given stages of a few cores as one task (:func:`tasks.core_chain_task`); each
+        chain is ``(stages, entries)``."""
+        chains = [(stages_left, {name: _given(name, value) for name, value in entries.items()})
+                  for stages_left, entries in chains]
+        return tasks.core_chain_task.submit(plan=quote(self.plan), label=label, chains=chains, store=self.store,
                                             recompute=self.recompute)
 
     def publish(self, track: CoreTrack) -> Any:
@@ -187,7 +197,7 @@ class Submitter:
         the flow, the archive events inline (light work on small tables). Its result, or the
         exception it failed with."""
         if stage == "stack":
-            future = tasks.STAGE_TASKS[stage].submit(plan=self.plan, label="all-cores", entries=entries,
+            future = tasks.STAGE_TASKS[stage].submit(plan=quote(self.plan), label="all-cores", entries=entries,
                                                      store=self.store, recompute=self.recompute)
             return future.result(raise_on_failure=False)
         try:
@@ -219,8 +229,9 @@ class _Cores:
         self._training_note: str | None = None
         self.series = dict(self.plan.auxiliary.get("series", {})) if with_series else {}
         self.state = RunState(tracks=[], series=sorted(self.series))
-        self.pending: dict[int, set] = {}  # id(track) -> its unfinished futures
-        self.results: dict[int, dict[str, Any]] = {}  # id(track) -> stage -> future
+        self.going: list[CoreTrack] = []
+        self.results: dict[int, dict[str, Any]] = {}  # id(track) -> stage (or "chain") -> outcome
+        self._batch: list[tuple[CoreTrack, tuple[str, ...], dict]] = []
 
     def training_note(self) -> str:
         """The note of a core calibrated without the failed training sets ('' when none)."""
@@ -238,8 +249,9 @@ class _Cores:
             self._training_note = f"calibration without the failed training sets ({note})" if note else ""
         return self._training_note
 
-    def start(self) -> list[CoreTrack]:
-        """Ingest every core (and read every series); the cores that go on, with their ids."""
+    def start(self) -> None:
+        """Ingest every core (and read every series), then, in core order, give each core its
+        id and submit the rest of its stages as soon as its first one is known."""
         firsts = []
         for folder in self.plan.core_folders:
             track = CoreTrack(folder=folder, label=pathlib.Path(folder).name)
@@ -251,87 +263,77 @@ class _Cores:
             track.say(f"dated series {name}: {path}")
             firsts.append((track, self.sub.stage("series", name, {"name": name})))
         ids: dict[str, str] = {}
-        going = []
         for track, first in firsts:
             self.state.tracks.append(track)
             if record_first(track, outcome(first), ids):
-                going.append(track)
+                self.going.append(track)
+                self._submit(track)
             else:
                 self.finish(track, {})
-        return going
+        self._flush()
 
     def entries(self, track: CoreTrack) -> dict[str, Any]:
         known = {stage: Finished(entry) for stage, entry in track.entries.items()}
         return {**known, **self.results[id(track)], "folder": track.folder, "training": self.training}
 
-    def submit(self, going: list[CoreTrack]) -> None:
-        """Submit every later stage of every core (wavefront order, chains on Dask)."""
-        order = []
-        chains: list[CoreTrack] = []
-        for position, track in enumerate(going):
-            self.results[id(track)] = {}
-            left = track.stages_left()
-            if self.sub.chain and left[:1] == SCIENCE_STAGES[:1] and self.sub.found(
-                    left[0], {"ingest": track.entries["ingest"]}) is None:
-                chains.append(track)
-                continue
-            order += [(position + depth * WAVE_LAG_CORES, -depth, position, stage) for depth, stage in enumerate(left)]
-        for _, _, position, stage in sorted(order):
-            track = going[position]
-            future = self.sub.stage(stage, track.name, self.entries(track))
-            self.results[id(track)][stage] = future
-        for start in range(0, len(chains), CHAIN_BATCH_CORES):
-            self._submit_chain(chains[start:start + CHAIN_BATCH_CORES])
+    def _submit(self, track: CoreTrack) -> None:
+        """Look the core's next stages up in the work store while their inputs are known in
+        the flow; queue the rest as the core's chain (see the module docstring)."""
+        self.results[id(track)] = found = {}
+        left = list(track.stages_left())
+        while left:
+            stage = left[0]
+            wanted = {name: self.entries(track)[name] for name in STAGES[stage].inputs}
+            if not all(_known(name, value) for name, value in wanted.items()):
+                break
+            given = {name: _given(name, value) for name, value in wanted.items()}
+            entry = dict(NOT_RUN) if take_inputs(STAGES[stage], given) is None else self.sub.found(stage, given)
+            if entry is None:
+                break
+            found[stage] = Finished(entry)
+            left.pop(0)
+        if left:
+            self._batch.append((track, tuple(left), self.entries(track)))
+            if len(self._batch) >= self.sub.batch:
+                self._flush()
 
-    def _submit_chain(self, batch: list[CoreTrack]) -> None:
-        label = batch[0].name if len(batch) == 1 else f"{batch[0].name}..{batch[-1].name}"
-        future = self.sub.chain_cores(label, [{"ingest": Finished(t.entries["ingest"]), "folder": t.folder,
-                                               "training": self.training} for t in batch])
-        for position, track in enumerate(batch):
-            self.results[id(track)] = {"chain": (future, position)}
+    def _flush(self) -> None:
+        """Submit the queued chains as one task."""
+        if not self._batch:
+            return
+        batch, self._batch = self._batch, []
+        names = [track.name for track, _, _ in batch]
+        label = names[0] if len(names) == 1 else f"{names[0]}..{names[-1]}"
+        future = self.sub.chain_cores(label, [(left, entries) for _, left, entries in batch])
+        for position, (track, left, _) in enumerate(batch):
+            self.results[id(track)]["chain"] = (future, position, left)
 
-    def collect(self, going: list[CoreTrack]) -> None:
-        """Record and publish each core as soon as all its futures are done."""
+    def collect(self) -> None:
+        """Record and publish each core as soon as its chain is done."""
         owners: dict[Any, list[CoreTrack]] = {}
-        for track in going:
-            for future in self._futures(track):
-                owners.setdefault(future, []).append(track)
-            self.pending[id(track)] = set(self._futures(track))
-        for track in going:
-            self._progress(track)
+        for track in self.going:
+            chain = self.results[id(track)].get("chain")
+            if chain is None:
+                self.finish(track, self._outcomes(track))  # every stage found in the work store
+                continue
+            owners.setdefault(chain[0], []).append(track)
+            self.observer.stage(track.label, SCIENCE_STAGES[0])
         for future in as_completed(list(owners)):
             for track in owners[future]:
-                self.pending[id(track)].discard(future)
-                self._progress(track)
-
-    def _progress(self, track: CoreTrack) -> None:
-        """Tell the observer the stage a core is at; finish a core with nothing pending."""
-        if not self.pending[id(track)]:
-            self.finish(track, self._outcomes(track))
-            return
-        for stage, value in self.results[id(track)].items():
-            if (value[0] if isinstance(value, tuple) else value) in self.pending[id(track)]:
-                self.observer.stage(track.label, SCIENCE_STAGES[0] if stage == "chain" else stage)
-                return
-
-    def _futures(self, track: CoreTrack) -> list:
-        found = []
-        for value in self.results[id(track)].values():
-            future = value[0] if isinstance(value, tuple) else value
-            if isinstance(future, PrefectFuture) and future not in found:
-                found.append(future)
-        return found
+                self.finish(track, self._outcomes(track))
 
     def _outcomes(self, track: CoreTrack) -> dict[str, Any]:
-        results = self.results[id(track)]
-        if "chain" not in results:
-            return {stage: outcome(future) for stage, future in results.items()}
-        future, position = results["chain"]
+        results = dict(self.results[id(track)])
+        chain = results.pop("chain", None)
+        outcomes = {stage: outcome(value) for stage, value in results.items()}
+        if chain is None:
+            return outcomes
+        future, position, left = chain
         chained = outcome(future)
         if isinstance(chained, BaseException):
-            return {SCIENCE_STAGES[0]: chained}
-        return {stage: tasks.StageFailed(result["failed"]) if "failed" in result else result
-                for stage, result in chained[position]}
+            return {**outcomes, left[0]: chained}
+        return {**outcomes, **{stage: tasks.StageFailed(result["failed"]) if "failed" in result else result
+                               for stage, result in chained[position]}}
 
     def finish(self, track: CoreTrack, results: dict[str, Any]) -> None:
         """Record a core's outcomes and publish its folder."""
@@ -350,9 +352,8 @@ def run_cores(submitter: Submitter, observer: Any = None, with_series: bool = Tr
     observer = observer or _Silent()
     observer.started(len(submitter.plan.core_folders))
     cores = _Cores(submitter, observer, with_series)
-    going = cores.start()
-    cores.submit(going)
-    cores.collect(going)
+    cores.start()
+    cores.collect()
     cores.training_note()  # every training set's outcome, whether a core needed it or not
     return cores.state
 
@@ -360,16 +361,16 @@ def run_cores(submitter: Submitter, observer: Any = None, with_series: bool = Tr
 @flow(name="downcore-archive", validate_parameters=False, persist_result=False, log_prints=False)
 def archive_flow(plan_id: str, run_dir: str, cache_dir: str, recompute: bool = False,
                  observer_id: str | None = None, inline_stages: tuple[str, ...] = (),
-                 chain: bool = False) -> dict:
+                 batch_chains: bool = False) -> dict:
     """Run every core of the plan registered as ``plan_id`` (:func:`register_plan`) into
     ``run_dir`` (see the module docstring).
 
     ``inline_stages`` run as task runs in the flow's own process, when their inputs are known
     there, instead of being submitted to the task runner. On Dask, where a submitted task
-    costs ~60-80 ms (measured, see ../shared/PREFECT.md), the light stages (ingest ~0.05 s,
-    calibration ~0.1 s) are run inline so that the workers spend their time on the heavy
-    ones, and with ``chain`` a core's stages after ingest go to a worker as one task (each
-    stage still cached on its own).
+    costs ~60-80 ms (measured, see ../shared/PREFECT.md), ingest (~0.05 s) is run inline, core
+    by core, while the workers already run the chains of the cores before, and with
+    ``batch_chains`` a task holds the chains of :data:`CHAIN_BATCH_CORES` cores (each stage
+    still cached on its own).
 
     Returns
     -------
@@ -380,7 +381,8 @@ def archive_flow(plan_id: str, run_dir: str, cache_dir: str, recompute: bool = F
     """
     plan = _PLANS[plan_id]
     observer = _OBSERVERS.get(observer_id or "", _Silent())
-    submitter = Submitter(plan, run_dir, WorkStore(cache_dir), recompute, tuple(inline_stages), chain)
+    submitter = Submitter(plan, run_dir, WorkStore(cache_dir), recompute, tuple(inline_stages),
+                          CHAIN_BATCH_CORES if batch_chains else 1)
     return collect_run(submitter, run_cores(submitter, observer))
 
 
@@ -419,6 +421,6 @@ def collect_run(submitter: Submitter, state: RunState) -> dict:
 def core_flow(plan: RunPlan, folder: str, run_dir: str, cache_dir: str, recompute: bool = False) -> dict:
     """One core through every stage (ingest -> ... -> outputs); returns its summary row.
     The archive flow runs the same tasks for many cores at once."""
-    single = RunPlan(**{**plan.__dict__, "core_folders": (str(pathlib.Path(folder).resolve()),)})
+    single = dataclasses.replace(plan, core_folders=(str(pathlib.Path(folder).resolve()),))
     state = run_cores(Submitter(single, run_dir, WorkStore(cache_dir), recompute), with_series=False)
     return state.tracks[0].row()

@@ -85,11 +85,28 @@ class RunPlan:
         return {name: digest for name, _, digest in self.curves}
 
     def folder_digest(self, folder: str) -> list[tuple[str, str]]:
-        """``(relative path, sha256)`` of every input file of a core folder."""
+        """``(relative path, sha256)`` of every input file of a core folder (under it at any
+        depth)."""
         root = pathlib.Path(folder)
-        return sorted((pathlib.Path(item["path"]).relative_to(root).as_posix(), item["sha256"])
-                      for item in self.inputs if item["role"] == "core"
-                      and pathlib.Path(item["path"]).is_relative_to(root))
+        return sorted((path.relative_to(root).as_posix(), digest) for path, digest in self._files_under().get(root, ()))
+
+    def _files_under(self) -> dict[pathlib.Path, list[tuple[pathlib.Path, str]]]:
+        """Folder -> the core input files under it, built once per plan object (a scan of
+        every input per core made the cache keys of a 1,000-core run cost O(cores^2))."""
+        index = self.__dict__.get("_core_files_index")
+        if index is None:
+            index = {}
+            for item in self.inputs:
+                if item["role"] == "core":
+                    path = pathlib.Path(item["path"])
+                    for parent in path.parents:
+                        index.setdefault(parent, []).append((path, item["sha256"]))
+            object.__setattr__(self, "_core_files_index", index)  # a cache, not a field
+        return index
+
+    def __getstate__(self) -> dict:
+        """Pickled without the index (rebuilt where it is needed)."""
+        return {name: value for name, value in self.__dict__.items() if name != "_core_files_index"}
 
 
 def _file_entries(config: RunConfig, section: str, digests: dict[str, str]) -> dict[str, tuple[str, str]]:

@@ -240,7 +240,7 @@ def _orchestrated(run_dir: pathlib.Path, plan: RunPlan, cache: pathlib.Path, cho
                 return archive_flow.with_options(task_runner=runner)(
                     plan_id=plan_id, run_dir=str(run_dir), cache_dir=str(cache), recompute=recompute,
                     observer_id=observer_id, inline_stages=choice.inline_stages(),
-                    chain=choice.chain_core_stages())
+                    batch_chains=choice.batch_core_chains())
     finally:
         unregister_plan(plan_id)
         if observer_id:

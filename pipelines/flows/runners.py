@@ -60,13 +60,13 @@ class ExecutorChoice:
 
     def inline_stages(self) -> tuple[str, ...]:
         """Light stages run in the flow's process (when their inputs are known there): on
-        Dask a submitted task costs ~60-80 ms, more than ingest or calibration take (threads:
-        none). A core's folder is always published in the flow's process."""
-        return ("ingest", "calibration") if (self.dask_address or self.dask_local) else ()
+        Dask a submitted task costs ~60-80 ms, more than ingest takes (threads: none). A
+        core's folder is always published in the flow's process."""
+        return ("ingest",) if (self.dask_address or self.dask_local) else ()
 
-    def chain_core_stages(self) -> bool:
-        """On Dask, a core's stages after ingest go to a worker as one task (fewer task runs:
-        the orchestration of each costs CPU that the workers need)."""
+    def batch_core_chains(self) -> bool:
+        """On Dask, a task holds a few cores' chains of stages (fewer task runs: the
+        orchestration of each costs CPU that the workers need); on threads, one core's."""
         return bool(self.dask_address or self.dask_local)
 
     def describe(self) -> dict[str, Any]:

@@ -159,6 +159,15 @@ def _run_stage(name: str, plan_path: str, entries: dict, store_root: str, recomp
         return "failed", problem_text(error)
 
 
+def _run_chain(plan_path: str, stages: tuple[str, ...], entries: dict, store_root: str,
+               recompute: bool) -> list[tuple[str, dict]]:
+    """In a worker: a core's chain of stages (:func:`pipelines.flows.chain.run_core_chain`)."""
+    from pipelines.flows.chain import run_core_chain
+    from pipelines.flows.store import WorkStore
+
+    return run_core_chain(_plan_from(plan_path), stages, entries, WorkStore(store_root), recompute)
+
+
 def _head_start(plan_path: str, store_root: str, side_root: str, folder: str) -> None:
     """In a worker: the head start of one core (:func:`pipelines.flows.head_start.run_head_start`)."""
     from pipelines.flows.head_start import run_head_start
@@ -219,14 +228,14 @@ class SciencePool:
             self._executor = self._new_executor()
         broken.shutdown(wait=False, cancel_futures=True)
 
-    def call(self, function: Any, *args: Any) -> Any:
+    def call(self, function: Any, *args: Any, tries: int = 2) -> Any:
         """``function(*args)`` in a worker (both picklable); this thread waits. When the
-        worker dies, the call is made once more in a fresh pool.
+        worker dies, the call is made again in a fresh pool, ``tries`` times in all.
 
         Raises
         ------
         concurrent.futures.process.BrokenProcessPool
-            When the worker died both times.
+            When the worker died every time.
         """
         deaths = 0
         while True:
@@ -236,7 +245,7 @@ class SciencePool:
             except BrokenProcessPool:
                 deaths += 1
                 self._renew(executor)
-                if deaths == 2:
+                if deaths >= tries:
                     raise
             except (RuntimeError, concurrent.futures.CancelledError):
                 # another thread renewed the pool between reading it and submitting (the old
@@ -273,18 +282,44 @@ class SciencePool:
         except (OSError, ValueError, KeyError):  # a damaged head start: the stage is computed
             return None
 
-    def run_stage(self, name: str, plan: Any, entries: dict, store: Any, recompute: bool) -> tuple[str, Any]:
+    def run_stage(self, name: str, plan: Any, entries: dict, store: Any, recompute: bool,
+                  tries: int = 2) -> tuple[str, Any]:
         """Run stage ``name`` in a worker and wait for it (or adopt its head start's entry);
-        see :func:`_run_stage` for the result. A stage whose worker dies is tried once more
-        in a fresh pool; when that worker dies too, the stage has failed (``("failed", message)``)."""
+        see :func:`_run_stage` for the result. A stage whose worker dies is tried again in a
+        fresh pool (``tries`` in all); when that worker dies too, the stage has failed
+        (``("failed", message)``)."""
         claimed = None if recompute else self._claimed(name, plan, entries, store)
         if claimed is not None:
             return "done", claimed
         try:
-            return self.call(_run_stage, name, self._plan_file(plan), entries, str(store.root), recompute)
+            return self.call(_run_stage, name, self._plan_file(plan), entries, str(store.root), recompute,
+                             tries=tries)
         except BrokenProcessPool:
             return "failed", (f"the worker process running {name} died, twice (killed by the system, or out "
                               f"of memory?); set {PROCESSES_ENV}=0 to run the science in the run's own process")
+
+    def run_chain(self, plan: Any, stages: tuple[str, ...], entries: dict, store: Any,
+                  recompute: bool) -> list[tuple[str, dict]]:
+        """A core's chain of stages (:mod:`pipelines.flows.chain`) in one worker call, its
+        head-started stages adopted first. When the worker dies, the rest of the chain goes
+        stage by stage (the finished stages are found in the work store), so that a stage
+        that kills its worker a second time fails alone, named."""
+        from pipelines.flows.chain import run_chain
+        from pipelines.flows.head_start import HEAD_START_STAGES
+        from pipelines.flows.stage_table import SCIENCE_STAGES
+
+        entries = dict(entries)
+        for name in (s for s in HEAD_START_STAGES if s in SCIENCE_STAGES and s in stages):
+            claimed = None if recompute else self._claimed(name, plan, entries, store)
+            if claimed is None:
+                break
+            entries[name] = claimed
+        try:
+            return self.call(_run_chain, self._plan_file(plan), stages, entries, str(store.root), recompute,
+                             tries=1)
+        except BrokenProcessPool:
+            return run_chain(stages, entries, lambda name, given: _outcome(
+                *self.run_stage(name, plan, given, store, recompute, tries=1)))
 
     def close(self) -> None:
         """End the workers at once (idle after a run; abandoned, when it was interrupted,
@@ -299,6 +334,13 @@ class SciencePool:
         shutil.rmtree(self._folder, ignore_errors=True)
         if self._head is not None:
             self._head.remove()
+
+
+def _outcome(kind: str, value: Any) -> dict:
+    """A :meth:`SciencePool.run_stage` result as a chain's stage outcome."""
+    if kind == "done":
+        return value
+    return {"skipped": value, "seconds": 0.0} if kind == "skipped" else {"failed": value}
 
 
 _ACTIVE: SciencePool | None = None

@@ -1,6 +1,6 @@
 """Prefect tasks: one per stage of the stage table (:mod:`pipelines.flows.stage_table`), one
-that chains a core's stages after ingest (Dask) and one that publishes a core's folder in the
-run folder.
+that chains a core's stages after ingest (:mod:`pipelines.flows.chain`) and one that publishes
+a core's folder in the run folder.
 
 Tasks are thin: each calls one runner of :mod:`pipelines.flows.stages`. Caching is done by
 the runners' content-addressed work store (keys = content hashes of inputs, settings and the
@@ -24,13 +24,13 @@ from prefect import task
 from prefect.cache_policies import NO_CACHE
 
 from pipelines.flows import science_pool, stages
+from pipelines.flows.chain import run_core_chain
 from pipelines.flows.plan import RunPlan
-from pipelines.flows.stage_table import (NOT_RUN, PUBLISH_STAGES, SCIENCE_STAGES, STAGES, call_stage, finished,
-                                         take_inputs)
+from pipelines.flows.stage_table import NOT_RUN, STAGES, call_stage, take_inputs
 from pipelines.flows.store import WorkStore
 from pipelines.runfolder import atomic_write_bytes, link_or_copy, publish_folder, staging_folder
 
-__all__ = ["StageFailed", "STAGE_TASKS", "core_chain_task", "run_core_chain", "outputs_task"]
+__all__ = ["StageFailed", "STAGE_TASKS", "core_chain_task", "outputs_task"]
 
 _OPTIONS: dict[str, Any] = {"cache_policy": NO_CACHE, "persist_result": False, "retries": 0,
                             "log_prints": False}
@@ -84,48 +84,18 @@ def _stage_task(name: str):
 STAGE_TASKS = {name: _stage_task(name) for name in STAGES}
 
 
-def run_core_chain(plan: RunPlan, entries: dict, store: WorkStore,
-                   recompute: bool = False) -> list[tuple[str, dict]]:
-    """Run every stage of one core after its ingest in one go: the science stages
-    (:data:`SCIENCE_STAGES`, up to the first skipped or failed one), then the
-    :data:`PUBLISH_STAGES` whose inputs finished.
-
-    Each stage still goes through its own runner, so it is cached under its own content key
-    exactly as when submitted alone (and gives the same bytes).
-
-    Returns
-    -------
-    list of (stage, result)
-        One entry per stage run; a failed stage's result is ``{"failed": message}``.
-    """
-    entries = dict(entries)
-    done: list[tuple[str, dict]] = []
-    for stage in SCIENCE_STAGES:
-        result = _chained(stage, plan, entries, store, recompute)
-        done.append((stage, result))
-        if not finished(result):
-            break
-        entries[stage] = result
-    for stage in PUBLISH_STAGES:
-        if take_inputs(STAGES[stage], entries) is not None:
-            done.append((stage, _chained(stage, plan, entries, store, recompute)))
-    return done
-
-
-def _chained(stage: str, plan: RunPlan, entries: dict, store: WorkStore, recompute: bool) -> dict:
-    try:
-        return _guarded(call_stage, stage, plan, entries, store, recompute)
-    except StageFailed as failed:
-        return {"failed": str(failed)}
-
-
 @task(name="core-chain", task_run_name="core-chain[{label}]", **_OPTIONS)
-def core_chain_task(plan: RunPlan, label: str, chains: list[dict], store: WorkStore,
+def core_chain_task(plan: RunPlan, label: str, chains: list[tuple[tuple[str, ...], dict]], store: WorkStore,
                     recompute: bool = False) -> list[list[tuple[str, dict]]]:
-    """All stages after ingest of a few cores as one task (used on Dask, where each task run's
-    orchestration costs CPU that the workers need); one chain per core, failures isolated.
-    ``chains`` holds each core's entries (its ingest and the training sets)."""
-    return [run_core_chain(plan, entries, store, recompute) for entries in chains]
+    """The stages after ingest of one core (threads) or a few (Dask) as one task
+    (:mod:`pipelines.flows.chain`): each task run's orchestration costs CPU that the science
+    needs. One chain per core, failures isolated; ``chains`` holds each core's stages to run
+    and its entries (its finished stages, folder and the training sets). With a science pool
+    each chain is one call of a worker process."""
+    pool = science_pool.active_pool()
+    if pool is not None:
+        return [pool.run_chain(plan, stages_left, entries, store, recompute) for stages_left, entries in chains]
+    return [run_core_chain(plan, stages_left, entries, store, recompute) for stages_left, entries in chains]
 
 
 def publish_core_folder(run_dir: str, folder_name: str, entries: list[dict], log_text: str) -> dict:
