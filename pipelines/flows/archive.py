@@ -29,7 +29,8 @@ Concurrency is the task runner's: ``ThreadPoolTaskRunner(max_workers=N)`` by def
 process and a few cores' chains go to a worker as one task (:data:`CHAIN_BATCH_CORES`).
 The run plan is handed to the tasks ``quote``-d: Prefect then does not walk through it (every
 input file with its hash) for each task run, which made the orchestration grow with the square
-of the number of cores. Results do not depend on any of it: every random stream is
+of the number of cores (on Dask, whose tasks hold several cores' chains, it goes bare: the
+annotation reached the task there as a plain tuple). Results do not depend on any of it: every random stream is
 ``rng_for(run_seed, stage, core_id)``, and tables are written in a fixed order.
 """
 
@@ -152,6 +153,9 @@ class Submitter:
                  inline_stages: tuple[str, ...] = (), batch: int = 1):
         self.plan, self.run_dir, self.store, self.recompute = plan, run_dir, store, recompute
         self.inline_stages, self.batch = frozenset(inline_stages), max(1, int(batch))
+        # quoted, Prefect does not walk the plan's inputs on every task run; batched chains
+        # (Dask) get it bare: there the annotation reached the task as a plain tuple
+        self.plan_for_tasks = quote(plan) if self.batch == 1 else plan
 
     def stage(self, stage: str, label: str, entries: dict[str, Any]) -> Any:
         """Stage ``stage`` of ``label`` on ``entries`` (values, :class:`Finished` or futures)."""
@@ -172,7 +176,7 @@ class Submitter:
 
     def _run(self, stage: str, label: str, entries: dict, inline: bool) -> Any:
         task = tasks.STAGE_TASKS[stage]
-        kwargs = {"plan": quote(self.plan), "label": label, "entries": entries, "store": self.store,
+        kwargs = {"plan": self.plan_for_tasks, "label": label, "entries": entries, "store": self.store,
                   "recompute": self.recompute}
         if inline:
             return Finished(compute=lambda: task(**kwargs, return_state=True).result(raise_on_failure=False))
@@ -183,7 +187,7 @@ class Submitter:
         chain is ``(stages, entries)``."""
         chains = [(stages_left, {name: _given(name, value) for name, value in entries.items()})
                   for stages_left, entries in chains]
-        return tasks.core_chain_task.submit(plan=quote(self.plan), label=label, chains=chains, store=self.store,
+        return tasks.core_chain_task.submit(plan=self.plan_for_tasks, label=label, chains=chains, store=self.store,
                                             recompute=self.recompute)
 
     def publish(self, track: CoreTrack) -> Any:
@@ -197,7 +201,7 @@ class Submitter:
         the flow, the archive events inline (light work on small tables). Its result, or the
         exception it failed with."""
         if stage == "stack":
-            future = tasks.STAGE_TASKS[stage].submit(plan=quote(self.plan), label="all-cores", entries=entries,
+            future = tasks.STAGE_TASKS[stage].submit(plan=self.plan_for_tasks, label="all-cores", entries=entries,
                                                      store=self.store, recompute=self.recompute)
             return future.result(raise_on_failure=False)
         try:
