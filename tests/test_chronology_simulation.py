@@ -83,10 +83,11 @@ def test_family(curve, family):
     assert row["correct_flagged"] <= 0.03, row
     # Known limit, kept visible (README, cautions): in cores reaching 25-45 kyr the dates lie
     # ~3,000 cal yr apart and a 1,500-4,000 14C yr shift usually stays between the true ages
-    # of its neighbours; 4 of these 10 planted outliers are flagged (6 in 10 over 80 cores,
-    # where a reference knowing every other date's true age catches 5 in 10:
-    # chronology_outlier_diagnosis.py). The floor is what is measured.
-    caught_floor = 0.40 if family == "old" else 0.70
+    # of its neighbours; with the Beta(6, 1) memory prior 5 of these 10 planted outliers are
+    # flagged (26 of 40 over 80 cores, where a reference knowing every other date's true age
+    # catches 21 of 40: chronology_outlier_diagnosis.py). The target is 0.70; the
+    # floor is what is measured, not the target.
+    caught_floor = 0.50 if family == "old" else 0.70
     assert row["outliers_flagged"] >= caught_floor, row
 
 
