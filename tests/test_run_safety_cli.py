@@ -62,6 +62,10 @@ def test_busy_folder_live_resume_and_kill_minus_nine(archive):
     out, cache = root / "runs" / "live", root / "cache"
     home_a = pathlib.Path(tempfile.mkdtemp(prefix="downcore-safety-a-"))
     home_b = pathlib.Path(tempfile.mkdtemp(prefix="downcore-safety-b-"))
+    # a slower run (larger ensemble), so that it is still going after the two refused commands
+    # on a loaded machine (with ensemble 60 it once finished in between)
+    config = config.with_name("live.toml")
+    config.write_text(archive[1].read_text().replace("ensemble = 60", "ensemble = 600"))
     first = subprocess.Popen(_downcore("run", config, "--out", out, "--cache-dir", cache, "--workers", "1",
                                        "-q", "--no-report"), start_new_session=True,
                              stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, env=_environment(home_a))
@@ -96,7 +100,7 @@ def test_busy_folder_live_resume_and_kill_minus_nine(archive):
             os.kill(pid, signal.SIGKILL)
 
     other = config.with_name("other.toml")
-    other.write_text(config.read_text().replace("ensemble = 60", "ensemble = 61"))
+    other.write_text(config.read_text().replace("ensemble = 600", "ensemble = 61"))
     changed = subprocess.run(_downcore("run", other, "--out", out, "--cache-dir", cache, "-q", "--resume"),
                              capture_output=True, text=True, timeout=120, env=_environment(home_b))
     assert changed.returncode == 2 and "another config file" in changed.stderr, changed.stderr

@@ -61,6 +61,16 @@ __all__ = ["archive_flow", "core_flow", "collect_run", "CoreTrack", "Submitter",
 #: that on a small machine competes with the workers (threads: one core per task)
 CHAIN_BATCH_CORES = 4
 
+
+
+def tail_batch(batch: int, cores_left: int) -> int:
+    """Cores per chained task when ``cores_left`` cores (queued ones included) are still to
+    be submitted: ``batch``, but never more than a quarter of those left, so the last tasks
+    are single cores and the workers finish together (with 25 tasks of 4 cores on 2 workers
+    one worker ran a whole task, ~6 s, alone at the end)."""
+    return max(1, min(batch, cores_left // 4))
+
+
 _OBSERVERS: dict[str, Any] = {}
 _PLANS: dict[str, RunPlan] = {}
 
@@ -190,11 +200,18 @@ class Submitter:
         return tasks.core_chain_task.submit(plan=self.plan_for_tasks, label=label, chains=chains, store=self.store,
                                             recompute=self.recompute)
 
-    def publish(self, track: CoreTrack) -> Any:
-        """Publish a core's folder (a task run in the flow's thread); its outcome."""
-        state = tasks.outputs_task(run_dir=self.run_dir, label=track.name, entries=published_entries(track),
-                                   log_text=log_text(track), return_state=True)
-        return state.result(raise_on_failure=False)
+    def publish(self, tracks: list[CoreTrack]) -> list[dict]:
+        """Publish the folders of cores whose chains ended together (one task run in the
+        flow's thread: on Dask a chained task holds a few cores); one outcome per core, its
+        published files or ``{"failed": message}``."""
+        names = [track.name for track in tracks]
+        label = names[0] if len(names) == 1 else f"{names[0]}..{names[-1]}"
+        folders = [(track.name, published_entries(track), log_text(track)) for track in tracks]
+        state = tasks.outputs_task(run_dir=self.run_dir, label=label, folders=folders, return_state=True)
+        result = state.result(raise_on_failure=False)
+        if isinstance(result, BaseException):
+            return [{"failed": str(result)}] * len(tracks)
+        return result
 
     def run_level(self, stage: str, entries: dict) -> Any:
         """A run-level stage not found in the work store, computed: the stack as a task of
@@ -267,22 +284,23 @@ class _Cores:
             track.say(f"dated series {name}: {path}")
             firsts.append((track, self.sub.stage("series", name, {"name": name})))
         ids: dict[str, str] = {}
-        for track, first in firsts:
+        for position, (track, first) in enumerate(firsts):
             self.state.tracks.append(track)
             if record_first(track, outcome(first), ids):
                 self.going.append(track)
-                self._submit(track)
+                self._submit(track, still_to_queue=len(firsts) - position)
             else:
-                self.finish(track, {})
+                self.finish([track], [{}])
         self._flush()
 
     def entries(self, track: CoreTrack) -> dict[str, Any]:
         known = {stage: Finished(entry) for stage, entry in track.entries.items()}
         return {**known, **self.results[id(track)], "folder": track.folder, "training": self.training}
 
-    def _submit(self, track: CoreTrack) -> None:
+    def _submit(self, track: CoreTrack, still_to_queue: int) -> None:
         """Look the core's next stages up in the work store while their inputs are known in
-        the flow; queue the rest as the core's chain (see the module docstring)."""
+        the flow; queue the rest as the core's chain (see the module docstring).
+        ``still_to_queue``: this core and those after it (at most)."""
         self.results[id(track)] = found = {}
         left = list(track.stages_left())
         while left:
@@ -298,7 +316,7 @@ class _Cores:
             left.pop(0)
         if left:
             self._batch.append((track, tuple(left), self.entries(track)))
-            if len(self._batch) >= self.sub.batch:
+            if len(self._batch) >= tail_batch(self.sub.batch, still_to_queue - 1 + len(self._batch)):
                 self._flush()
 
     def _flush(self) -> None:
@@ -318,13 +336,12 @@ class _Cores:
         for track in self.going:
             chain = self.results[id(track)].get("chain")
             if chain is None:
-                self.finish(track, self._outcomes(track))  # every stage found in the work store
+                self.finish([track], [self._outcomes(track)])  # every stage found in the work store
                 continue
             owners.setdefault(chain[0], []).append(track)
             self.observer.stage(track.label, SCIENCE_STAGES[0])
         for future in as_completed(list(owners)):
-            for track in owners[future]:
-                self.finish(track, self._outcomes(track))
+            self.finish(owners[future], [self._outcomes(track) for track in owners[future]])
 
     def _outcomes(self, track: CoreTrack) -> dict[str, Any]:
         results = dict(self.results[id(track)])
@@ -339,15 +356,16 @@ class _Cores:
         return {**outcomes, **{stage: tasks.StageFailed(result["failed"]) if "failed" in result else result
                                for stage, result in chained[position]}}
 
-    def finish(self, track: CoreTrack, results: dict[str, Any]) -> None:
-        """Record a core's outcomes and publish its folder."""
-        record_rest(track, results, self.training_note)
-        published = self.sub.publish(track)
-        if isinstance(published, BaseException):
-            track.status, track.error = "failed", f"writing outputs: {published}"
-        else:
-            self.state.known_hashes.update(published.get("known_hashes", {}))
-        self.observer.finished(track)
+    def finish(self, tracks: list[CoreTrack], results: list[dict[str, Any]]) -> None:
+        """Record the outcomes of cores that ended together and publish their folders."""
+        for track, outcomes in zip(tracks, results):
+            record_rest(track, outcomes, self.training_note)
+        for track, published in zip(tracks, self.sub.publish(tracks)):
+            if "failed" in published:
+                track.status, track.error = "failed", f"writing outputs: {published['failed']}"
+            else:
+                self.state.known_hashes.update(published.get("known_hashes", {}))
+            self.observer.finished(track)
 
 
 def run_cores(submitter: Submitter, observer: Any = None, with_series: bool = True) -> RunState:

@@ -47,9 +47,9 @@ class _StoreOnly(Submitter):
     def chain_cores(self, label: str, chains: list[dict]) -> Any:  # pragma: no cover - Dask runs only
         raise WorkNeeded(f"chain[{label}]")
 
-    def publish(self, track: CoreTrack) -> Any:
-        self.publications.append((track.name, published_entries(track), log_text(track)))
-        return {"files": [], "known_hashes": {}}
+    def publish(self, tracks: list[CoreTrack]) -> list[dict]:
+        self.publications.extend((track.name, published_entries(track), log_text(track)) for track in tracks)
+        return [{"files": [], "known_hashes": {}} for _ in tracks]
 
     def run_level(self, stage: str, entries: dict) -> Any:
         raise WorkNeeded(stage)

@@ -24,7 +24,7 @@ from pipelines.flows.plan import RunPlan
 from pipelines.flows.stage_table import PUBLISH_STAGES, SCIENCE_STAGES, STAGES, call_stage, finished, take_inputs
 from pipelines.flows.store import WorkStore
 
-__all__ = ["run_chain", "guarded_call", "run_core_chain"]
+__all__ = ["run_chain", "stage_outcome", "guarded_call", "run_core_chain"]
 
 #: ``call(stage, entries)`` -> the stage's outcome: its entry, ``{"skipped": reason, "seconds": s}``
 #: or ``{"failed": message}``
@@ -57,20 +57,28 @@ def run_chain(stages: tuple[str, ...], entries: dict[str, Any], call: StageCall)
     return done
 
 
-def guarded_call(plan: RunPlan, store: WorkStore, recompute: bool) -> StageCall:
-    """A :data:`StageCall` running the stage in this process; a failure is isolated to the
-    core and described in plain text (picklable, so it crosses processes intact)."""
+def stage_outcome(stage: str, plan: RunPlan, entries: dict, store: WorkStore, recompute: bool) -> dict:
+    """Stage ``stage`` run in this process: its entry, ``{"skipped": reason, "seconds": s}``
+    or ``{"failed": message}``, a failure isolated to the core and described in plain text
+    (picklable, so it crosses processes intact). The one place where a stage's exception
+    becomes an outcome: the chain, the Prefect stage tasks and the science workers all call it."""
     from pipelines.flows.stages import StageSkipped, pin_blas_threads, problem_text
 
+    pin_blas_threads()
+    start = time.perf_counter()
+    try:
+        return call_stage(stage, plan, entries, store, recompute)
+    except StageSkipped as skipped:
+        return {"skipped": str(skipped), "seconds": round(time.perf_counter() - start, 4)}
+    except Exception as error:  # noqa: BLE001 - any failure is isolated to its core
+        return {"failed": problem_text(error)}
+
+
+def guarded_call(plan: RunPlan, store: WorkStore, recompute: bool) -> StageCall:
+    """A :data:`StageCall` running the stage in this process (:func:`stage_outcome`)."""
+
     def call(stage: str, entries: dict) -> dict:
-        pin_blas_threads()
-        start = time.perf_counter()
-        try:
-            return call_stage(stage, plan, entries, store, recompute)
-        except StageSkipped as skipped:
-            return {"skipped": str(skipped), "seconds": round(time.perf_counter() - start, 4)}
-        except Exception as error:  # noqa: BLE001 - any failure is isolated to its core
-            return {"failed": problem_text(error)}
+        return stage_outcome(stage, plan, entries, store, recompute)
 
     return call
 

@@ -141,22 +141,13 @@ def _plan_from(path: str) -> Any:
     return plan
 
 
-def _run_stage(name: str, plan_path: str, entries: dict, store_root: str, recompute: bool) -> tuple[str, Any]:
-    """In a worker: run stage ``name`` (:func:`pipelines.flows.stage_table.call_stage`).
-
-    Returns ``("done", entry)``, ``("skipped", reason)`` or ``("failed", message)``; a failure
-    is described here, in plain text, so that nothing but strings and small dicts come back.
-    """
-    from pipelines.flows.stage_table import call_stage
-    from pipelines.flows.stages import StageSkipped, problem_text
+def _run_stage(name: str, plan_path: str, entries: dict, store_root: str, recompute: bool) -> dict:
+    """In a worker: run stage ``name``; its outcome (:func:`pipelines.flows.chain.stage_outcome`:
+    nothing but strings and small dicts come back)."""
+    from pipelines.flows.chain import stage_outcome
     from pipelines.flows.store import WorkStore
 
-    try:
-        return "done", call_stage(name, _plan_from(plan_path), entries, WorkStore(store_root), recompute)
-    except StageSkipped as skipped:
-        return "skipped", str(skipped)
-    except Exception as error:  # noqa: BLE001 - isolated to its core, reported as its failure
-        return "failed", problem_text(error)
+    return stage_outcome(name, _plan_from(plan_path), entries, WorkStore(store_root), recompute)
 
 
 def _run_chain(plan_path: str, stages: tuple[str, ...], entries: dict, store_root: str,
@@ -283,20 +274,19 @@ class SciencePool:
             return None
 
     def run_stage(self, name: str, plan: Any, entries: dict, store: Any, recompute: bool,
-                  tries: int = 2) -> tuple[str, Any]:
+                  tries: int = 2) -> dict:
         """Run stage ``name`` in a worker and wait for it (or adopt its head start's entry);
-        see :func:`_run_stage` for the result. A stage whose worker dies is tried again in a
-        fresh pool (``tries`` in all); when that worker dies too, the stage has failed
-        (``("failed", message)``)."""
+        its outcome (see :func:`_run_stage`). A stage whose worker dies is tried again in a
+        fresh pool (``tries`` in all); when that worker dies too, the stage has failed."""
         claimed = None if recompute else self._claimed(name, plan, entries, store)
         if claimed is not None:
-            return "done", claimed
+            return claimed
         try:
             return self.call(_run_stage, name, self._plan_file(plan), entries, str(store.root), recompute,
                              tries=tries)
         except BrokenProcessPool:
-            return "failed", (f"the worker process running {name} died, twice (killed by the system, or out "
-                              f"of memory?); set {PROCESSES_ENV}=0 to run the science in the run's own process")
+            return {"failed": (f"the worker process running {name} died, twice (killed by the system, or out "
+                               f"of memory?); set {PROCESSES_ENV}=0 to run the science in the run's own process")}
 
     def run_chain(self, plan: Any, stages: tuple[str, ...], entries: dict, store: Any,
                   recompute: bool) -> list[tuple[str, dict]]:
@@ -318,8 +308,8 @@ class SciencePool:
             return self.call(_run_chain, self._plan_file(plan), stages, entries, str(store.root), recompute,
                              tries=1)
         except BrokenProcessPool:
-            return run_chain(stages, entries, lambda name, given: _outcome(
-                *self.run_stage(name, plan, given, store, recompute, tries=1)))
+            return run_chain(stages, entries, lambda name, given: self.run_stage(name, plan, given, store,
+                                                                                 recompute, tries=1))
 
     def close(self) -> None:
         """End the workers at once (idle after a run; abandoned, when it was interrupted,
@@ -334,13 +324,6 @@ class SciencePool:
         shutil.rmtree(self._folder, ignore_errors=True)
         if self._head is not None:
             self._head.remove()
-
-
-def _outcome(kind: str, value: Any) -> dict:
-    """A :meth:`SciencePool.run_stage` result as a chain's stage outcome."""
-    if kind == "done":
-        return value
-    return {"skipped": value, "seconds": 0.0} if kind == "skipped" else {"failed": value}
 
 
 _ACTIVE: SciencePool | None = None

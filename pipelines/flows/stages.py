@@ -15,7 +15,6 @@ import contextvars
 import pathlib
 import threading
 import time
-import warnings
 from typing import Any, Callable
 
 import numpy as np
@@ -28,6 +27,7 @@ from pipelines.outputs_schema import checked, member_column_names, table as outp
 from pipelines.runfolder import atomic_write_parquet
 from proxies.problems import InputError
 from proxies.seeding import rng_for
+from proxies.warning_sinks import collected_warnings
 
 __all__ = ["StageSkipped", "NotCached", "probe", "run_ingest", "run_training", "run_chronology", "run_calibration",
            "run_reconstruction", "run_events", "run_archive_events", "run_stack", "pin_blas_threads", "write_tables"]
@@ -68,21 +68,11 @@ def probe(run: Callable[[], dict]) -> dict | None:
 
 _SETUP_LOCK = threading.Lock()
 _SETUP_DONE = False
-_LOCAL = threading.local()
-_ORIGINAL_SHOWWARNING = warnings.showwarning
-
-
-def _route_warning(message, category, filename, lineno, file=None, line=None):
-    sink = getattr(_LOCAL, "sink", None)
-    if sink is None:
-        _ORIGINAL_SHOWWARNING(message, category, filename, lineno, file, line)
-    else:
-        sink.append(str(message))
 
 
 def pin_blas_threads() -> None:
     """Once per process: one BLAS/OpenMP thread (same reductions on every executor, see
-    ../shared/PREFECT.md) and per-thread collection of science warnings."""
+    ../shared/PREFECT.md)."""
     global _SETUP_DONE
     with _SETUP_LOCK:
         if _SETUP_DONE:
@@ -90,22 +80,16 @@ def pin_blas_threads() -> None:
         from threadpoolctl import threadpool_limits
 
         threadpool_limits(limits=1)
-        warnings.showwarning = _route_warning
-        warnings.filterwarnings("always", category=UserWarning, module=r"proxies(\..*)?$")
         _SETUP_DONE = True
 
 
 @contextlib.contextmanager
 def _collect_warnings():
-    """Collect the warnings raised by science code in this thread (thread-safe)."""
+    """Collect the warnings raised by science code in this thread (thread-safe,
+    :func:`proxies.warning_sinks.collected_warnings`)."""
     pin_blas_threads()
-    previous = getattr(_LOCAL, "sink", None)
-    sink: list[str] = []
-    _LOCAL.sink = sink
-    try:
+    with collected_warnings() as sink:
         yield sink
-    finally:
-        _LOCAL.sink = previous
 
 
 # --- helpers -------------------------------------------------------------------------------

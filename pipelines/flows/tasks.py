@@ -24,9 +24,9 @@ from prefect import task
 from prefect.cache_policies import NO_CACHE
 
 from pipelines.flows import science_pool, stages
-from pipelines.flows.chain import run_core_chain
+from pipelines.flows.chain import run_core_chain, stage_outcome
 from pipelines.flows.plan import RunPlan
-from pipelines.flows.stage_table import NOT_RUN, STAGES, call_stage, take_inputs
+from pipelines.flows.stage_table import NOT_RUN, STAGES, take_inputs
 from pipelines.flows.store import WorkStore
 from pipelines.runfolder import atomic_write_bytes, link_or_copy, publish_folder, staging_folder
 
@@ -40,27 +40,12 @@ class StageFailed(RuntimeError):
     """A stage failed for one core; ``str(error)`` is the message shown in the summary."""
 
 
-def _guarded(runner: Callable[..., dict], *args: Any) -> dict:
-    stages.pin_blas_threads()
-    start = time.perf_counter()
-    try:
-        return runner(*args)
-    except stages.StageSkipped as skipped:
-        return {"skipped": str(skipped), "seconds": round(time.perf_counter() - start, 4)}
-    except StageFailed:
-        raise
-    except Exception as error:  # noqa: BLE001 - any failure is isolated to its core
-        raise StageFailed(stages.problem_text(error)) from None
-
-
-def _call_in_worker(name: str, plan: RunPlan, entries: dict, store: WorkStore, recompute: bool) -> dict:
-    """:func:`call_stage` in a worker process of the run's science pool (this thread waits)."""
-    outcome, value = science_pool.active_pool().run_stage(name, plan, entries, store, recompute)
-    if outcome == "skipped":
-        raise stages.StageSkipped(value)
-    if outcome == "failed":
-        raise StageFailed(value)
-    return value
+def _as_task_result(outcome: dict) -> dict:
+    """A stage's outcome (:func:`pipelines.flows.chain.stage_outcome`) as its task's result:
+    a failure raises :class:`StageFailed`, so that Prefect records the task run as failed."""
+    if "failed" in outcome:
+        raise StageFailed(outcome["failed"])
+    return outcome
 
 
 def _stage_task(name: str):
@@ -72,8 +57,10 @@ def _stage_task(name: str):
     def run(plan: RunPlan, label: str, entries: dict, store: WorkStore, recompute: bool = False) -> dict:
         if take_inputs(STAGES[name], entries) is None:
             return dict(NOT_RUN)  # an input was skipped or failed: nothing to run (nor to send)
-        call = _call_in_worker if in_pool and science_pool.active_pool() is not None else call_stage
-        return _guarded(call, name, plan, entries, store, recompute)
+        pool = science_pool.active_pool() if in_pool else None
+        if pool is not None:
+            return _as_task_result(pool.run_stage(name, plan, entries, store, recompute))
+        return _as_task_result(stage_outcome(name, plan, entries, store, recompute))
 
     run.__name__ = run.__qualname__ = f"{name}_task"
     run.__doc__ = f"Stage {name!r} of :data:`pipelines.flows.stage_table.STAGES`."
@@ -128,10 +115,15 @@ def publish_core_folder(run_dir: str, folder_name: str, entries: list[dict], log
 
 
 @task(name="outputs", task_run_name="outputs[{label}]", **_OPTIONS)
-def outputs_task(run_dir: str, label: str, entries: list[dict], log_text: str) -> dict:
-    """Publish one core's folder in the run folder."""
+def outputs_task(run_dir: str, label: str, folders: list[tuple[str, list[dict], str]]) -> list[dict]:
+    """Publish the folders of one or a few cores in the run folder; ``folders`` holds each
+    core's ``(folder name, entries, log text)``. One outcome per core, failures isolated:
+    its published files (:func:`publish_core_folder`) or ``{"failed": message}``."""
     stages.pin_blas_threads()
-    try:
-        return publish_core_folder(run_dir, label, entries, log_text)
-    except Exception as error:  # noqa: BLE001
-        raise StageFailed(stages.problem_text(error)) from None
+    published = []
+    for folder_name, entries, text in folders:
+        try:
+            published.append(publish_core_folder(run_dir, folder_name, entries, text))
+        except Exception as error:  # noqa: BLE001 - the other cores' folders stay valid
+            published.append({"failed": stages.problem_text(error)})
+    return published

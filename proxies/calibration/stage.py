@@ -9,7 +9,6 @@ Two functions are the seams the pipeline calls (see DEVELOPERS.md):
 
 from __future__ import annotations
 
-import warnings as _warnings
 from dataclasses import dataclass
 from typing import Callable, Mapping
 
@@ -24,6 +23,7 @@ from .records import CalibratedRecord, CoreInputs, MethodResult
 from .settings import CalibrationSettings
 from .transfer import FittedTransfer, calibrate_transfer, fit_transfer_function, \
     prepare_fossil, prepare_training
+from proxies.warning_sinks import quiet_warnings
 
 __all__ = ["FittedTransfer", "CalibratedRecord", "CalibrationResult", "prepare_training",
            "prepare_fossil", "fit_transfer_function", "calibrate_core", "SKILL_COLUMNS",
@@ -78,8 +78,7 @@ class CalibrationResult:
 def sample_summaries(record: CalibratedRecord) -> pd.DataFrame:
     """One row per sample of a record: median, 2.5 and 97.5 % quantiles, mean, SD, flag."""
     v = record.values
-    with _warnings.catch_warnings():
-        _warnings.simplefilter("ignore", RuntimeWarning)
+    with quiet_warnings(RuntimeWarning):
         q = np.nanquantile(v, [0.5, 0.025, 0.975], axis=1) if v.size else np.zeros((3, 0))
         mean = np.nanmean(v, axis=1) if v.size else np.zeros(0)
         sd = np.nanstd(v, axis=1, ddof=1) if v.size else np.zeros(0)

@@ -33,10 +33,8 @@ potential; every step stays exact. A date's outlier probability is the Rao-Black
 
 References
 ----------
-Blaauw M, Christen JA (2011). Flexible paleoclimate age-depth models using an autoregressive
-gamma process. Bayesian Analysis 6(3), 457-474. doi:10.1214/11-BA618
-Carter CK, Kohn R (1994). On Gibbs sampling for state space models. Biometrika 81(3),
-541-553. doi:10.1093/biomet/81.3.541
+Blaauw & Christen (2011) for the autoregressive gamma process, Carter & Kohn (1994) for the
+forward-filtering backward-sampling: full entries in :mod:`proxies.chronology.accumulation`.
 """
 
 from __future__ import annotations

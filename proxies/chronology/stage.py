@@ -9,7 +9,6 @@ adapter from a :class:`proxies.cores.Core` to the array functions of
 from __future__ import annotations
 
 import math
-import warnings
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -28,6 +27,7 @@ from proxies.chronology.settings import ChronologySettings
 from proxies.cores.datability import (age_control_problems, event_layer_problems, grid_memory_problems,
                                       machine_memory_bytes)
 from proxies.problems import InputError, Problem
+from proxies.warning_sinks import collected_warnings
 
 __all__ = ["ChronologyResult", "build_chronology", "calibrate_core_dates", "date_density_table", "date_range_table", "format_ranges",
            "mean_rate_from_dates", "CORE_TOP_LABEL"]
@@ -256,12 +256,11 @@ def build_chronology(core, curves: dict[str, CalibrationCurve], settings: Chrono
     if refused:
         raise InputError(refused)
     messages: list[str] = []
-    with warnings.catch_warnings(record=True) as caught:
-        warnings.simplefilter("always")
+    with collected_warnings() as caught:  # thread-safe, unlike warnings.catch_warnings
         # a core with 210Pb data takes its Monte Carlo generator from the stage's, first
         lead_rng = np.random.default_rng(rng.integers(2**63)) if core.lead210 is not None else None
         table, calibrated = calibrate_core_dates(core, curves, settings, lead_rng)
-    messages.extend(str(w.message) for w in caught)
+    messages.extend(caught)
     depth_scale = getattr(core, "depth_scale", None)
     table["event_free_depth_cm"] = _event_free(depth_scale, table["depth_cm"].to_numpy(float))
     medians = calibrated.median()

@@ -20,7 +20,7 @@ from dataclasses import dataclass, field
 from datetime import date
 from typing import Any
 
-from proxies.cores.model import BP_ZERO_CE, EventLayer, Section
+from proxies.cores.model import BP_ZERO_CE, CoreIdentity, EventLayer, Section
 from proxies.problems import Problem
 from proxies.settings_spec import did_you_mean
 
@@ -52,20 +52,14 @@ def current_year() -> int:
 
 
 @dataclass(frozen=True)
-class CoreSpec:
+class CoreSpec(CoreIdentity):
     """The contents of a valid ``core.toml``, depths already in cm.
 
-    Attributes mirror :class:`proxies.cores.model.Core`; ``depth_unit`` is the unit the
-    tables are written in, ``files`` maps ``samples``/``dates``/``counts`` to file names.
+    Attributes beyond the identity (:class:`proxies.cores.model.CoreIdentity`) mirror
+    :class:`proxies.cores.model.Core`; ``depth_unit`` is the unit the tables are written in,
+    ``files`` maps ``samples``/``dates``/``counts`` to file names.
     """
 
-    id: str
-    archive: str
-    latitude: float
-    longitude: float
-    collected_ce: int
-    site: str
-    top_age_error: float | None
     depth_unit: str
     files: dict[str, str]
     sections: tuple[Section, ...] = ()

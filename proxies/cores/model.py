@@ -16,7 +16,7 @@ from pandas.api.types import is_bool_dtype, is_numeric_dtype
 if TYPE_CHECKING:  # pragma: no cover
     from proxies.cores.depth import DepthScale
 
-__all__ = ["Section", "EventLayer", "Core", "NON_PROXY_COLUMNS", "ERROR_SUFFIX"]
+__all__ = ["Section", "EventLayer", "CoreIdentity", "Core", "NON_PROXY_COLUMNS", "ERROR_SUFFIX"]
 
 #: sample/count columns that are never proxies or taxa
 NON_PROXY_COLUMNS = frozenset(
@@ -67,9 +67,10 @@ class EventLayer:
         return self.bottom_cm - self.top_cm
 
 
-@dataclass(frozen=True, eq=False)
-class Core:
-    """One validated sediment core.
+@dataclass(frozen=True, eq=False)  # a Core compares by identity (its tables are not compared)
+class CoreIdentity:
+    """What names, places and dates a core's top: the ``[core]`` keys of ``core.toml``, shared
+    by :class:`Core` and the parsed file (:class:`proxies.cores.core_file.CoreSpec`).
 
     Attributes
     ----------
@@ -85,6 +86,23 @@ class Core:
         Free-text site description (may be empty).
     top_age_error : float or None
         1-sigma uncertainty of the core-top age [yr], or ``None`` when not given.
+    """
+
+    id: str
+    archive: str
+    latitude: float
+    longitude: float
+    collected_ce: int
+    site: str
+    top_age_error: float | None
+
+
+@dataclass(frozen=True, eq=False)
+class Core(CoreIdentity):
+    """One validated sediment core: its identity (:class:`CoreIdentity`) and its tables.
+
+    Attributes
+    ----------
     samples : DataFrame
         ``depth_cm`` (composite), optional ``thickness_cm``, ``section``,
         ``section_depth_cm``, one float column per proxy, optional ``<proxy>_error``, and
@@ -115,13 +133,6 @@ class Core:
         ``ra226_error``, ``source_row``.
     """
 
-    id: str
-    archive: str
-    latitude: float
-    longitude: float
-    collected_ce: int
-    site: str
-    top_age_error: float | None
     samples: pd.DataFrame = field(repr=False)
     dates: pd.DataFrame = field(repr=False)
     counts: pd.DataFrame | None = field(repr=False)

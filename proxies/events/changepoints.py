@@ -24,9 +24,9 @@ Schwarz, G. (1978). Estimating the dimension of a model. Ann. Stat. 6, 461-464.
 
 from __future__ import annotations
 
-import warnings
 
 import numpy as np
+from proxies.warning_sinks import quiet_warnings
 
 __all__ = ["MODELS", "bic_penalty", "robust_sigma", "robust_sigma_observed", "pelt",
            "optimal_partitioning"]
@@ -74,8 +74,7 @@ def robust_sigma_observed(x: np.ndarray, observed: np.ndarray) -> np.ndarray:
     x = np.asarray(x, dtype=float)
     both = observed[1:] & observed[:-1]
     d = np.where(both, np.diff(x, axis=0), np.nan)
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", RuntimeWarning)
+    with quiet_warnings(RuntimeWarning):
         med = np.nanmedian(d, axis=0)
         mad = np.nanmedian(np.abs(d - med), axis=0)
     sigma = mad / (0.6745 * np.sqrt(2.0))

@@ -33,10 +33,10 @@ Mudelsee, M. (2014). Climate Time Series Analysis, 2nd ed. Springer.
 
 from __future__ import annotations
 
-import warnings
 from dataclasses import dataclass
 
 import numpy as np
+from proxies.warning_sinks import quiet_warnings
 
 __all__ = ["MIN_BLOCK_POINTS", "ScanProfile", "ar1_sum_variance", "robust_scale", "excursion_scan",
            "top_blocks"]
@@ -95,8 +95,7 @@ def robust_scale(work: np.ndarray, observed: np.ndarray) -> np.ndarray:
         Positive scale [units of work]; the standard deviation where the MAD is 0, else 1.
     """
     values = np.where(observed, work, np.nan)
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", RuntimeWarning)
+    with quiet_warnings(RuntimeWarning):
         centre = np.nanmedian(values, axis=0)
         mad = np.nanmedian(np.abs(values - centre), axis=0)
         sd = np.nanstd(values, axis=0)

@@ -6,7 +6,6 @@ shifts on the members' standardised mean against the members' null (:func:`mean_
 
 from __future__ import annotations
 
-import warnings
 from dataclasses import dataclass
 
 import numpy as np
@@ -17,6 +16,7 @@ from proxies.events.scan import ScanProfile, robust_scale
 from proxies.events.settings import EventSettings
 from proxies.events.significance import matched_null_tau, monte_carlo_p_values, null_maxima, prepare_series
 from proxies.reconstruction.grid import fill_gaps
+from proxies.warning_sinks import quiet_warnings
 
 __all__ = ["Search", "search_members", "mean_search", "central_search"]
 
@@ -75,8 +75,7 @@ def mean_search(x: np.ndarray, observed: np.ndarray, members: Search, max_exc: i
     lag-one persistence 10-30 grid steps where the climate had 1.5).
     """
     filled = fill_gaps(np.where(observed, x, np.nan))
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", RuntimeWarning)  # all-NaN cells stay NaN
+    with quiet_warnings(RuntimeWarning):  # all-NaN cells stay NaN
         mean = np.nanmean(np.where(observed, filled / members.scale[None, :], np.nan), axis=1)
     series = fill_gaps(np.where(cells[:, None], mean[:, None], np.nan))
     persistence = float(np.exp(-1.0 / members.tau_steps)) if members.tau_steps > 0 else 0.0
@@ -94,8 +93,7 @@ def central_search(x: np.ndarray, observed: np.ndarray, members: Search, backgro
     cells = observed.mean(axis=1) >= 0.5
     if cells.sum() < 3:
         return None
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", RuntimeWarning)  # all-NaN cells stay NaN
+    with quiet_warnings(RuntimeWarning):  # all-NaN cells stay NaN
         med = np.nanmedian(np.where(observed, x, np.nan), axis=1)
     median = search_members(fill_gaps(np.where(cells[:, None], med[:, None], np.nan)), cells[:, None], background,
                      max_exc, settings, rng)

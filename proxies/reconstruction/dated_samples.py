@@ -27,11 +27,11 @@ Every proxy appears, calibrated or not: a proxy without a calibration still gets
 from __future__ import annotations
 
 import re
-import warnings
 from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
+from proxies.warning_sinks import quiet_warnings
 
 __all__ = ["DatedSamples", "dated_sample_table", "calibrated_column_stem", "AGE_LEVELS",
            "column_units"]
@@ -132,8 +132,7 @@ def _bookkeeping(core, levels: np.ndarray) -> dict[str, np.ndarray]:
 
 def _age_columns(chronology, levels: np.ndarray) -> dict[str, np.ndarray]:
     ages = np.asarray(chronology.age_at(levels), dtype=float)
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", RuntimeWarning)
+    with quiet_warnings(RuntimeWarning):
         q = np.nanquantile(ages, list(AGE_LEVELS.values()), axis=1)
     order = ("age_median_cal_bp", "age_q160_cal_bp", "age_q840_cal_bp", "age_q025_cal_bp",
              "age_q975_cal_bp")
@@ -168,8 +167,7 @@ def _raw_columns(core, levels: np.ndarray) -> dict[str, np.ndarray]:
 def _record_columns(record, levels: np.ndarray, raw: dict[str, np.ndarray],
                     diagnostics: pd.DataFrame | None) -> dict[str, np.ndarray]:
     values = np.asarray(record.values, dtype=float)
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", RuntimeWarning)
+    with quiet_warnings(RuntimeWarning):
         q = np.nanquantile(values, list(VALUE_LEVELS.values()), axis=1) if values.size \
             else np.zeros((len(VALUE_LEVELS), 0))
     stem = calibrated_column_stem(record.variable, record.units, record.proxy)

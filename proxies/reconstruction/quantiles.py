@@ -2,9 +2,9 @@
 
 from __future__ import annotations
 
-import warnings
 
 import numpy as np
+from proxies.warning_sinks import quiet_warnings
 
 __all__ = ["BAND_LEVELS", "band_name", "ensemble_bands"]
 
@@ -42,8 +42,7 @@ def ensemble_bands(values: np.ndarray, min_member_share: float = 0.5,
     keep = share >= min_member_share
     out = {band_name(q): np.full(values.shape[0], np.nan) for q in levels}
     if keep.any():
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore", RuntimeWarning)
+        with quiet_warnings(RuntimeWarning):
             q = np.nanquantile(values[keep], levels, axis=1)
         for i, level in enumerate(levels):
             out[band_name(level)][keep] = q[i]

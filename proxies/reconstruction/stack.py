@@ -22,6 +22,7 @@ from proxies.reconstruction.grid import bin_means, regular_grid
 from proxies.reconstruction.quantiles import BAND_LEVELS, band_name, ensemble_bands
 from proxies.reconstruction.settings import ReconstructionSettings
 from proxies.seeding import rng_for
+from proxies.warning_sinks import quiet_warnings
 
 __all__ = ["stack_records", "stack_ensembles", "StackEnsemble", "composite_members", "standardise_over_window",
            "coarsen_series"]
@@ -45,8 +46,7 @@ def standardise_over_window(age_cal_bp: np.ndarray, values: np.ndarray, window: 
         (``anomaly``).
     """
     inside = (age_cal_bp >= window[0]) & (age_cal_bp <= window[1])
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", RuntimeWarning)
+    with quiet_warnings(RuntimeWarning):
         mean = np.nanmean(values[inside], axis=0)
         out = values - mean[None, :]
         if method == "zscore":
@@ -84,8 +84,7 @@ def composite_members(aligned) -> tuple[np.ndarray, np.ndarray]:
             n_records = np.zeros(record.shape[0], dtype=np.int64)
         total += np.where(have, record, 0.0)
         count += have
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore", RuntimeWarning)
+        with quiet_warnings(RuntimeWarning):
             n_records += np.isfinite(np.nanmedian(record, axis=1))
     if total is None:
         raise ValueError("no record to composite")
