@@ -28,6 +28,7 @@ __all__ = [
     "hash_inputs",
     "package_versions",
     "hash_outputs",
+    "utc_now",
     "output_kind",
     "build_manifest",
     "write_manifest",
@@ -164,11 +165,16 @@ def build_manifest(*, config_path: str | os.PathLike[str], config_text: str,
                    run_seed: int, streams: list[str], executor: Mapping[str, Any],
                    cores: list[Mapping[str, Any]], run_dir: str | os.PathLike[str],
                    started_utc: str, seconds: float,
-                   known_hashes: Mapping[str, tuple[int, int, str]] | None = None) -> dict[str, Any]:
+                   known_hashes: Mapping[str, tuple[int, int, str]] | None = None,
+                   created_utc: str | None = None) -> dict[str, Any]:
     """Assemble the manifest of a finished run (output hashes are computed here).
 
     Parameters
     ----------
+    created_utc : str, optional
+        When the run's results were complete (default: now). A run with a report gives its
+        provisional manifest and its final one the same value, so that the report it writes
+        states the finish time the manifest keeps (and equals a rewrite by ``downcore report``).
     streams : list of str
         The random streams used, as ``"stage/core"`` names; each is
         ``rng_for(run_seed, stage, core)``.
@@ -180,7 +186,7 @@ def build_manifest(*, config_path: str | os.PathLike[str], config_text: str,
     """
     return {
         "format": MANIFEST_FORMAT,
-        "created_utc": _dt.datetime.now(_dt.timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ"),
+        "created_utc": created_utc or utc_now(),
         "started_utc": started_utc,
         "seconds": round(float(seconds), 3),
         "config": {"path": str(pathlib.Path(config_path).resolve()), "text": config_text,
@@ -193,6 +199,11 @@ def build_manifest(*, config_path: str | os.PathLike[str], config_text: str,
         "cores": list(cores),
         "outputs": hash_outputs(run_dir, known_hashes),
     }
+
+
+def utc_now() -> str:
+    """The time now, UTC, to the second (``2026-12-02T14:36:47Z``)."""
+    return _dt.datetime.now(_dt.timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
 
 
 def write_manifest(run_dir: str | os.PathLike[str], manifest: Mapping[str, Any]) -> pathlib.Path:

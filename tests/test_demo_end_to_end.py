@@ -14,6 +14,7 @@ once, as subprocesses (each with its own temporary Prefect server, offline), and
 
 from __future__ import annotations
 
+import json
 import os
 import pathlib
 import re
@@ -154,3 +155,20 @@ def test_report_and_netcdf_of_the_demo(demo_runs):
         assert all("units" in data[name].attrs for name in data.data_vars)
         years = [when.year for when in data["time"].values]  # decoded with cftime (declared)
         assert years == [int(np.floor(1950.0 - age)) for age in data["age"].values]
+
+
+def test_the_run_s_own_report_equals_a_rewrite(demo_runs, tmp_path):
+    """The report and netCDF a run writes are the bytes `downcore report` writes from its
+    folder afterwards: both state the finish time the manifest keeps (the run's report once
+    showed a provisional one, 10 s earlier than the manifest's)."""
+    import shutil
+
+    a, _, _ = demo_runs
+    copy = tmp_path / a.name  # same folder name: the report names its folder
+    shutil.copytree(a, copy)
+    done = _downcore("report", str(copy))
+    assert done.returncode == 0, done.stderr[-3000:]
+    for name in ("report.html", "reconstructions.nc"):
+        assert (copy / name).read_bytes() == (a / name).read_bytes(), name
+    manifest = json.loads((a / "manifest.json").read_text(encoding="utf-8"))
+    assert manifest["created_utc"] in (a / "report.html").read_text(encoding="utf-8")

@@ -10,7 +10,6 @@ complete; one without is not a result.
 from __future__ import annotations
 
 import dataclasses
-import datetime as _dt
 import os
 import pathlib
 import time
@@ -22,7 +21,7 @@ import pandas as pd
 from pipelines.flows.plan import RunPlan, build_plan
 from pipelines.flows.runners import ExecutorChoice, prefect_run_settings, task_runner_for
 from pipelines.flows.stage_table import CORE_STAGES, SCIENCE_STAGES
-from pipelines.manifest import build_manifest, write_manifest
+from pipelines.manifest import build_manifest, utc_now, write_manifest
 from pipelines.outputs_schema import TABLES, checked
 from pipelines.runfolder import (IN_PROGRESS_MARKER, atomic_copy, atomic_write_json, atomic_write_parquet,
                                  atomic_write_text, create_run_folder, ensure_writable_folder,
@@ -178,7 +177,7 @@ def execute_run(config_path: str | os.PathLike[str], out_dir: str | os.PathLike[
         When the run folder cannot be created or written.
     """
     choice = choice or ExecutorChoice()
-    started_utc = _dt.datetime.now(_dt.timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
+    started_utc = utc_now()
     started = time.perf_counter()
     plan = plan or build_plan(config_path)
     cache = pathlib.Path(cache_dir).expanduser().resolve() if cache_dir else default_cache_dir(out_dir)
@@ -282,6 +281,7 @@ def _report_and_manifest(run_dir: pathlib.Path, plan: RunPlan, inputs: list, cac
         progress.close()
     notes = list(result["notes"])
     _write_run_tables(run_dir, result)
+    results_utc = utc_now()
 
     def manifest_now() -> dict:
         manifest = build_manifest(config_path=plan.config_path, config_text=plan.config_text,
@@ -289,7 +289,7 @@ def _report_and_manifest(run_dir: pathlib.Path, plan: RunPlan, inputs: list, cac
                                   run_seed=plan.run_seed, streams=_streams(result),
                                   executor=choice.describe(), cores=result["cores"], run_dir=run_dir,
                                   started_utc=started_utc, seconds=time.perf_counter() - started,
-                                  known_hashes=result.get("known_hashes"))
+                                  known_hashes=result.get("known_hashes"), created_utc=results_utc)
         manifest["notes"] = notes
         manifest["cache_dir"] = str(cache)
         manifest["code_fingerprint"] = plan.fingerprint
