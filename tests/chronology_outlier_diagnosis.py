@@ -1,8 +1,8 @@
 """Why planted gross outliers are missed in a truth family: a diagnosis, run by hand.
 
 ``python tests/chronology_outlier_diagnosis.py old 80`` fits the default age model to the
-first 80 cores of a family of ``chronology_families.py`` (the simulation suite's first 20
-among them) and prints, for the planted outliers (1,500-4,000 14C yr off), the share caught
+first 80 cores of a family of ``chronology_families.py`` (the simulation suite's 20, for
+``old`` 60, among them) and prints, for the planted outliers (1,500-4,000 14C yr off), the share caught
 (outlier probability > 0.5) by shift size, by position (first or last date vs inside), by
 sign and by age, how far the model's median bends towards the outlier, and two references:
 

@@ -187,8 +187,11 @@ def _flat_curve():
 @pytest.mark.parametrize("model", ["memory", "accumulation"])
 def test_a_thick_slice_dates_its_mean_age_not_its_centre(model):
     """A 40-cm slice whose date sits at the slice's mean age: same model age at the centre
-    for a point and a slice (the path is nearly straight), and a thick slice keeps the
-    ensemble wider there than a point date (its age is no longer pinned at one depth)."""
+    for a point and a slice (the path is nearly straight). Inside the slice the path is
+    straight, so the centre's age is the slice's mean age, which the date constrains with the
+    same likelihood as the point date constrains its depth: the spreads there are alike (within
+    25 %; measured 0.92-1.05 across the models and memory priors), while a slice date that
+    constrained nothing would leave the centre several times wider."""
     point, curve = _core_with_thickness(0.0)
     slab, _ = _core_with_thickness(40.0)
     settings = ChronologySettings(model=model)
@@ -198,7 +201,9 @@ def test_a_thick_slice_dates_its_mean_age_not_its_centre(model):
         b = build_chronology(slab, {"atmosphere": curve}, settings, 600, np.random.default_rng(3))
     at_a, at_b = a.age_at([150.0])[0], b.age_at([150.0])[0]
     assert abs(np.median(at_a) - np.median(at_b)) < 0.5 * np.std(at_b) + 30
-    assert np.std(at_b) > np.std(at_a)
+    assert abs(np.std(at_b) / np.std(at_a) - 1) < 0.25
+    ends = b.age_at([130.0, 170.0])
+    np.testing.assert_allclose(ends.mean(axis=0), at_b, atol=1e-6)
     # the slice's ends are nodes and nothing lies inside
     nodes = b.node_event_free_cm
     assert 130.0 in nodes and 170.0 in nodes and not np.any((nodes > 130.0) & (nodes < 170.0))

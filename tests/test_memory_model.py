@@ -101,3 +101,38 @@ def test_members_are_shared_among_points_by_their_evidence():
     np.testing.assert_allclose(counts[:3] / 10_000, np.array([0.6, 0.3, 0.0999]) / 0.9999, atol=0.02)
     with pytest.raises(ValueError, match="no age-depth path"):
         members_per_point(np.full(3, -np.inf), 10, 1e-3, np.random.default_rng(3))
+
+
+def test_memory_prior_weights_equal_brute_force_posterior():
+    """With a Beta(a, b) prior over the memory the posterior weight of each grid point is the
+    beta density there times the brute-force evidence (Bayes' rule over the points, exact), and
+    the sampled paths follow the prior-weighted mixture of the exact marginals."""
+    from proxies.chronology.memory import memory_log_prior
+
+    problem = _tiny(False, seed=8)
+    memories = [0.2, 0.9]
+    a, b = 6.0, 1.0
+    fit = fit_memory(problem, [2.0], [0.8], memories, 25.0, 40000, np.random.default_rng(2), classes=2,
+                     within_shape=6.0, memory_prior=(a, b))
+    transitions = _Transitions(problem, 2.0 * rate_classes(0.8, 2)[None, :], 6.0, 25.0)
+    exact = [_brute_force(problem, transitions, 0, w) for w in memories]
+    # Beta(6, 1) density, by hand (from memory: 6 w^5), not through scipy
+    prior = np.array([6 * w**5 for w in memories])
+    posterior = prior * np.exp([e[0] for e in exact])
+    posterior /= posterior.sum()
+    np.testing.assert_allclose(fit.weights, posterior, rtol=1e-5)
+    np.testing.assert_allclose(fit.log_evidence, [e[0] for e in exact], atol=1e-4)  # evidence, not prior x evidence
+    mixed = sum(p * e[1] for p, e in zip(posterior, exact))
+    cells = np.clip(np.round(fit.paths / 10.0).astype(int), 0, problem.n_grid - 1)
+    for k in range(problem.n_nodes):
+        freq = np.bincount(cells[k], minlength=problem.n_grid) / cells.shape[1]
+        assert np.max(np.abs(freq - mixed[k])) < 0.02
+    np.testing.assert_allclose(fit.outlier_posterior, sum(p * e[2] for p, e in zip(posterior, exact)), atol=0.01)
+    # Beta(1, 1) is the uniform prior over the points: weights proportional to the evidence
+    np.testing.assert_allclose(np.exp(memory_log_prior(np.array([0.1, 0.5, 0.9]), 1.0, 1.0)), 1 / 3)
+    uniform = fit_memory(problem, [2.0], [0.8], memories, 25.0, 100, np.random.default_rng(2), classes=2,
+                         within_shape=6.0)
+    evidence = np.exp([e[0] for e in exact])
+    np.testing.assert_allclose(uniform.weights, evidence / evidence.sum(), rtol=1e-5)
+    with pytest.raises(ValueError, match="no weight"):
+        memory_log_prior(np.array([0.0]), 6.0, 1.0)

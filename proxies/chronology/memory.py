@@ -22,7 +22,8 @@ Markov chain, now with the state (age, rate class) at every node:
 The transition shifts the ages of each class by that class's increment kernel (an FFT
 convolution per class) and then mixes the classes (a rank-one update, exact). Forward
 filtering gives the exact evidence of every hyper-parameter point (mean rate x variability
-x memory), which weights the points (a uniform prior over the grid points); backward sampling
+x memory), which weights the points (prior: uniform over the mean rates and variabilities,
+a beta density over the memories, ``memory_prior``; uniform for (1, 1)); backward sampling
 draws exact paths: the class of node k given node k+1's age and class, then its age given its
 class. A date taken over a slice constrains the slice's mean age, a potential on the
 interval between its end nodes (:mod:`proxies.chronology.spans`): that interval's shift is
@@ -48,7 +49,7 @@ from proxies.chronology.accumulation import KERNEL_TAIL, AccumulationProblem
 from proxies.chronology.evidence_weights import members_per_point
 from proxies.chronology.spans import shift_with_potential
 
-__all__ = ["MemoryFit", "rate_classes", "class_kernels", "memory_forward", "fit_memory"]
+__all__ = ["MemoryFit", "rate_classes", "class_kernels", "memory_forward", "fit_memory", "memory_log_prior"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -295,7 +296,7 @@ def _sample(filtered, shifted, transitions: _Transitions, rate_row: int, memory:
 
 def fit_memory(problem: AccumulationProblem, mean_rates, variabilities, memories, gap_mean: float,
                members: int, rng: np.random.Generator, classes: int = 8, within_shape: float = 16.0,
-               min_weight: float = 1e-6) -> MemoryFit:
+               min_weight: float = 1e-6, memory_prior: tuple[float, float] = (1.0, 1.0)) -> MemoryFit:
     """Posterior age paths of the memory model, every hyper-parameter integrated.
 
     Parameters
@@ -316,6 +317,11 @@ def fit_memory(problem: AccumulationProblem, mean_rates, variabilities, memories
         Gamma shape of the rate within a class over D.
     min_weight : float
         Points below this posterior weight are not sampled (weights renormalised).
+    memory_prior : (float, float)
+        Shapes (a, b) of the beta prior over the memory w: the grid point w_j gets prior weight
+        proportional to the beta density at w_j, w_j^(a-1) (1-w_j)^(b-1), normalised over the
+        memory grid (the grid as quadrature nodes of the continuous prior); (1, 1) is a uniform
+        prior over the points.
 
     Returns
     -------
@@ -331,7 +337,8 @@ def fit_memory(problem: AccumulationProblem, mean_rates, variabilities, memories
     rate_index = (mi * v_grid.size + vi).ravel()
     point_memory = w_grid[wi.ravel()]
     log_evidence, _, _ = memory_forward(problem, transitions, rate_index, point_memory, dtype=np.float32)
-    weights, _, counts = members_per_point(log_evidence, members, min_weight, rng)
+    log_prior = memory_log_prior(w_grid, *memory_prior)[wi.ravel()]
+    weights, _, counts = members_per_point(log_evidence, members, min_weight, rng, log_prior=log_prior)
     edges = problem.edge_likelihoods()
     cells = np.empty((problem.n_nodes, members), dtype=np.int64)
     column = 0
@@ -347,6 +354,19 @@ def fit_memory(problem: AccumulationProblem, mean_rates, variabilities, memories
     paths = paths[:, rng.permutation(members)]
     return MemoryFit(paths, outlier, m_grid[mi.ravel()], v_grid[vi.ravel()], point_memory, log_evidence,
                      weights, counts)
+
+
+def memory_log_prior(memories: np.ndarray, a: float, b: float) -> np.ndarray:
+    """Log prior weight of each memory grid point under a Beta(a, b) prior, normalised to sum 1.
+
+    The weight of w_j is the beta density at w_j over the sum of the densities at the grid
+    points (a and b >= 1 keep the density finite on [0, 1)); Beta(1, 1) gives equal weights.
+    """
+    log_density = stats.beta.logpdf(np.asarray(memories, dtype=float), a, b)
+    if not np.any(np.isfinite(log_density)):
+        raise ValueError(f"the Beta({a:g}, {b:g}) prior over the memory gives no weight to any of the "
+                         f"memories tried {list(np.atleast_1d(memories))}; add a memory between 0 and 1")
+    return log_density - np.logaddexp.reduce(log_density)
 
 
 def _outlier_average(problem: AccumulationProblem, cells: np.ndarray) -> np.ndarray:

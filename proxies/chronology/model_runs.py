@@ -168,7 +168,8 @@ def run_accumulation(calibrated: CalibratedDates, use, z, priors, hiatuses, top,
     constraints = [(int(np.searchsorted(nodes, depth - 1e-6)), age, error) for depth, age, error in constraints]
     if settings.model == "memory":
         fit = fit_memory(problem, rates, variability, settings.rate_memory, settings.hiatus_gap_yr, ensemble, rng,
-                         classes=settings.rate_classes, within_shape=settings.within_class_variability ** -2)
+                         classes=settings.rate_classes, within_shape=settings.within_class_variability ** -2,
+                         memory_prior=settings.rate_memory_prior)
         hyper = pd.DataFrame({"model": "memory", "mean_rate_yr_cm": fit.mean_rates,
                               "rate_variability": fit.variabilities, "rate_memory": fit.memories,
                               "log_evidence": fit.log_evidence, "weight": fit.weights})

@@ -59,6 +59,9 @@ class ChronologySettings(DeclaredSection):
     rate_memory: tuple[float, ...] = setting(
         (0.1, 0.5, 0.9), "memory model: probabilities that the rate class persists over "
         "reference_depth_cm tried", low=0.0, high=1.0, high_open=True)
+    rate_memory_prior: tuple[float, float] = setting(
+        (6.0, 1.0), "memory model: (a, b), shapes of the beta prior over rate_memory; each point "
+        "tried is weighted by the beta density there ([1, 1]: equal weight)", kind="pair[float]", low=1.0)
     reference_depth_cm: float = setting(10.0, "depth over which rate variability and memory are "
                                         "stated [cm]", low=0.0, low_open=True)
     rate_classes: int = setting(8, "memory model: number of equal-probability rate classes", low=2, high=32)
