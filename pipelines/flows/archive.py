@@ -62,7 +62,6 @@ __all__ = ["archive_flow", "core_flow", "collect_run", "CoreTrack", "Submitter",
 CHAIN_BATCH_CORES = 4
 
 
-
 def tail_batch(batch: int, cores_left: int) -> int:
     """Cores per chained task when ``cores_left`` cores (queued ones included) are still to
     be submitted: ``batch``, but never more than a quarter of those left, so the last tasks
@@ -210,7 +209,7 @@ class Submitter:
         state = tasks.outputs_task(run_dir=self.run_dir, label=label, folders=folders, return_state=True)
         result = state.result(raise_on_failure=False)
         if isinstance(result, BaseException):
-            return [{"failed": str(result)}] * len(tracks)
+            return [{"failed": str(result)} for _ in tracks]
         return result
 
     def run_level(self, stage: str, entries: dict) -> Any:

@@ -18,7 +18,7 @@ from __future__ import annotations
 
 import pathlib
 import time
-from typing import Any, Callable
+from typing import Any
 
 from prefect import task
 from prefect.cache_policies import NO_CACHE
