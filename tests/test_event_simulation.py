@@ -34,8 +34,9 @@ def pools():
 
 def test_false_significant_events_on_pure_red_noise(pools):
     """Target (issue 16): <= 5 % of pure red-noise series with a false significant event.
-    Measured with default settings: 4 % of 100 ensembles (shifts tested on the members'
-    standardised mean, excursions on the median series)."""
+    Measured with default settings: 3 % of 100 ensembles (shifts tested on the members'
+    standardised mean against a null estimated about each member's best step, excursions on
+    the median series; 4 % with the shift null matched like the excursions')."""
     r = case_shares(pools["none"], "none", N)
     print("red noise: false", r["false"])
     assert r["false"] <= 0.05
@@ -56,11 +57,13 @@ def test_step_power_and_onset_coverage_default_settings(pools):
     """A lasting 3-SD step (>= 33 grid points each side), default settings. Target: power >=
     80 %, onset coverage 85-99 %. Coverage met: 93 % of the found steps (63 % before the
     onsets carried the change's location uncertainty and lost the ramp start's old bias).
-    Power NOT reached: 69 % of 100 ensembles, asserted >= 60 % (the members' red-noise null
-    comes out 2-4 grid steps where the climate has 1.5: see the README's cautions)."""
+    Coverage 91 % with the shift null estimated about each member's best step
+    (proxies/events/shiftnull.py). Power NOT reached: 78 % of 100 ensembles (69 % with the
+    shift null matched like the excursions', which came out 2-4 grid steps where the
+    climate has 1.5), asserted >= 70 % (raised from 60 % on that measurement)."""
     r = case_shares(pools["step"], "step", N)
     print("step: found", r["found"], "covered", r["covered"], "false", r["false"])
-    assert r["found"] >= 0.60
+    assert r["found"] >= 0.70
     assert 0.85 <= r["covered"] <= 0.99
 
 

@@ -187,7 +187,8 @@ def shift_candidates(series: np.ndarray, observed: np.ndarray, h: int, persisten
 def detect_candidates(work: np.ndarray, max_excursion_points: int, min_support: int,
                       observed: np.ndarray | None = None, persistence: float = 0.0,
                       return_profile: bool = False, series: np.ndarray | None = None,
-                      shift_window_points: int | None = None, scale: np.ndarray | None = None):
+                      shift_window_points: int | None = None, scale: np.ndarray | None = None,
+                      shift_persistence: float | None = None):
     """Shift candidates (MOSUM peaks) and excursion candidates (scan statistic).
 
     Parameters
@@ -213,6 +214,8 @@ def detect_candidates(work: np.ndarray, max_excursion_points: int, min_support: 
         MOSUM half-width [points]; default a quarter of the record.
     scale : ndarray (M,), optional
         Noise scale of each column for both statistics; default the robust scale of ``work``.
+    shift_persistence : float, optional
+        Lag-one coefficient standardising the shift statistic; default ``persistence``.
 
     Returns
     -------
@@ -224,7 +227,8 @@ def detect_candidates(work: np.ndarray, max_excursion_points: int, min_support: 
     series = work if series is None else np.asarray(series, dtype=float)
     h = shift_window_points or max(work.shape[0] // 4, 2 * min_support)
     scale = robust_scale(work, observed) if scale is None else np.asarray(scale, dtype=float)
-    shifts = shift_candidates(series, observed, h, persistence, scale, min_support)
+    a_shift = persistence if shift_persistence is None else shift_persistence
+    shifts = shift_candidates(series, observed, h, a_shift, scale, min_support)
     profile = excursion_scan(work, observed, max_excursion_points, persistence, support=min_support, scale=scale)
     cands = concat_candidates([shifts, scan_candidates(profile, max_excursion_points)])
     return (cands, profile) if return_profile else cands

@@ -37,9 +37,9 @@ from __future__ import annotations
 import numpy as np
 
 from proxies.events.candidates import (EXCURSION, KIND_NAMES, SHIFT, Candidates, detect_candidates,
-                                       remove_background)
+                                       remove_background, shift_candidates)
 from proxies.events.persistence import ar1_surrogates, ar1_tau_uneven_members
-from proxies.events.scan import ScanProfile, excursion_scan, top_blocks
+from proxies.events.scan import ScanProfile, excursion_scan, robust_scale, top_blocks
 from proxies.reconstruction.grid import fill_gaps
 
 __all__ = ["prepare_series", "top_block_window", "mask_top_block", "matched_null_tau", "null_maxima",
@@ -170,7 +170,8 @@ def matched_null_tau(work: np.ndarray, observed: np.ndarray, background_points: 
 
 def null_maxima(n_points: int, tau_steps: float, n_surrogates: int, max_excursion_points: int,
                 min_support: int, rng: np.random.Generator, observed: np.ndarray | None = None,
-                background_points: int = 0, return_profile: bool = False, shift_window_points: int | None = None):
+                background_points: int = 0, return_profile: bool = False, shift_window_points: int | None = None,
+                shift_tau_steps: float | None = None, shift_rng: np.random.Generator | None = None):
     """Largest candidate statistic of each kind in AR(1) surrogate series.
 
     The surrogates go through the same preparation as the data: each takes the pattern of
@@ -196,6 +197,14 @@ def null_maxima(n_points: int, tau_steps: float, n_surrogates: int, max_excursio
         Also return the surrogates' scan profile (for :func:`local_null`).
     shift_window_points : int, optional
         MOSUM half-width, as used on the data.
+    shift_tau_steps : float, optional
+        Persistence of the shift null [grid steps] when it differs from ``tau_steps``
+        (:func:`proxies.events.shiftnull.shift_null_tau`): the shift maxima then come from a
+        second, independent set of surrogates of that persistence (so the min-p adjustment
+        over the two kinds pairs independent maxima, which errs on the safe side).
+    shift_rng : numpy.random.Generator, optional
+        Draws that second set (default ``rng``); a separate generator leaves ``rng``'s stream,
+        and so the excursion null, as it is without ``shift_tau_steps``.
 
     Returns
     -------
@@ -214,6 +223,16 @@ def null_maxima(n_points: int, tau_steps: float, n_surrogates: int, max_excursio
                                        return_profile=True, series=filled,
                                        shift_window_points=shift_window_points)
     maxima = _max_per_series(cands, n_surrogates)
+    if shift_tau_steps is not None:
+        draw = rng if shift_rng is None else shift_rng
+        sur = ar1_surrogates(np.arange(n_points, dtype=float), shift_tau_steps, n_surrogates, draw)
+        pattern = observed[:, draw.integers(0, observed.shape[1], n_surrogates)]
+        filled = fill_gaps(np.where(pattern, sur, np.nan))
+        a_shift = float(np.exp(-1.0 / shift_tau_steps)) if shift_tau_steps > 0 else 0.0
+        h = shift_window_points or max(n_points // 4, 2 * min_support)
+        scale = robust_scale(remove_background(filled, background_points), pattern)
+        maxima[SHIFT] = _max_per_series(shift_candidates(filled, pattern, h, a_shift, scale, min_support),
+                                        n_surrogates)[SHIFT]
     return (maxima, profile) if return_profile else maxima
 
 
