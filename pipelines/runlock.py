@@ -26,6 +26,8 @@ import socket
 from dataclasses import dataclass, field
 from typing import Any
 
+from pipelines.clock import utc_now
+
 try:  # POSIX
     import fcntl
 except ImportError:  # pragma: no cover - Windows
@@ -106,8 +108,6 @@ class RunLock:
 
     def write(self, identity: dict[str, Any] | None = None) -> None:
         """Record this process as the owner (and what the run was started with)."""
-        from pipelines.manifest import utc_now  # the run's one UTC format (manifest imports this module)
-
         self.record = {"pid": os.getpid(), "host": socket.gethostname(), "state": "running",
                        "started_utc": utc_now(),
                        **(identity or {})}
