@@ -9,7 +9,6 @@ file. It is written last, so a run folder with a manifest is a complete run.
 
 from __future__ import annotations
 
-import datetime as _dt
 import importlib.metadata
 import os
 import pathlib
@@ -18,6 +17,7 @@ import sys
 from dataclasses import dataclass
 from typing import Any, Iterable, Mapping
 
+from pipelines.clock import utc_now
 from pipelines.runfolder import IN_PROGRESS_MARKER, atomic_write_json, sha256_file
 
 __all__ = [
@@ -28,7 +28,6 @@ __all__ = [
     "hash_inputs",
     "package_versions",
     "hash_outputs",
-    "utc_now",
     "output_kind",
     "build_manifest",
     "write_manifest",
@@ -199,11 +198,6 @@ def build_manifest(*, config_path: str | os.PathLike[str], config_text: str,
         "cores": list(cores),
         "outputs": hash_outputs(run_dir, known_hashes),
     }
-
-
-def utc_now() -> str:
-    """The time now, UTC, to the second (``2026-12-02T14:36:47Z``)."""
-    return _dt.datetime.now(_dt.timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
 
 
 def write_manifest(run_dir: str | os.PathLike[str], manifest: Mapping[str, Any]) -> pathlib.Path:

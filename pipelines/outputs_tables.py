@@ -89,6 +89,20 @@ def _c(name: str, dtype: str, units: str, doc: str, role: str = "") -> Column:
     return Column(name, dtype, units, doc, role)
 
 
+def _columns(text: str, roles: dict[str, str] | None = None) -> tuple[Column, ...]:
+    """Columns declared as a text table, one line each: ``name | dtype | units | doc`` (units
+    empty when dimensionless; the doc, the rest of the line, may itself hold ``|``). ``roles``
+    gives the report role of the columns that have one (see :class:`Column`)."""
+    roles = roles or {}
+    columns = []
+    for line in text.strip().splitlines():
+        name, dtype, units, doc = (field.strip() for field in line.split("|", 3))
+        columns.append(Column(name, dtype, units, doc, roles.pop(name, "")))
+    if roles:
+        raise ValueError(f"roles given for undeclared columns: {sorted(roles)}")
+    return tuple(columns)
+
+
 def _quantiles(prefix: str, units: str, what: str,
                levels=("q025", "q160", "median", "q840", "q975")) -> tuple[Column, ...]:
     words = {"q025": "2.5 %", "q160": "16 %", "median": "50 %", "q840": "84 %", "q975": "97.5 %"}
@@ -103,204 +117,250 @@ _SUMMARY_STAT = ("median", "q025", "q975")
 
 #: every run-folder table, by key; the order is the README's
 TABLES: dict[str, OutputTable] = {t.key: t for t in (
-    OutputTable("summary", "summary.parquet", "one row per core (no clock values: byte-identical)", (
-        _c("core_id", "string", "", "core id (or folder name when ingest failed)"),
-        _c("folder", "string", "", "the core folder read"),
-        _c("status", "string", "", "ok | thin | dated | failed (see Runs: status)"),
-        _c("stage_reached", "string", "", "last stage finished (none when ingest failed)"),
-        _c("n_warnings", "int", "", "number of warnings"),
-        _c("warnings", "string", "", "warnings, separated by ' | '"),
-        _c("notes", "string", "", "notes (skipped stages...), separated by ' | '"),
-        _c("error", "string", "", "the failing stage and its message (empty when ok)")), required=("core_id", "folder", "status", "stage_reached", "n_warnings", "warnings", "notes", "error")),
-    OutputTable("timings", "timings.csv", "seconds per core and stage (clock-dependent, kept apart)", (
-        _c("core_id", "string", "", "core id"),
-        _c("stage", "string", "", "stage name"),
-        _c("seconds", "float", "s", "wall time of the stage"),
-        _c("reused", "bool", "", "taken from the work store")), file_format="csv", required=("core_id", "stage", "seconds", "reused")),
+    OutputTable("summary", "summary.parquet", "one row per core (no clock values: byte-identical)", 
+        _columns("""
+            core_id       | string |  | core id (or folder name when ingest failed)
+            folder        | string |  | the core folder read
+            status        | string |  | ok | thin | dated | failed (see Runs: status)
+            stage_reached | string |  | last stage finished (none when ingest failed)
+            n_warnings    | int    |  | number of warnings
+            warnings      | string |  | warnings, separated by ' | '
+            notes         | string |  | notes (skipped stages...), separated by ' | '
+            error         | string |  | the failing stage and its message (empty when ok)
+        """), required=("core_id", "folder", "status", "stage_reached", "n_warnings", "warnings", "notes", "error")),
+    OutputTable("timings", "timings.csv", "seconds per core and stage (clock-dependent, kept apart)", 
+        _columns("""
+            core_id | string |   | core id
+            stage   | string |   | stage name
+            seconds | float  | s | wall time of the stage
+            reused  | bool   |   | taken from the work store
+        """), file_format="csv", required=("core_id", "stage", "seconds", "reused")),
     OutputTable("stack", "stack.parquet", "regional composite of all reconstructions", (
         _AGE, _VARIABLE,
-        _c("method", "string", "", "what was composited (anomaly | value)"),
+        *_columns("""
+            method | string |  | what was composited (anomaly | value)
+        """),
         *_quantiles("value", "variable units", "the composite"),
-        _c("n_records", "int", "", "cores contributing at this age"),
-        _c("stack_young_cal_bp", "float", "cal BP", "young end of the composite's window"),
-        _c("stack_old_cal_bp", "float", "cal BP", "old end of the composite's window")), required=("age_cal_bp", "variable", "value_median", "value_q025", "value_q975")),
+        *_columns("""
+            n_records          | int   |        | cores contributing at this age
+            stack_young_cal_bp | float | cal BP | young end of the composite's window
+            stack_old_cal_bp   | float | cal BP | old end of the composite's window
+        """)), required=("age_cal_bp", "variable", "value_median", "value_q025", "value_q975")),
     OutputTable("stack_ensemble", "stack_ensemble.parquet", "every member of the regional composite", (
         _AGE, _VARIABLE), (_MEMBERS,), required=("age_cal_bp", "variable")),
     OutputTable("regional_events", "regional_events.parquet",
                 "events found in the regional composite, with the regional onset", (
         _VARIABLE, _c("event_id", "string", "", "event id (within the stack)"),
-        _c("kind", "string", "", "shift | excursion"),
-        _c("direction", "string", "", "positive | negative"),
+        *_columns("""
+            kind      | string |  | shift | excursion
+            direction | string |  | positive | negative
+        """),
         *(_c(f"{q}_{s}", "float", "variable units" if q == "amplitude" else "cal BP" if q in ("onset", "midpoint") else "yr",
              f"{s} of the regional {q} over the composite's members")
           for q in ("onset", "midpoint", "duration", "amplitude") for s in _SUMMARY_STAT),
-        _c("probability", "float", "", "share of composite members showing the event"),
-        _c("p_value", "float", "", "red-noise p-value of the event in the composite"),
-        _c("significant", "bool", "", "p_value below alpha and amplitude 95 % range excluding zero"),
-        _c("n_members", "number", "", "composite members showing the event"),
-        _c("n_records", "int", "", "records in the composite at the onset median"),
-        _c("records", "string", "", "the composite's records (core/series), comma separated"),
-        _c("note", "string", "", "why an event below alpha is not called significant")),
+        *_columns("""
+            probability | float  |  | share of composite members showing the event
+            p_value     | float  |  | red-noise p-value of the event in the composite
+            significant | bool   |  | p_value below alpha and amplitude 95 % range excluding zero
+            n_members   | number |  | composite members showing the event
+            n_records   | int    |  | records in the composite at the onset median
+            records     | string |  | the composite's records (core/series), comma separated
+            note        | string |  | why an event below alpha is not called significant
+        """)),
         required=("variable", "event_id", "onset_median", "onset_q025", "onset_q975", "significant")),
     OutputTable("regional_onsets", "regional_onsets.parquet", "regional onset of each stack event in each member", (
         _VARIABLE, _c("event_id", "string", "", "event id (within the stack)"),
-        _c("member", "int", "", "composite member index"),
-        _c("onset_cal_bp", "float", "cal BP", "onset age in that member"),
-        _c("end_cal_bp", "float", "cal BP", "end of the change in that member"),
-        _c("amplitude", "float", "variable units", "change in that member (ramp fit)"),
-        _c("detected", "bool", "", "the member detects the event (else: its fitted change at the event's place)")),
+        *_columns("""
+            member       | int   |                | composite member index
+            onset_cal_bp | float | cal BP         | onset age in that member
+            end_cal_bp   | float | cal BP         | end of the change in that member
+            amplitude    | float | variable units | change in that member (ramp fit)
+            detected     | bool  |                | the member detects the event (else: its fitted change at the event's place)
+        """)),
         required=("variable", "event_id", "member", "onset_cal_bp")),
     OutputTable("training_cv", "training/<name>_cv.parquet",
-                "cross-validated observed vs predicted of a training set", (
-        _c("id", "string", "", "modern sample id"),
-        _c("observed", "float", "target units", "observed target value"),
-        _c("predicted", "float", "target units", "cross-validated prediction, chosen components"),
-        _c("residual", "float", "target units", "predicted - observed"),
-        _c("n_components", "int", "", "components of the chosen model")),
+                "cross-validated observed vs predicted of a training set", 
+        _columns("""
+            id           | string |              | modern sample id
+            observed     | float  | target units | observed target value
+            predicted    | float  | target units | cross-validated prediction, chosen components
+            residual     | float  | target units | predicted - observed
+            n_components | int    |              | components of the chosen model
+        """),
         (Family(r"predicted_c\d+", "predicted_c1", "float", "target units",
                 "cross-validated prediction with that many components (WA-PLS)"),), required=("observed", "predicted")),
-    OutputTable("training_skill", "training/<name>_skill.parquet", "skill per number of components", (
-        _c("training", "string", "", "training set name"),
-        _c("model", "string", "", "wa | wapls | mat"),
-        _c("validation", "string", "", "cross-validation scheme"),
-        _c("n_components", "int", "", "components (analogues for MAT)"),
-        _c("rmse_apparent", "float", "target units", "apparent RMSE"),
-        _c("rmsep", "float", "target units", "cross-validated RMSE of prediction"),
-        _c("r2_apparent", "float", "", "apparent r²"),
-        _c("r2_cv", "float", "", "cross-validated r²"),
-        _c("mean_bias_cv", "float", "target units", "mean cross-validated residual"),
-        _c("segment_bias_cv", "float", "target units", "largest mean residual of a target segment"),
-        _c("rmsep_vs_fewer_percent", "float", "%", "RMSEP change against one component fewer"),
-        _c("randomisation_p", "float", "", "randomisation t-test p against one component fewer (van der Voet 1994)"),
-        _c("chosen", "bool", "", "the number of components used")), required=("n_components", "rmsep")),
-    OutputTable("chronology", "<core>/chronology.parquet", "age-depth model summary per output depth", (
-        _c("depth_cm", "float", "cm", "composite depth"),
-        _c("event_free_depth_cm", "float", "cm", "depth with instantaneous deposits cut out"),
-        _c("age_median", "float", "cal BP", "median age over members"),
-        _c("age_q025", "float", "cal BP", "2.5 % quantile of age"),
-        _c("age_q975", "float", "cal BP", "97.5 % quantile of age"),
-        _c("age_mean", "float", "cal BP", "mean age"),
-        _c("age_sd", "float", "yr", "standard deviation of age"),
-        _c("deposition_time_yr_cm", "float", "yr/cm", "median deposition time"),
-        _c("hiatus_gap_yr", "float", "yr", "median age gap of a hiatus just below this depth (else empty)")), required=("depth_cm", "age_median", "age_q025", "age_q975")),
+    OutputTable("training_skill", "training/<name>_skill.parquet", "skill per number of components", 
+        _columns("""
+            training               | string |              | training set name
+            model                  | string |              | wa | wapls | mat
+            validation             | string |              | cross-validation scheme
+            n_components           | int    |              | components (analogues for MAT)
+            rmse_apparent          | float  | target units | apparent RMSE
+            rmsep                  | float  | target units | cross-validated RMSE of prediction
+            r2_apparent            | float  |              | apparent r²
+            r2_cv                  | float  |              | cross-validated r²
+            mean_bias_cv           | float  | target units | mean cross-validated residual
+            segment_bias_cv        | float  | target units | largest mean residual of a target segment
+            rmsep_vs_fewer_percent | float  | %            | RMSEP change against one component fewer
+            randomisation_p        | float  |              | randomisation t-test p against one component fewer (van der Voet 1994)
+            chosen                 | bool   |              | the number of components used
+        """), required=("n_components", "rmsep")),
+    OutputTable("chronology", "<core>/chronology.parquet", "age-depth model summary per output depth", 
+        _columns("""
+            depth_cm              | float | cm     | composite depth
+            event_free_depth_cm   | float | cm     | depth with instantaneous deposits cut out
+            age_median            | float | cal BP | median age over members
+            age_q025              | float | cal BP | 2.5 % quantile of age
+            age_q975              | float | cal BP | 97.5 % quantile of age
+            age_mean              | float | cal BP | mean age
+            age_sd                | float | yr     | standard deviation of age
+            deposition_time_yr_cm | float | yr/cm  | median deposition time
+            hiatus_gap_yr         | float | yr     | median age gap of a hiatus just below this depth (else empty)
+        """), required=("depth_cm", "age_median", "age_q025", "age_q975")),
     OutputTable("age_ensemble", "<core>/age_ensemble.parquet", "age of every member at each depth", (
-        _c("depth_cm", "float", "cm", "composite depth"),), (_MEMBERS,), required=("depth_cm",)),
+        *_columns("""
+            depth_cm | float | cm | composite depth
+        """),), (_MEMBERS,), required=("depth_cm",)),
     OutputTable("dates", "<core>/dates.parquet",
-                "each date's inputs with its calibration and outlier probability", (
-        _c("label", "string", "", "date label (the core-top constraint is 'core top')"),
-        _c("depth_cm", "float", "cm", "composite depth"),
-        _c("kind", "string", "", "radiocarbon | calendar"),
-        _c("age", "float", "14C yr BP or cal BP", "measured age as given"),
-        _c("error", "float", "yr", "1-sigma error as given"),
-        _c("thickness_cm", "float", "cm", "sample thickness"),
-        _c("curve", "string", "", "curve named in the input"),
-        _c("reservoir_offset", "float", "14C yr", "reservoir offset as given"),
-        _c("reservoir_error", "float", "14C yr", "its 1-sigma error"),
-        _c("exclude", "bool", "", "excluded from the age model"),
-        _c("constraint", "bool", "", "a constraint, never an outlier (the core top)"),
-        _c("source_row", "number", "", "1-based row of the input file (empty for the core top)"),
-        _c("section", "string", "", "section named in the input"),
-        _c("section_depth_cm", "float", "cm", "depth below the section top as given"),
-        _c("material", "string", "", "dated material as given"),
-        _c("curve_used", "string", "", "curve the date was calibrated on"),
-        _c("event_free_depth_cm", "float", "cm", "depth with instantaneous deposits cut out"),
-        _c("cal_median_bp", "float", "cal BP", "median of the calibrated date"),
-        _c("cal_mode_bp", "float", "cal BP", "mode of the calibrated date"),
-        _c("cal_mean_bp", "float", "cal BP", "mean of the calibrated date"),
-        _c("hpd95_young_bp", "float", "cal BP", "young end of the 95.4 % HPD ranges"),
-        _c("hpd95_old_bp", "float", "cal BP", "old end of the 95.4 % HPD ranges"),
-        _c("outlier_prob", "float", "", "posterior outlier probability"),
-        _c("model_age_median_bp", "float", "cal BP", "age model median at the date's depth")), required=("label", "depth_cm", "kind", "age", "error", "cal_median_bp")),
+                "each date's inputs with its calibration and outlier probability", 
+        _columns("""
+            label               | string |                     | date label (the core-top constraint is 'core top')
+            depth_cm            | float  | cm                  | composite depth
+            kind                | string |                     | radiocarbon | calendar
+            age                 | float  | 14C yr BP or cal BP | measured age as given
+            error               | float  | yr                  | 1-sigma error as given
+            thickness_cm        | float  | cm                  | sample thickness
+            curve               | string |                     | curve named in the input
+            reservoir_offset    | float  | 14C yr              | reservoir offset as given
+            reservoir_error     | float  | 14C yr              | its 1-sigma error
+            exclude             | bool   |                     | excluded from the age model
+            constraint          | bool   |                     | a constraint, never an outlier (the core top)
+            source_row          | number |                     | 1-based row of the input file (empty for the core top)
+            section             | string |                     | section named in the input
+            section_depth_cm    | float  | cm                  | depth below the section top as given
+            material            | string |                     | dated material as given
+            curve_used          | string |                     | curve the date was calibrated on
+            event_free_depth_cm | float  | cm                  | depth with instantaneous deposits cut out
+            cal_median_bp       | float  | cal BP              | median of the calibrated date
+            cal_mode_bp         | float  | cal BP              | mode of the calibrated date
+            cal_mean_bp         | float  | cal BP              | mean of the calibrated date
+            hpd95_young_bp      | float  | cal BP              | young end of the 95.4 % HPD ranges
+            hpd95_old_bp        | float  | cal BP              | old end of the 95.4 % HPD ranges
+            outlier_prob        | float  |                     | posterior outlier probability
+            model_age_median_bp | float  | cal BP              | age model median at the date's depth
+        """), required=("label", "depth_cm", "kind", "age", "error", "cal_median_bp")),
     OutputTable("date_ranges", "<core>/date_ranges.parquet",
-                "HPD ranges of each calibrated date, one row per range", (
-        _c("label", "string", "", "date label"),
-        _c("level", "float", "", "HPD level (0.683 or 0.954)"),
-        _c("young_cal_bp", "float", "cal BP", "young end of the range"),
-        _c("old_cal_bp", "float", "cal BP", "old end of the range"),
-        _c("probability", "float", "", "probability mass inside the range")), required=("label", "level", "young_cal_bp", "old_cal_bp", "probability")),
+                "HPD ranges of each calibrated date, one row per range", 
+        _columns("""
+            label        | string |        | date label
+            level        | float  |        | HPD level (0.683 or 0.954)
+            young_cal_bp | float  | cal BP | young end of the range
+            old_cal_bp   | float  | cal BP | old end of the range
+            probability  | float  |        | probability mass inside the range
+        """), required=("label", "level", "young_cal_bp", "old_cal_bp", "probability")),
     OutputTable("date_densities", "<core>/date_densities.parquet",
                 "calibrated density of each date (before the age model), thinned for plotting", (
-        _c("label", "string", "", "date label"), _AGE,
-        _c("density", "float", "1/yr", "probability density")), required=("label", "age_cal_bp", "density")),
+        *_columns("""
+            label | string |  | date label
+        """), _AGE,
+        *_columns("""
+            density | float | 1/yr | probability density
+        """)), required=("label", "age_cal_bp", "density")),
     OutputTable("hyperparameters", "<core>/hyperparameters.parquet",
                 "accumulation models: posterior weight of every hyper-parameter point (empty for the "
-                "interpolation model)", (
-        _c("model", "string", "", "memory | accumulation"),
-        _c("mean_rate_yr_cm", "float", "yr/cm", "mean accumulation rate (deposition time)"),
-        _c("rate_variability", "float", "", "coefficient of variation of the rate"),
-        _c("rate_memory", "float", "", "persistence of the rate class over reference_depth_cm (0: none)"),
-        _c("log_evidence", "float", "", "exact log marginal likelihood of the dates"),
-        _c("weight", "float", "", "posterior weight (sums to 1)")), required=("mean_rate_yr_cm", "weight")),
+                "interpolation model)", 
+        _columns("""
+            model            | string |       | memory | accumulation
+            mean_rate_yr_cm  | float  | yr/cm | mean accumulation rate (deposition time)
+            rate_variability | float  |       | coefficient of variation of the rate
+            rate_memory      | float  |       | persistence of the rate class over reference_depth_cm (0: none)
+            log_evidence     | float  |       | exact log marginal likelihood of the dates
+            weight           | float  |       | posterior weight (sums to 1)
+        """), required=("mean_rate_yr_cm", "weight")),
     OutputTable("calibration", "<core>/calibration.parquet", "skill per proxy and period", (
-        _c("proxy", "string", "", "proxy column"), _VARIABLE,
-        _c("units", "string", "", "units of the variable"),
-        _c("method", "string", "", "calibration method"),
-        _c("detail", "string", "", "equation, training set or overlap detail"),
-        _c("reference", "string", "", "published source or training set"),
-        _c("period", "string", "", "published | full | verify_early | verify_late | cross_validation | random_variable_test"),
-        _c("status", "string", "", "used | ..."),
-        _c("n_calibration", "number", "", "samples in the calibration period"),
-        _c("n_verification", "number", "", "samples in the verification period"),
-        _c("r2", "float", "", "r²"),
-        _c("rmse", "float", "variable units", "root-mean-square error"),
-        _c("re", "float", "", "reduction of error RE"),
-        _c("ce", "float", "", "coefficient of efficiency CE"),
-        _c("durbin_watson", "float", "", "Durbin-Watson statistic of residuals"),
-        _c("n_effective", "float", "", "effective sample size"),
-        _c("calibration_error", "float", "variable units", "calibration 1-sigma error"),
-        _c("n_components", "number", "", "transfer-function components"),
-        _c("n_members", "number", "", "ensemble members behind the statistics"),
-        _c("n_members_few_pairs", "number", "", "overlap: members fitted on fewer than min_pairs pairs"),
-        _c("n_members_failed", "number", "", "overlap: members that could not be fitted"),
-        _c("n_outside_range", "number", "", "samples outside the calibrated range"),
-        _c("variance_explained", "float", "", "random-variable test: share of the fossil assemblages' variance the reconstruction explains"),
-        _c("random_variance_explained_q95", "float", "", "random-variable test: 95th percentile of that share for random variables"),
-        _c("first_axis_explained", "float", "", "random-variable test: share of the first principal axis"),
-        _c("p_value", "float", "", "random-variable test: p-value (Telford & Birks 2011)")), required=("proxy", "variable", "method")),
+        *_columns("""
+            proxy | string |  | proxy column
+        """), _VARIABLE,
+        *_columns("""
+            units                         | string |                | units of the variable
+            method                        | string |                | calibration method
+            detail                        | string |                | equation, training set or overlap detail
+            reference                     | string |                | published source or training set
+            period                        | string |                | published | full | verify_early | verify_late | cross_validation | random_variable_test
+            status                        | string |                | used | ...
+            n_calibration                 | number |                | samples in the calibration period
+            n_verification                | number |                | samples in the verification period
+            r2                            | float  |                | r²
+            rmse                          | float  | variable units | root-mean-square error
+            re                            | float  |                | reduction of error RE
+            ce                            | float  |                | coefficient of efficiency CE
+            durbin_watson                 | float  |                | Durbin-Watson statistic of residuals
+            n_effective                   | float  |                | effective sample size
+            calibration_error             | float  | variable units | calibration 1-sigma error
+            n_components                  | number |                | transfer-function components
+            n_members                     | number |                | ensemble members behind the statistics
+            n_members_few_pairs           | number |                | overlap: members fitted on fewer than min_pairs pairs
+            n_members_failed              | number |                | overlap: members that could not be fitted
+            n_outside_range               | number |                | samples outside the calibrated range
+            variance_explained            | float  |                | random-variable test: share of the fossil assemblages' variance the reconstruction explains
+            random_variance_explained_q95 | float  |                | random-variable test: 95th percentile of that share for random variables
+            first_axis_explained          | float  |                | random-variable test: share of the first principal axis
+            p_value                       | float  |                | random-variable test: p-value (Telford & Birks 2011)
+        """)), required=("proxy", "variable", "method")),
     OutputTable("calibrated_samples", "<core>/calibrated_samples.parquet",
                 "calibrated value of each sample (depth scale, before the time grid)", (
-        _c("depth_cm", "float", "cm", "composite depth"),
-        _c("proxy", "string", "", "proxy column"), _VARIABLE,
-        _c("units", "string", "", "units of the variable"),
-        _c("method", "string", "", "calibration method"),
+        *_columns("""
+            depth_cm | float  | cm | composite depth
+            proxy    | string |    | proxy column
+        """), _VARIABLE,
+        *_columns("""
+            units  | string |  | units of the variable
+            method | string |  | calibration method
+        """),
         *_quantiles("value", "variable units", "the value", ("median", "q025", "q975")),
-        _c("value_mean", "float", "variable units", "mean over members"),
-        _c("value_sd", "float", "variable units", "standard deviation over members"),
-        _c("outside_calibration_range", "bool", "", "outside the calibrated range (no close analogue for transfer functions)"),
-        _c("source_row", "int", "", "1-based row of samples/counts")), required=("depth_cm", "proxy", "variable", "value_median")),
+        *_columns("""
+            value_mean                | float | variable units | mean over members
+            value_sd                  | float | variable units | standard deviation over members
+            outside_calibration_range | bool  |                | outside the calibrated range (no close analogue for transfer functions)
+            source_row                | int   |                | 1-based row of samples/counts
+        """)), required=("depth_cm", "proxy", "variable", "value_median")),
     OutputTable("calibration_diagnostics", "<core>/calibration_diagnostics.parquet",
-                "fossil-sample diagnostics of transfer functions", (
-        _c("depth_cm", "float", "cm", "composite depth"),
-        _c("proxy", "string", "", "proxy (assemblage)"),
-        _c("training", "string", "", "training set"),
-        _c("prediction", "float", "target units", "prediction of the fitted model"),
-        _c("prediction_error", "float", "target units", "sample-specific error"),
-        _c("nearest_analogue_distance", "float", "", "squared-chord distance to the nearest modern sample",
-           "measure"),
-        _c("good_analogue_limit", "float", "", "distance below which an analogue is good", "limit"),
-        _c("no_analogue_limit", "float", "", "distance above which there is no close analogue", "limit"),
-        _c("analogue_quality", "string", "", "good | fair | none"),
-        _c("missing_taxa_percent", "float", "%", "share of the sample's taxa absent from training", "measure"),
-        _c("n_missing_taxa", "int", "", "taxa absent from training", "measure"),
-        _c("source_row", "int", "", "1-based row of counts")), required=("depth_cm", "proxy")),
+                "fossil-sample diagnostics of transfer functions",
+        _columns("""
+            depth_cm                  | float  | cm           | composite depth
+            proxy                     | string |              | proxy (assemblage)
+            training                  | string |              | training set
+            prediction                | float  | target units | prediction of the fitted model
+            prediction_error          | float  | target units | sample-specific error
+            nearest_analogue_distance | float  |              | squared-chord distance to the nearest modern sample
+            good_analogue_limit       | float  |              | distance below which an analogue is good
+            no_analogue_limit         | float  |              | distance above which there is no close analogue
+            analogue_quality          | string |              | good | fair | none
+            missing_taxa_percent      | float  | %            | share of the sample's taxa absent from training
+            n_missing_taxa            | int    |              | taxa absent from training
+            source_row                | int    |              | 1-based row of counts
+        """, roles={"nearest_analogue_distance": "measure", "good_analogue_limit": "limit", "no_analogue_limit": "limit",
+                    "missing_taxa_percent": "measure", "n_missing_taxa": "measure"}), required=("depth_cm", "proxy")),
     OutputTable("samples_dated", "<core>/samples_dated.parquet",
                 "every sample with its depth, age, raw proxies, calibrated values and flags "
-                "(the supplement table; one row per sample level, in depth order)", (
-        _c("depth_cm", "float", "cm", "composite depth of the sample's mid-point"),
-        _c("thickness_cm", "float", "cm", "sample thickness (empty when not given)"),
-        _c("event_free_depth_cm", "float", "cm", "depth with the event layers cut out (the age model's scale)"),
-        _c("section", "string", "", "core section"),
-        _c("section_depth_cm", "float", "cm", "depth below the section top"),
-        _c("samples_row", "int", "", "1-based row of the samples file (-1: not in it)"),
-        _c("counts_row", "int", "", "1-based row of the counts file (-1: not in it)"),
-        _c("age_median_cal_bp", "float", "cal BP", "median age over the age-ensemble members"),
-        _c("age_q160_cal_bp", "float", "cal BP", "young end of the 68 % age range (16 % quantile)"),
-        _c("age_q840_cal_bp", "float", "cal BP", "old end of the 68 % age range (84 % quantile)"),
-        _c("age_q025_cal_bp", "float", "cal BP", "young end of the 95 % age range (2.5 % quantile)"),
-        _c("age_q975_cal_bp", "float", "cal BP", "old end of the 95 % age range (97.5 % quantile)"),
-        _c("in_event_layer", "bool", "", "the sample lies inside an event layer (instantaneous deposit)"),
-        _c("event_layer_kind", "string", "", "kind of that event layer (turbidite, tephra, ...)"),
-        _c("count_sum", "float", "count", "total count of the assemblage sample")), (
+                "(the supplement table; one row per sample level, in depth order)",
+        _columns("""
+            depth_cm            | float  | cm     | composite depth of the sample's mid-point
+            thickness_cm        | float  | cm     | sample thickness (empty when not given)
+            event_free_depth_cm | float  | cm     | depth with the event layers cut out (the age model's scale)
+            section             | string |        | core section
+            section_depth_cm    | float  | cm     | depth below the section top
+            samples_row         | int    |        | 1-based row of the samples file (-1: not in it)
+            counts_row          | int    |        | 1-based row of the counts file (-1: not in it)
+            age_median_cal_bp   | float  | cal BP | median age over the age-ensemble members
+            age_q160_cal_bp     | float  | cal BP | young end of the 68 % age range (16 % quantile)
+            age_q840_cal_bp     | float  | cal BP | old end of the 68 % age range (84 % quantile)
+            age_q025_cal_bp     | float  | cal BP | young end of the 95 % age range (2.5 % quantile)
+            age_q975_cal_bp     | float  | cal BP | old end of the 95 % age range (97.5 % quantile)
+            in_event_layer      | bool   |        | the sample lies inside an event layer (instantaneous deposit)
+            event_layer_kind    | string |        | kind of that event layer (turbidite, tephra, ...)
+            count_sum           | float  | count  | total count of the assemblage sample
+        """), (
         Family(r".+_from_.+_(median|q025|q975)", "sst_degC_from_uk37_median", "float",
                "the units in its name", "median / 2.5 % / 97.5 % of <variable> calibrated from <proxy>"),
         Family(r".+_uncalibrated", "uk37_uncalibrated", "bool", "",
@@ -317,65 +377,92 @@ TABLES: dict[str, OutputTable] = {t.key: t for t in (
                   "in_event_layer", "event_layer_kind"), with_csv=True),
     OutputTable("reconstruction", "<core>/reconstruction.parquet", "values and anomalies on the time grid", (
         _AGE, _c("year_ce", "float", "yr CE", "1950 - age_cal_bp"), _VARIABLE,
-        _c("proxy", "string", "", "proxy behind the series"),
-        _c("units", "string", "", "units of the variable"),
+        *_columns("""
+            proxy | string |  | proxy behind the series
+            units | string |  | units of the variable
+        """),
         *_quantiles("value", "variable units", "the value"),
-        _c("member_share", "float", "", "share of members with a value at this age"),
+        *_columns("""
+            member_share | float |  | share of members with a value at this age
+        """),
         *_quantiles("anomaly", "variable units", "the anomaly"),
-        _c("n_samples", "int", "", "samples behind the grid point"),
-        _c("reference_young_cal_bp", "float", "cal BP", "young end of the reference window"),
-        _c("reference_old_cal_bp", "float", "cal BP", "old end of the reference window")), required=("age_cal_bp", "variable", "value_median")),
+        *_columns("""
+            n_samples              | int   |        | samples behind the grid point
+            reference_young_cal_bp | float | cal BP | young end of the reference window
+            reference_old_cal_bp   | float | cal BP | old end of the reference window
+        """)), required=("age_cal_bp", "variable", "value_median")),
     OutputTable("reconstruction_ensemble", "<core>/reconstruction_ensemble.parquet",
                 "every member of values and anomalies on the grid", (
         _AGE, _VARIABLE, _c("quantity", "string", "", "value | anomaly")), (_MEMBERS,), required=("age_cal_bp", "variable", "quantity")),
     OutputTable("events", "<core>/events.parquet", "abrupt events with onset distributions", (
-        _c("core_id", "string", "", "core id"),
-        _c("event_id", "string", "", "event id"), _VARIABLE,
-        _c("kind", "string", "", "kind of change"),
-        _c("direction", "string", "", "up | down"),
+        *_columns("""
+            core_id  | string |  | core id
+            event_id | string |  | event id
+        """), _VARIABLE,
+        *_columns("""
+            kind      | string |  | kind of change
+            direction | string |  | up | down
+        """),
         *(_c(f"{q}_{s}", "float", "variable units" if q == "amplitude" else "cal BP" if q in ("onset", "end") else "yr",
              f"{s} of the event's {q} over members") for q in ("onset", "end", "duration", "amplitude")
           for s in _SUMMARY_STAT),
-        _c("probability", "float", "", "share of members showing the event"),
-        _c("p_value", "float", "", "red-noise p-value"),
-        _c("significant", "bool", "", "p_value below alpha and amplitude 95 % range excluding zero"),
-        _c("n_members", "number", "", "members showing the event"),
-        _c("tau_yr", "float", "yr", "AR(1) persistence time"),
-        _c("note", "string", "", "why an event below alpha is not called significant (empty otherwise)")), required=("event_id", "variable", "onset_median", "onset_q025", "onset_q975")),
+        *_columns("""
+            probability | float  |    | share of members showing the event
+            p_value     | float  |    | red-noise p-value
+            significant | bool   |    | p_value below alpha and amplitude 95 % range excluding zero
+            n_members   | number |    | members showing the event
+            tau_yr      | float  | yr | AR(1) persistence time
+            note        | string |    | why an event below alpha is not called significant (empty otherwise)
+        """)), required=("event_id", "variable", "onset_median", "onset_q025", "onset_q975")),
     OutputTable("event_probability", "<core>/event_probability.parquet", "event probability through time", (
         _AGE, _VARIABLE, _c("probability", "float", "", "share of members with an event onset here")), required=("age_cal_bp", "variable", "probability")),
-    OutputTable("event_onsets", "<core>/event_onsets.parquet", "onset of each event in each member", (
-        _c("event_id", "string", "", "event id"),
-        _c("member", "int", "", "member index"),
-        _c("onset_cal_bp", "float", "cal BP", "onset age in that member"),
-        _c("end_cal_bp", "float", "cal BP", "end of the change in that member (ramp fit)"),
-        _c("amplitude", "float", "variable units", "change in that member (ramp fit)"),
-        _c("detected", "bool", "", "the member detects the event (else: its fitted change at the event's place)")), required=("event_id", "member", "onset_cal_bp")),
+    OutputTable("event_onsets", "<core>/event_onsets.parquet", "onset of each event in each member", 
+        _columns("""
+            event_id     | string |                | event id
+            member       | int    |                | member index
+            onset_cal_bp | float  | cal BP         | onset age in that member
+            end_cal_bp   | float  | cal BP         | end of the change in that member (ramp fit)
+            amplitude    | float  | variable units | change in that member (ramp fit)
+            detected     | bool   |                | the member detects the event (else: its fitted change at the event's place)
+        """), required=("event_id", "member", "onset_cal_bp")),
     OutputTable("archive_events", "archive_events.parquet",
                 "every core's events with archive-wide false discovery rate control", (
-        _c("core_id", "string", "", "core id"),
-        _c("event_id", "string", "", "event id (within its core)"), _VARIABLE,
-        _c("kind", "string", "", "shift | excursion"),
-        _c("direction", "string", "", "positive | negative"),
+        *_columns("""
+            core_id  | string |  | core id
+            event_id | string |  | event id (within its core)
+        """), _VARIABLE,
+        *_columns("""
+            kind      | string |  | shift | excursion
+            direction | string |  | positive | negative
+        """),
         *(_c(f"{q}_{s}", "float", "variable units" if q == "amplitude" else "cal BP", f"{s} of the event's {q} over members")
           for q in ("onset", "amplitude") for s in _SUMMARY_STAT),
-        _c("probability", "float", "", "share of members showing the event"),
-        _c("p_value", "float", "", "red-noise p-value of the event (its own series)"),
-        _c("q_value", "float", "", "Benjamini-Hochberg adjusted p-value over all events of the run"),
-        _c("significant", "bool", "", "p_value below alpha and amplitude 95 % range excluding zero"),
-        _c("survives_fdr", "bool", "", "significant and q_value at most alpha"),
-        _c("note", "string", "", "why an event below alpha is not called significant")),
+        *_columns("""
+            probability  | float  |  | share of members showing the event
+            p_value      | float  |  | red-noise p-value of the event (its own series)
+            q_value      | float  |  | Benjamini-Hochberg adjusted p-value over all events of the run
+            significant  | bool   |  | p_value below alpha and amplitude 95 % range excluding zero
+            survives_fdr | bool   |  | significant and q_value at most alpha
+            note         | string |  | why an event below alpha is not called significant
+        """)),
         required=("core_id", "event_id", "variable", "p_value", "q_value", "survives_fdr")),
     OutputTable("lead_lag", "lead_lag.parquet", "lead/lag of events found in several cores", (
-        _c("core_a", "string", "", "first core"), _c("event_a", "string", "", "its event"),
-        _c("core_b", "string", "", "second core"), _c("event_b", "string", "", "its event"), _VARIABLE,
-        _c("kind", "string", "", "shift | excursion"), _c("direction", "string", "", "positive | negative"),
-        _c("lag_median_yr", "float", "yr", "median of onset_a - onset_b over member pairs (positive: a leads)"),
-        _c("lag_q025_yr", "float", "yr", "2.5 % quantile of the lag"),
-        _c("lag_q975_yr", "float", "yr", "97.5 % quantile of the lag"),
-        _c("probability_a_leads", "float", "", "probability that core a's onset is older"),
-        _c("n_members_a", "number", "", "member onsets of core a"),
-        _c("n_members_b", "number", "", "member onsets of core b")),
+        *_columns("""
+            core_a    | string |  | first core
+            event_a   | string |  | its event
+            core_b    | string |  | second core
+            event_b   | string |  | its event
+        """), _VARIABLE,
+        *_columns("""
+            kind                | string |    | shift | excursion
+            direction           | string |    | positive | negative
+            lag_median_yr       | float  | yr | median of onset_a - onset_b over member pairs (positive: a leads)
+            lag_q025_yr         | float  | yr | 2.5 % quantile of the lag
+            lag_q975_yr         | float  | yr | 97.5 % quantile of the lag
+            probability_a_leads | float  |    | probability that core a's onset is older
+            n_members_a         | number |    | member onsets of core a
+            n_members_b         | number |    | member onsets of core b
+        """)),
         required=("core_a", "core_b", "lag_median_yr", "lag_q025_yr", "lag_q975_yr", "probability_a_leads")),
 )}
 

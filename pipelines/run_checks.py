@@ -1,6 +1,6 @@
 """What ``downcore run`` would refuse before (or in) its first stage, found by ``check``.
 
-:func:`run_time_checks` is called by :func:`pipelines.config.check_run_config_by_core` after
+:func:`run_time_checks` is called by :func:`pipelines.config_problems.check_run_config_by_core` after
 every core folder was read. It uses the very functions the run uses, so that check = run:
 
 - every ``[curves]`` file is read with :func:`pipelines.curvefiles.read_curve_file_once` (parsed once per process, shared with the run);

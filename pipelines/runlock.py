@@ -18,7 +18,6 @@ clear it.
 from __future__ import annotations
 
 import contextlib
-import datetime as _dt
 import errno
 import json
 import os
@@ -26,6 +25,8 @@ import pathlib
 import socket
 from dataclasses import dataclass, field
 from typing import Any
+
+from pipelines.clock import utc_now
 
 try:  # POSIX
     import fcntl
@@ -108,7 +109,7 @@ class RunLock:
     def write(self, identity: dict[str, Any] | None = None) -> None:
         """Record this process as the owner (and what the run was started with)."""
         self.record = {"pid": os.getpid(), "host": socket.gethostname(), "state": "running",
-                       "started_utc": _dt.datetime.now(_dt.timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ"),
+                       "started_utc": utc_now(),
                        **(identity or {})}
         self._rewrite(self.record)
 

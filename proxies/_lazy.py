@@ -12,16 +12,19 @@ import importlib
 from typing import Any, Callable
 
 
-def lazy_exports(package: str, exports: dict[str, str]) -> tuple[Callable[[str], Any], Callable[[], list[str]]]:
-    """Return ``(__getattr__, __dir__)`` for ``package``.
+def lazy_exports(package: str, modules: dict[str, str]) -> tuple[Callable[[str], Any], Callable[[], list[str]], list[str]]:
+    """Return ``(__getattr__, __dir__, __all__)`` for ``package``.
 
     Parameters
     ----------
     package : str
         The package's ``__name__``.
-    exports : dict of str to str
-        Public name -> module (absolute, or relative to ``package`` when it starts with '.').
+    modules : dict of str to str
+        Module (absolute, or relative to ``package`` when it starts with '.') -> the public
+        names it gives, separated by white space.
     """
+    exports = {name: module for module, names in modules.items() for name in names.split()}
+    public = sorted(exports)
 
     def __getattr__(name: str) -> Any:
         module = exports.get(name)
@@ -30,6 +33,6 @@ def lazy_exports(package: str, exports: dict[str, str]) -> tuple[Callable[[str],
         return getattr(importlib.import_module(module, package), name)
 
     def __dir__() -> list[str]:
-        return sorted(exports)
+        return list(public)
 
-    return __getattr__, __dir__
+    return __getattr__, __dir__, public

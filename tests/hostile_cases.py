@@ -420,6 +420,8 @@ CASES += [
          "did you mean 'model'"),
     Case("tiny output step", config("[chronology]\noutput_step_cm = 1e-9"), "run.toml", None, "output_step_cm",
          "GiB"),
+    Case("memory grid its prior gives no weight", config("[chronology]\nrate_memory = [0.0]"), "run.toml", None,
+         "rate_memory", "gives no weight"),
     Case("tiny calibration step", config("[chronology]\ncalibration_step_yr = 1e-7"), "run.toml", None,
          "calibration_step_yr", "GiB"),
     Case("tiny accumulation grid step", config("[chronology]\ngrid_step_yr = 1e-6"), "run.toml", None,

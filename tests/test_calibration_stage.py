@@ -15,7 +15,8 @@ from proxies.calibration import (CalibrationSettings, InstrumentalSeries, Traini
                                  TrainingSpec, calibrate_core, fit_transfer_function)
 from proxies.calibration.equations import mgca_from_temperature_anand2003
 from proxies.calibration.settings import InstrumentalSpec
-from proxies.cores.model import NON_PROXY_COLUMNS, EventLayer
+from proxies.cores import EventLayer
+from proxies.cores.model import NON_PROXY_COLUMNS
 from proxies.problems import InputError
 
 M = 64

@@ -8,7 +8,8 @@ from pathlib import Path
 import pytest
 
 from pipelines import config as config_module
-from pipelines.config import RunConfig, check_run_config, load_run_config, stage_settings
+from pipelines.config import RunConfig, load_run_config, stage_settings
+from pipelines.config_problems import check_run_config
 from proxies.problems import InputError, Problem
 
 DATA = Path(__file__).parent / "data"

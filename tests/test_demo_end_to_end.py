@@ -48,12 +48,21 @@ def demo_runs(tmp_path_factory):
     second = _downcore("run", str(DEMO_CORES / "run.toml"), "--out", str(root / "b"),
                        "--cache-dir", str(root / "cache-b"), "-q")
     assert second.returncode == 0, second.stderr[-3000:]
+    (root / "demo-stderr.txt").write_text(first.stderr + second.stderr, encoding="utf-8")
     return root / "a", root / "b", root
 
 
 def _parquet_bytes(run: pathlib.Path) -> dict[str, bytes]:
     return {p.relative_to(run).as_posix(): p.read_bytes() for p in sorted(run.rglob("*.parquet"))}
 
+
+
+def test_a_quiet_demo_prints_no_warning(demo_runs):
+    """``-q`` runs print nothing on stderr: a science or report warning belongs in the summary's
+    warnings (collected per core) or is silenced where it is expected (e.g. numpy's all-NaN
+    quantile across an event layer), never on the user's screen."""
+    stderr = (demo_runs[2] / "demo-stderr.txt").read_text(encoding="utf-8")
+    assert "Warning" not in stderr, stderr[-3000:]
 
 
 def test_demo_tables_fit_the_schema(demo_runs):

@@ -384,9 +384,9 @@ def test_core_folder_passes_ingest_and_composite_depths_match_truth(core_id):
 
 @pytest.mark.parametrize("name", ["run.toml", "run_minimal.toml"])
 def test_run_configs_pass_the_check(name):
-    from pipelines import config
+    from pipelines import config, config_problems
 
-    assert config.check_run_config(DEMO / name, year=2026) == []
+    assert config_problems.check_run_config(DEMO / name, year=2026) == []
     loaded = config.load_run_config(DEMO / name)
     assert loaded.ensemble == 300 and len(loaded.core_folders) == 4
     assert set(loaded.curves) == {"atmosphere", "marine"}

@@ -10,7 +10,7 @@ from pathlib import Path
 import pytest
 
 from hostile_cases import CASES, make_project
-from pipelines.config import check_run_config_by_core
+from pipelines.config_problems import check_run_config_by_core
 
 
 def hashes(root: Path) -> dict[str, str]:

@@ -119,7 +119,7 @@ def test_series_keys_are_validated_with_file_and_key(tmp_path):
 
 def test_check_refuses_a_series_named_like_a_core(tmp_path):
     from archive_factory import write_archive
-    from pipelines.config import check_run_config
+    from pipelines.config_problems import check_run_config
 
     (tmp_path / "s.csv").write_text("age,v\n100,1\n200,2\n300,3\n", encoding="utf-8")
     config = write_archive(tmp_path, n_cores=1, ensemble=20, n_dates=4, n_samples=10,

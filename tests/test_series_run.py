@@ -16,7 +16,7 @@ import pandas as pd
 import pytest
 
 from archive_factory import FULL_CHAIN, write_archive
-from pipelines.config import check_run_config
+from pipelines.config_problems import check_run_config
 from pipelines.flows.run import execute_run
 from pipelines.flows.runners import ExecutorChoice
 from pipelines.manifest import read_manifest

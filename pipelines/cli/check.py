@@ -87,7 +87,7 @@ def _check_core(path: Path) -> _Group:
 
 
 def _check_config(path: Path) -> list[_Group]:
-    from pipelines.config import check_run_config_by_core
+    from pipelines.config_problems import check_run_config_by_core
 
     notes: list[str] = []
     (config_title, (_, config_problems)), *cores = check_run_config_by_core(path, notes=notes).items()

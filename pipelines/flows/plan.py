@@ -24,7 +24,8 @@ __all__ = ["RunPlan", "build_plan"]
 
 @dataclass(frozen=True)
 class RunPlan:
-    """A resolved run (see the module docstring).
+    """A resolved run: its config, core folders, auxiliary inputs and their hashes (see the
+    module docstring).
 
     Attributes
     ----------

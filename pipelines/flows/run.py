@@ -21,7 +21,8 @@ import pandas as pd
 from pipelines.flows.plan import RunPlan, build_plan
 from pipelines.flows.runners import ExecutorChoice, prefect_run_settings, task_runner_for
 from pipelines.flows.stage_table import CORE_STAGES, SCIENCE_STAGES
-from pipelines.manifest import build_manifest, utc_now, write_manifest
+from pipelines.clock import utc_now
+from pipelines.manifest import build_manifest, write_manifest
 from pipelines.outputs_schema import TABLES, checked
 from pipelines.runfolder import (IN_PROGRESS_MARKER, atomic_copy, atomic_write_json, atomic_write_parquet,
                                  atomic_write_text, create_run_folder, ensure_writable_folder,

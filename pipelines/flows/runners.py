@@ -29,16 +29,6 @@ ENV_DEFAULTS = {
 }
 
 
-def apply_environment_defaults() -> dict[str, str]:
-    """Set :data:`ENV_DEFAULTS` where unset (call before importing Prefect); return what was set."""
-    applied = {}
-    for key, value in ENV_DEFAULTS.items():
-        if key not in os.environ:
-            os.environ[key] = value
-            applied[key] = value
-    return applied
-
-
 @dataclass(frozen=True)
 class ExecutorChoice:
     """How to run the tasks.
@@ -75,6 +65,16 @@ class ExecutorChoice:
         if self.dask_local:
             return {"runner": "dask-local", "workers": self.workers}
         return {"runner": "threads", "workers": self.workers}
+
+
+def apply_environment_defaults() -> dict[str, str]:
+    """Set :data:`ENV_DEFAULTS` where unset (call before importing Prefect); return what was set."""
+    applied = {}
+    for key, value in ENV_DEFAULTS.items():
+        if key not in os.environ:
+            os.environ[key] = value
+            applied[key] = value
+    return applied
 
 
 def task_runner_for(choice: ExecutorChoice, scratch: str | os.PathLike[str]):

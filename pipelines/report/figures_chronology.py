@@ -14,6 +14,7 @@ from matplotlib.patches import Patch
 from pipelines.report import style
 from pipelines.report.html import probability_text
 from pipelines.report.rundata import CoreData, member_columns
+from proxies.warning_sinks import quiet_warnings
 
 __all__ = ["age_depth_figure", "deposition_time_figure", "outlier_figure", "hyperparameter_figure",
            "OUTLIER_LINE", "ensemble_matrix", "hiatus_marks", "all_outlier_probabilities_negligible",
@@ -239,7 +240,8 @@ def deposition_time_figure(core: CoreData):
     shown = []
     if from_ens is not None:
         mid, rate = from_ens
-        q = np.nanquantile(np.where(rate > 0, rate, np.nan), [0.025, 0.16, 0.5, 0.84, 0.975], axis=1)
+        with quiet_warnings(RuntimeWarning):  # an event layer: no member has a positive rate there (a gap)
+            q = np.nanquantile(np.where(rate > 0, rate, np.nan), [0.025, 0.16, 0.5, 0.84, 0.975], axis=1)
         ax.fill_betweenx(mid, q[0], q[4], step="mid", color=style.BAND_LIGHT, linewidth=0,
                          label="95 % range")
         ax.fill_betweenx(mid, q[1], q[3], step="mid", color=style.BAND_DARK, linewidth=0,

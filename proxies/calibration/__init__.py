@@ -17,32 +17,16 @@
 
 from proxies._lazy import lazy_exports
 
-#: public name -> module it lives in (imported on first use)
-_EXPORTS = {
-    "CalibratedRecord": ".records",
-    "CalibrationResult": ".stage",
-    "CalibrationSettings": ".settings",
-    "Coefficient": ".equations",
-    "FittedTransfer": ".transfer",
-    "CALIBRATORS": ".stage",
-    "METHOD_SETTINGS": ".settings",
-    "TrainingSettings": ".training_settings",
-    "InstrumentalSettings": ".training_settings",
-    "event_layer_sample_warnings": ".records",
-    "InstrumentalSeries": ".data",
-    "InstrumentalSpec": ".training_settings",
-    "MAT": ".mat",
-    "PUBLISHED_EQUATIONS": ".equations",
-    "ProxyCalibration": ".settings",
-    "PublishedEquation": ".equations",
-    "TrainingSet": ".data",
-    "TrainingSpec": ".training_settings",
-    "WA": ".wa",
-    "WAPLS": ".wapls",
-    "calibrate_core": ".stage",
-    "fit_transfer_function": ".transfer",
-    "published_equation": ".equations",
-}
-
-__all__ = sorted(_EXPORTS)
-__getattr__, __dir__ = lazy_exports(__name__, _EXPORTS)
+#: module -> the public names it gives (each imported on first use)
+__getattr__, __dir__, __all__ = lazy_exports(__name__, {
+    ".data": "InstrumentalSeries TrainingSet",
+    ".equations": "Coefficient PUBLISHED_EQUATIONS PublishedEquation published_equation",
+    ".mat": "MAT",
+    ".records": "CalibratedRecord event_layer_sample_warnings",
+    ".settings": "CalibrationSettings METHOD_SETTINGS ProxyCalibration",
+    ".stage": "CALIBRATORS CalibrationResult calibrate_core",
+    ".training_settings": "InstrumentalSettings InstrumentalSpec TrainingSettings TrainingSpec",
+    ".transfer": "FittedTransfer fit_transfer_function",
+    ".wa": "WA",
+    ".wapls": "WAPLS",
+})

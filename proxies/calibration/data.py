@@ -78,7 +78,7 @@ class InstrumentalSeries:
     Attributes
     ----------
     name : str
-        Name of the series (the ``<name>`` of ``[instrumental.<name>]``).
+        The ``<name>`` of its ``[instrumental.<name>]`` section.
     variable : str
         Climate variable, e.g. ``"summer_temperature"``.
     units : str

@@ -59,6 +59,21 @@ def _shared_fraction(doc_default: str):
                    auto=True)
 
 
+def _missing_key(values, where: str, key: str, what: str, fix: str) -> list[Problem]:
+    """The problem of a method that needs ``key`` (``what`` it gives) when it is not set."""
+    if values.get(key) is not None:
+        return []
+    return [Problem(where, f"method '{values['method']}' needs {what}", fix, column=key)]
+
+
+def _names_table(values, where: str, key: str, section: str, what: str) -> list[Problem]:
+    """:func:`_missing_key` for a key naming a ``[section.<name>]`` table."""
+    return _missing_key(values, where, key, what, f"set {key} to the name of a [{section}.<name>] section")
+
+
+_VARIABLE_FIX = 'e.g. variable = "temperature"'
+
+
 @dataclass(frozen=True)
 class EquationCalibration(ProxyCalibration):
     """A published equation; its stated total error only (never also its coefficients)."""
@@ -75,11 +90,8 @@ class EquationCalibration(ProxyCalibration):
 
     @classmethod
     def cross_check(cls, values, where):
-        if values.get("equation") is None:
-            return [Problem(where, "method 'equation' needs an equation name",
-                            f"set equation to one of {', '.join(PUBLISHED_EQUATIONS)}",
-                            column="equation")]
-        return []
+        return _missing_key(values, where, "equation", "an equation name",
+                            f"set equation to one of {', '.join(PUBLISHED_EQUATIONS)}")
 
 
 _COMMON_USER_DOC = ("give coefficient errors (the fit's, with their correlation) or a "
@@ -104,6 +116,8 @@ class _UserForm(ProxyCalibration):
     _pair: ClassVar[tuple[str, str]] = ("", "")
     #: the coefficient of the climate value: zero would make the form not invertible
     _climate_coefficient: ClassVar[str] = ""
+    #: coefficients that must be positive
+    _positive: ClassVar[tuple[str, ...]] = ()
 
     @classmethod
     def cross_check(cls, values, where):
@@ -113,10 +127,9 @@ class _UserForm(ProxyCalibration):
         key = cls._climate_coefficient
         if values[key] == 0:
             problems.append(Problem(where, f"{key} must not be zero (not invertible)", column=key))
-        if values.get("variable") is None:
-            problems.append(Problem(where, f"method '{values['method']}' needs the climate "
-                                    "variable name", 'e.g. variable = "temperature"',
-                                    column="variable"))
+        problems += [Problem(where, f"{k} must be positive", column=k)
+                     for k in cls._positive if values[k] is not None and values[k] <= 0]
+        problems += _missing_key(values, where, "variable", "the climate variable name", _VARIABLE_FIX)
         coefficient_errors = values[f"{a}_error"] > 0 or values[f"{b}_error"] > 0
         if coefficient_errors and (values["shared_error_fraction"] or 0) > 0:
             problems.append(Problem(where, "coefficient errors and a shared_error_fraction "
@@ -131,41 +144,32 @@ class _UserForm(ProxyCalibration):
         return 0.0 if getattr(self, f"{a}_error") > 0 or getattr(self, f"{b}_error") > 0 else 0.5
 
 
-@dataclass(frozen=True)
-class LinearCalibration(_UserForm):
-    """A user-defined linear form ``proxy = slope climate + intercept``."""
+def _user_form(name: str, formula: str, coefficients: dict[str, str], climate_coefficient: str,
+               positive: tuple[str, ...] = ()) -> type:
+    """A :class:`_UserForm` ``proxy = formula`` (T: the climate value) with two coefficients,
+    each a required key with its own 1-sigma error key ``<coefficient>_error``.
 
-    slope: float | None = setting(None, "slope of proxy = slope T + intercept [proxy units "
-                                  "per climate unit]", kind=float)
-    intercept: float | None = setting(None, "intercept of proxy = slope T + intercept [proxy "
-                                      "units]", kind=float)
-    slope_error: float = setting(0.0, "1-sigma error of the slope (shared by all samples of a "
-                                 "member)", low=0.0)
-    intercept_error: float = setting(0.0, "1-sigma error of the intercept (shared)", low=0.0)
-    _pair: ClassVar[tuple[str, str]] = ("slope", "intercept")
-    _climate_coefficient: ClassVar[str] = "slope"
+    ``coefficients``: coefficient -> its units; ``climate_coefficient`` multiplies T (zero
+    would make the form not invertible); ``positive``: coefficients that must be > 0.
+    """
+    values = [(key, float | None, setting(None, f"{key} of proxy = {formula} [{units}]", kind=float))
+              for key, units in coefficients.items()]
+    errors = [(f"{key}_error", float, setting(0.0, f"1-sigma error of the {key} (shared by all "
+                                               "samples of a member)", low=0.0))
+              for key in coefficients]
+    form = dataclasses.make_dataclass(name, values + errors, bases=(_UserForm,), frozen=True, namespace={
+        "__doc__": f"A user-defined form ``proxy = {formula}`` (T: the climate value).",
+        "_pair": tuple(coefficients), "_climate_coefficient": climate_coefficient, "_positive": positive})
+    form.__module__ = __name__
+    return form
 
 
-@dataclass(frozen=True)
-class ExponentialCalibration(_UserForm):
-    """A user-defined exponential form ``proxy = prefactor exp(exponent climate)``."""
-
-    prefactor: float | None = setting(None, "prefactor of proxy = prefactor exp(exponent T) "
-                                      "[proxy units]", kind=float)
-    exponent: float | None = setting(None, "exponent of proxy = prefactor exp(exponent T) [per "
-                                     "climate unit]", kind=float)
-    prefactor_error: float = setting(0.0, "1-sigma error of the prefactor (shared by all "
-                                     "samples of a member)", low=0.0)
-    exponent_error: float = setting(0.0, "1-sigma error of the exponent (shared)", low=0.0)
-    _pair: ClassVar[tuple[str, str]] = ("prefactor", "exponent")
-    _climate_coefficient: ClassVar[str] = "exponent"
-
-    @classmethod
-    def cross_check(cls, values, where):
-        problems = super().cross_check(values, where)
-        if values["prefactor"] is not None and values["prefactor"] <= 0:
-            problems.append(Problem(where, "prefactor must be positive", column="prefactor"))
-        return problems
+LinearCalibration = _user_form("LinearCalibration", "slope T + intercept",
+                               {"slope": "proxy units per climate unit", "intercept": "proxy units"},
+                               climate_coefficient="slope")
+ExponentialCalibration = _user_form("ExponentialCalibration", "prefactor exp(exponent T)",
+                                    {"prefactor": "proxy units", "exponent": "per climate unit"},
+                                    climate_coefficient="exponent", positive=("prefactor",))
 
 
 @dataclass(frozen=True)
@@ -188,11 +192,7 @@ class OverlapCalibrationSettings(ProxyCalibration):
 
     @classmethod
     def cross_check(cls, values, where):
-        if values.get("series") is None:
-            return [Problem(where, "method 'overlap' needs an instrumental series",
-                            "set series to the name of an [instrumental.<name>] section",
-                            column="series")]
-        return []
+        return _names_table(values, where, "series", "instrumental", "an instrumental series")
 
 
 @dataclass(frozen=True)
@@ -204,11 +204,7 @@ class TransferCalibration(ProxyCalibration):
 
     @classmethod
     def cross_check(cls, values, where):
-        if values.get("training") is None:
-            return [Problem(where, "method 'transfer' needs a training set",
-                            "set training to the name of a [training.<name>] section",
-                            column="training")]
-        return []
+        return _names_table(values, where, "training", "training", "a training set")
 
 
 @dataclass(frozen=True)
@@ -223,10 +219,7 @@ class StatedCalibration(ProxyCalibration):
 
     @classmethod
     def cross_check(cls, values, where):
-        if values.get("variable") is None:
-            return [Problem(where, "method 'stated' needs the climate variable name",
-                            'e.g. variable = "temperature"', column="variable")]
-        return []
+        return _missing_key(values, where, "variable", "the climate variable name", _VARIABLE_FIX)
 
 
 #: method name -> its settings class (the calibration functions: stage.CALIBRATORS)

@@ -170,23 +170,19 @@ def _named_tables(spec_class, section: str, mapping, where: str) -> tuple:
     return tuple(specs)
 
 
-@dataclass(frozen=True)
-class TrainingSettings:
-    """Every ``[training.<name>]`` table of a run config."""
+def _named_tables_settings(name: str, spec_class: type, section: str) -> type:
+    """A frozen settings class holding every ``[<section>.<name>]`` table of a run config as
+    ``specs`` (a tuple of ``spec_class``), read by ``from_mapping(mapping, where)``."""
 
-    sets: tuple[TrainingSpec, ...] = ()
+    def from_mapping(cls, mapping, where: str = "run.toml"):
+        return cls(_named_tables(spec_class, section, mapping, where))
 
-    @classmethod
-    def from_mapping(cls, mapping, where: str = "run.toml") -> "TrainingSettings":
-        return cls(_named_tables(TrainingSpec, "training", mapping, where))
+    settings = dataclasses.make_dataclass(name, [("specs", tuple, dataclasses.field(default=()))], frozen=True,
+                                          namespace={"from_mapping": classmethod(from_mapping),
+                                                     "__doc__": f"Every ``[{section}.<name>]`` table of a run config."})
+    settings.__module__ = __name__
+    return settings
 
 
-@dataclass(frozen=True)
-class InstrumentalSettings:
-    """Every ``[instrumental.<name>]`` table of a run config."""
-
-    series: tuple[InstrumentalSpec, ...] = ()
-
-    @classmethod
-    def from_mapping(cls, mapping, where: str = "run.toml") -> "InstrumentalSettings":
-        return cls(_named_tables(InstrumentalSpec, "instrumental", mapping, where))
+TrainingSettings = _named_tables_settings("TrainingSettings", TrainingSpec, "training")
+InstrumentalSettings = _named_tables_settings("InstrumentalSettings", InstrumentalSpec, "instrumental")

@@ -42,7 +42,8 @@ TRANSFER_SHARED_FRACTION = 0.5
 
 @dataclass(frozen=True)
 class FittedTransfer:
-    """A transfer function fitted to one training set, shared by every core of a run.
+    """A transfer function fitted to one training set, once per run by
+    :func:`fit_transfer_function`, and shared by every core of the run.
 
     Attributes
     ----------

@@ -11,21 +11,10 @@
 
 from proxies._lazy import lazy_exports
 
-#: public name -> module it lives in (imported on first use)
-_EXPORTS = {
-    "CalibratedDates": ".calibrate",
-    "CalibrationCurve": ".curves",
-    "ChronologyResult": ".stage",
-    "ChronologySettings": ".settings",
-    "CurveRangeError": ".calibrate",
-    "build_chronology": ".stage",
-    "calibrate_calendar": ".calibrate",
-    "calibrate_radiocarbon": ".calibrate",
-    "curve_from_table": ".curves",
-    "hpd_ranges": ".calibrate",
-    "blend_curves": ".curves",
-    "parse_curve_text": ".curves",
-}
-
-__all__ = sorted(_EXPORTS)
-__getattr__, __dir__ = lazy_exports(__name__, _EXPORTS)
+#: module -> the public names it gives (each imported on first use)
+__getattr__, __dir__, __all__ = lazy_exports(__name__, {
+    ".calibrate": "CalibratedDates CurveRangeError calibrate_calendar calibrate_radiocarbon hpd_ranges",
+    ".curves": "CalibrationCurve blend_curves curve_from_table parse_curve_text",
+    ".settings": "ChronologySettings",
+    ".stage": "ChronologyResult build_chronology",
+})

@@ -9,6 +9,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import ClassVar
 
+from proxies.problems import Problem
 from proxies.settings_spec import DeclaredSection, setting
 
 __all__ = ["ChronologySettings", "MODELS", "JOINS"]
@@ -94,3 +95,16 @@ class ChronologySettings(DeclaredSection):
     lead210_draws: int = setting(1000, "Monte Carlo draws of the 210Pb activities", low=10, high=100000)
     output_step_cm: float = setting(1.0, "depth step of chronology.parquet and the ensemble table [cm]",
                                     low=0.0, low_open=True)
+
+    @classmethod
+    def cross_check(cls, values: dict, where: str) -> list[Problem]:
+        """The memory model needs a memory its prior weighs: the Beta(a, b) density is 0 at a
+        memory of 0 when a > 1, so a grid of zeros alone would leave no hyper-parameter point
+        (caught here, before any core is run, not in the chronology stage)."""
+        a, b = values["rate_memory_prior"]
+        if values["model"] == "memory" and a > 1 and all(w == 0 for w in values["rate_memory"]):
+            return [Problem(where, f"every rate_memory tried is 0, where the Beta({a:g}, {b:g}) "
+                            "rate_memory_prior gives no weight (its density is 0 at 0 when a > 1)",
+                            "add a memory between 0 and 1, e.g. rate_memory = [0.1, 0.5, 0.9], or "
+                            "set rate_memory_prior = [1, <b>]", column="rate_memory")]
+        return []

@@ -20,7 +20,8 @@ from dataclasses import dataclass, field
 from datetime import date
 from typing import Any
 
-from proxies.cores.model import BP_ZERO_CE, CoreIdentity, EventLayer, Section
+from proxies.cores.depth import EventLayer, Section
+from proxies.cores.model import BP_ZERO_CE, CoreIdentity
 from proxies.problems import Problem
 from proxies.settings_spec import did_you_mean
 

@@ -22,12 +22,50 @@ scale with the same map.
 from __future__ import annotations
 
 from collections.abc import Sequence
+from dataclasses import dataclass
 
 import numpy as np
 
-from proxies.cores.model import EventLayer, Section
+__all__ = ["Section", "EventLayer", "DepthScale"]
 
-__all__ = ["DepthScale"]
+
+@dataclass(frozen=True)
+class Section:
+    """One drive/section of a core: a ``[[sections]]`` table of ``core.toml``, whose tables give
+    depths below this section's top.
+
+    Attributes
+    ----------
+    name : str
+        Section name as used in the tables' ``section`` column.
+    top_cm : float
+        Composite depth of the section top [cm].
+    """
+
+    name: str
+    top_cm: float
+
+
+@dataclass(frozen=True)
+class EventLayer:
+    """An instantaneous deposit (turbidite, tephra, slump, ...), cut out of the age model.
+
+    Attributes
+    ----------
+    top_cm, bottom_cm : float
+        Composite depth of the layer top and bottom [cm], ``top_cm < bottom_cm``.
+    kind : str
+        Free text, e.g. ``"turbidite"``.
+    """
+
+    top_cm: float
+    bottom_cm: float
+    kind: str = "unspecified"
+
+    @property
+    def thickness_cm(self) -> float:
+        """Layer thickness [cm]."""
+        return self.bottom_cm - self.top_cm
 
 
 class DepthScale:

@@ -8,15 +8,13 @@ record in a ``source_row`` column (header = row 1).
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from typing import TYPE_CHECKING
 
 import pandas as pd
 from pandas.api.types import is_bool_dtype, is_numeric_dtype
 
-if TYPE_CHECKING:  # pragma: no cover
-    from proxies.cores.depth import DepthScale
+from proxies.cores.depth import DepthScale, EventLayer, Section
 
-__all__ = ["Section", "EventLayer", "CoreIdentity", "Core", "NON_PROXY_COLUMNS", "ERROR_SUFFIX"]
+__all__ = ["CoreIdentity", "Core", "NON_PROXY_COLUMNS", "ERROR_SUFFIX"]
 
 #: sample/count columns that are never proxies or taxa
 NON_PROXY_COLUMNS = frozenset(
@@ -27,44 +25,6 @@ ERROR_SUFFIX = "_error"
 
 #: year CE that is 0 cal BP
 BP_ZERO_CE = 1950
-
-
-@dataclass(frozen=True)
-class Section:
-    """One drive/section of a core.
-
-    Attributes
-    ----------
-    name : str
-        Section name as used in the tables' ``section`` column.
-    top_cm : float
-        Composite depth of the section top [cm].
-    """
-
-    name: str
-    top_cm: float
-
-
-@dataclass(frozen=True)
-class EventLayer:
-    """An instantaneous deposit (turbidite, tephra, slump, ...), cut out of the age model.
-
-    Attributes
-    ----------
-    top_cm, bottom_cm : float
-        Composite depth of the layer top and bottom [cm], ``top_cm < bottom_cm``.
-    kind : str
-        Free text, e.g. ``"turbidite"``.
-    """
-
-    top_cm: float
-    bottom_cm: float
-    kind: str = "unspecified"
-
-    @property
-    def thickness_cm(self) -> float:
-        """Layer thickness [cm]."""
-        return self.bottom_cm - self.top_cm
 
 
 @dataclass(frozen=True, eq=False)  # a Core compares by identity (its tables are not compared)
@@ -152,8 +112,6 @@ class Core(CoreIdentity):
     @property
     def depth_scale(self) -> DepthScale:
         """The core's :class:`~proxies.cores.depth.DepthScale`."""
-        from proxies.cores.depth import DepthScale
-
         return DepthScale(self.sections, self.event_layers, self.hiatuses_cm)
 
     @property

@@ -33,7 +33,8 @@ from proxies.cores.cells import BadCell, cell_to_float, cell_to_text, parse_bool
 from proxies.cores.curve_names import check_curve_names, resolve_curve_name  # noqa: F401 (re-export)
 from proxies.cores.core_file import (  # noqa: F401 (re-exported names of the core.toml rules)
     ARCHIVES, CORE_KEYS, DEPTH_UNITS, FILE_KEYS, ID_PATTERN, TOP_LEVEL_KEYS, CoreSpec, check_core_mapping, current_year)
-from proxies.cores.model import ERROR_SUFFIX, Section
+from proxies.cores.depth import Section
+from proxies.cores.model import ERROR_SUFFIX
 from proxies.problems import Problem
 from proxies.settings_spec import did_you_mean
 

@@ -11,14 +11,8 @@
 
 from proxies._lazy import lazy_exports
 
-#: public name -> module it lives in (imported on first use)
-_EXPORTS = {
-    "EVENT_COLUMNS": ".stage",
-    "EventResult": ".stage",
-    "EventSettings": ".settings",
-    "detect_core_events": ".stage",
-    "detect_series_events": ".stage",
-}
-
-__all__ = sorted(_EXPORTS)
-__getattr__, __dir__ = lazy_exports(__name__, _EXPORTS)
+#: module -> the public names it gives (each imported on first use)
+__getattr__, __dir__, __all__ = lazy_exports(__name__, {
+    ".settings": "EventSettings",
+    ".stage": "EVENT_COLUMNS EventResult detect_core_events detect_series_events",
+})

@@ -65,11 +65,14 @@ def robust_sigma_observed(x: np.ndarray, observed: np.ndarray) -> np.ndarray:
     Parameters
     ----------
     x : ndarray (T, M)
+        Gap-filled series, one column per member [series units].
     observed : ndarray of bool (T, M)
+        True where the point was observed (not gap-filled).
 
     Returns
     -------
     ndarray (M,)
+        Noise standard deviation of each member [series units].
     """
     x = np.asarray(x, dtype=float)
     both = observed[1:] & observed[:-1]

@@ -9,14 +9,9 @@
 
 from proxies._lazy import lazy_exports
 
-#: public name -> module it lives in (imported on first use)
-_EXPORTS = {
-    "GridSeries": ".stage",
-    "ReconstructionResult": ".stage",
-    "ReconstructionSettings": ".settings",
-    "reconstruct_core": ".stage",
-    "stack_records": ".stack",
-}
-
-__all__ = sorted(_EXPORTS)
-__getattr__, __dir__ = lazy_exports(__name__, _EXPORTS)
+#: module -> the public names it gives (each imported on first use)
+__getattr__, __dir__, __all__ = lazy_exports(__name__, {
+    ".settings": "ReconstructionSettings",
+    ".stack": "stack_records",
+    ".stage": "GridSeries ReconstructionResult reconstruct_core",
+})
