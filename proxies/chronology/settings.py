@@ -54,11 +54,9 @@ class ChronologySettings(DeclaredSection):
     mean_rate_factors: tuple[float, ...] = setting(
         (0.2, 0.34, 0.58, 1.0, 1.7, 2.9, 5.0), "mean rates tried = centre x these (equal prior weight)",
         low=0.0, low_open=True)
-    # points a factor 2 apart with equal weights: a log-uniform prior over 0.15-1.2 (README)
     rate_variability: tuple[float, ...] = setting(
-        (0.15, 0.3, 0.6, 1.2), "coefficients of variation of the accumulation rate tried, equal prior "
-        "weight (memory: spread of the rate classes; independent: over reference_depth_cm)", low=0.0,
-        low_open=True)
+        (0.15, 0.5, 1.2), "coefficients of variation of the accumulation rate tried (memory: spread "
+        "of the rate classes; independent: over reference_depth_cm)", low=0.0, low_open=True)
     rate_memory: tuple[float, ...] = setting(
         (0.1, 0.5, 0.9), "memory model: probabilities that the rate class persists over "
         "reference_depth_cm tried", low=0.0, high=1.0, high_open=True)
