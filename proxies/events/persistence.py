@@ -107,9 +107,7 @@ def ar1_tau_uneven_members(times: np.ndarray, values: np.ndarray, iterations: in
     dbar = np.sum(gap, axis=0) / np.maximum(pair.sum(axis=0), 1)
     d = gap / np.where(dbar > 0, dbar, 1.0)
     x_prev = np.take_along_axis(z, np.maximum(prev, 0), axis=0)
-
-    def sum_of_squares(a):
-        return np.sum(np.where(pair, (z - a[None, :] ** d * x_prev) ** 2, 0.0), axis=0)
+    sum_of_squares = _criterion(z, x_prev, pair, gap, d, dbar)
 
     ratio = (np.sqrt(5.0) - 1) / 2
     lo = np.full(x.shape[1], _A_MIN)
@@ -127,6 +125,37 @@ def ar1_tau_uneven_members(times: np.ndarray, values: np.ndarray, iterations: in
     a = (lo + hi) / 2
     tau = -dbar / np.log(a)
     return np.where(pair.sum(axis=0) >= 2, tau, np.nan)
+
+
+#: at most this many distinct spacings: the criterion is then summed per spacing (see
+#: :func:`_criterion`); more (irregular real times), it is summed over every pair
+_MAX_SPACINGS = 16
+
+
+def _criterion(z, x_prev, pair, gap, d, dbar):
+    """The least-squares criterion ``S(a) = sum over pairs (z_i - a**d_i z_{i-1})**2`` of every
+    member as a function of ``a`` (M,).
+
+    On a grid the spacings take a few values g_k only, so ``S(a) = sum_k S_zz,k - 2 a**(g_k /
+    dbar) S_zx,k + a**(2 g_k / dbar) S_xx,k`` with the sums per spacing computed once: each
+    evaluation costs (spacings x M) powers instead of (T x M)."""
+    spacings = np.unique(gap[pair])
+    if spacings.size > _MAX_SPACINGS:
+        def over_pairs(a):
+            return np.sum(np.where(pair, (z - a[None, :] ** d * x_prev) ** 2, 0.0), axis=0)
+
+        return over_pairs
+    masks = [pair & (gap == g) for g in spacings]
+    s_zz = np.array([np.sum(np.where(m, z * z, 0.0), axis=0) for m in masks])
+    s_zx = np.array([np.sum(np.where(m, z * x_prev, 0.0), axis=0) for m in masks])
+    s_xx = np.array([np.sum(np.where(m, x_prev * x_prev, 0.0), axis=0) for m in masks])
+    exponents = spacings[:, None] / np.where(dbar > 0, dbar, 1.0)[None, :]
+
+    def per_spacing(a):
+        power = a[None, :] ** exponents
+        return np.sum(s_zz - 2.0 * power * s_zx + power * power * s_xx, axis=0)
+
+    return per_spacing
 
 
 def ar1_coefficient_even(values: np.ndarray) -> np.ndarray:
